@@ -1,0 +1,1 @@
+"""Mortality: base tables, published laws, adjustments and improvement scales."""
