@@ -1,0 +1,146 @@
+"""Load a basis TOML file and turn validation failures into readable :class:`BasisError` messages."""
+
+from __future__ import annotations
+
+import tomllib
+import types
+import typing
+from pathlib import Path
+from typing import Any
+
+from pydantic import BaseModel, ValidationError
+
+from valuation.basis.model import Basis
+from valuation.errors import BasisError
+
+_FIX = "correct the key named above; every key and its allowed values are described in assumptions/demo_basis.toml"
+
+
+def _unwrap(tp: Any) -> list[Any]:
+    """The candidate types behind ``Annotated``, ``Optional`` and unions."""
+    origin = typing.get_origin(tp)
+    if origin is typing.Annotated:
+        return _unwrap(typing.get_args(tp)[0])
+    if origin in (typing.Union, types.UnionType):
+        out: list[Any] = []
+        for a in typing.get_args(tp):
+            out.extend(_unwrap(a))
+        return out
+    return [tp]
+
+
+def _field(model: type[BaseModel], part: str) -> Any:
+    for name, info in model.model_fields.items():
+        if part in (name, info.alias):
+            return info.annotation
+    return None
+
+
+def _walk(loc: tuple[Any, ...]) -> tuple[list[str], Any]:
+    """Dotted key parts of a pydantic error location, and the type found at its end.
+
+    Union discriminator tags and pydantic's ``[key]`` markers are dropped from the key.
+    """
+    parts: list[str] = []
+    current: list[Any] = [Basis]
+    for part in loc:
+        if part == "[key]":
+            continue
+        nxt: list[Any] = []
+        is_tag = False
+        for tp in current:
+            for cand in _unwrap(tp):
+                origin = typing.get_origin(cand)
+                if isinstance(cand, type) and issubclass(cand, BaseModel):
+                    kind = cand.model_fields.get("kind")
+                    if (kind is not None and len(current) == 1 and len(_unwrap(tp)) > 1
+                            and part in typing.get_args(kind.annotation)):
+                        nxt.append(cand)
+                        is_tag = True
+                    elif isinstance(part, str) and _field(cand, part) is not None:
+                        nxt.append(_field(cand, part))
+                elif origin is dict:
+                    nxt.append(typing.get_args(cand)[1])
+                elif origin in (list, tuple):
+                    nxt.append(typing.get_args(cand)[0])
+        if not is_tag:
+            parts.append(f"[{part}]" if isinstance(part, int) else str(part))
+        current = nxt or [None]
+    return parts, current[0] if len(current) == 1 else None
+
+
+def _dotted(parts: list[str]) -> str:
+    out = ""
+    for p in parts:
+        out += p if p.startswith("[") or not out else f".{p}"
+    return out or "(top level)"
+
+
+def describe(err: dict[str, Any]) -> str:
+    """One readable sentence for one pydantic error: the dotted key, the problem, the value given."""
+    loc = tuple(err.get("loc", ()))
+    kind = err.get("type", "")
+    if kind == "extra_forbidden":
+        parts, _ = _walk(loc[:-1])
+        _, parent = _walk(loc[:-1]) if loc[:-1] else ([], Basis)
+        allowed = ""
+        models = [c for c in _unwrap(parent) if isinstance(c, type) and issubclass(c, BaseModel)]
+        if models:
+            names = [info.alias or n for n, info in models[0].model_fields.items() if n != "source_path"]
+            allowed = f"; allowed keys here: {', '.join(names)}"
+        return f"unknown key '{_dotted([*parts, str(loc[-1])])}' (misspelt?){allowed}"
+    parts, _ = _walk(loc)
+    key = _dotted(parts)
+    if kind == "missing":
+        return f"key '{key}' is required"
+    msg = str(err.get("msg", "")).removeprefix("Value error, ")
+    given = err.get("input")
+    shown = "" if isinstance(given, dict | list) or given is None else f" (got {given!r})"
+    if "[key]" in loc:
+        shown = f" (got key {loc[loc.index('[key]') - 1]!r})"
+    return f"key '{key}': {msg}{shown}"
+
+
+def basis_error(exc: ValidationError, path: Path) -> BasisError:
+    """A :class:`BasisError` listing every validation problem of a basis file."""
+    problems = [describe(dict(e)) for e in exc.errors()]
+    return BasisError("; ".join(problems), file=path, fix=_FIX)
+
+
+def load_basis(path: str | Path) -> Basis:
+    """Read and validate a basis TOML file; build its curves and mortality bases once.
+
+    Parameters
+    ----------
+    path : str or Path
+        The TOML file. Paths inside it are relative to its folder.
+
+    Returns
+    -------
+    Basis
+
+    Raises
+    ------
+    BasisError
+        File missing, not valid TOML, an unknown key, a value out of range, or a table / curve file
+        that cannot be found; the message names the file and the dotted key with the allowed values.
+    """
+    p = Path(path)
+    if not p.is_file():
+        raise BasisError("basis file not found", file=p, fix="give the path of a .toml assumptions file")
+    try:
+        data = tomllib.loads(p.read_text(encoding="utf-8"))
+    except (tomllib.TOMLDecodeError, UnicodeDecodeError) as exc:
+        raise BasisError(f"not valid TOML: {exc}", file=p, fix="check the syntax at the line given") from exc
+    if "source_path" in data:
+        raise BasisError("unknown key 'source_path' (misspelt?)", file=p, fix=_FIX)
+    try:
+        basis = Basis.model_validate({**data, "source_path": p.resolve()})
+    except ValidationError as exc:
+        raise basis_error(exc, p) from None
+    basis.discount_curve()
+    basis.inflation_curve()
+    for group in ("pensioner", "deferred", "active", "dependant", "spouse"):
+        for sex in ("M", "F"):
+            basis.mortality(group, sex)  # type: ignore[arg-type]
+    return basis

@@ -1,0 +1,58 @@
+"""How an administrator's member file maps onto our columns and codes (the basis ``[mapping]`` table)."""
+
+from __future__ import annotations
+
+from pydantic import BaseModel, Field, field_validator
+
+from valuation.basis.rules import STRICT
+from valuation.members.schema import SEXES, STATUSES
+
+
+class ColumnMapping(BaseModel):
+    """Renames and recodes applied to a member file before validation.
+
+    Attributes
+    ----------
+    columns
+        Their header -> our column name (headers compared case-insensitively after trimming).
+    status_codes
+        Their status code -> one of ``active``, ``deferred``, ``pensioner``, ``dependant``.
+    sex_codes
+        Their sex code -> ``M`` or ``F``.
+    date_format
+        ``strftime`` pattern of their dates, e.g. ``"%d/%m/%Y"``; ``None`` means ISO ``%Y-%m-%d``. ISO dates
+        (and Excel date cells) are accepted as well whatever the pattern.
+
+    Codes are compared after trimming, ignoring case; our own codes are always accepted too.
+    """
+
+    model_config = STRICT
+    columns: dict[str, str] = Field(default_factory=dict)
+    status_codes: dict[str, str] = Field(default_factory=dict)
+    sex_codes: dict[str, str] = Field(default_factory=dict)
+    date_format: str | None = None
+
+    @field_validator("status_codes")
+    @classmethod
+    def _statuses(cls, v: dict[str, str]) -> dict[str, str]:
+        bad = sorted({s for s in v.values() if s not in STATUSES})
+        if bad:
+            raise ValueError(f"status codes must map to one of {', '.join(STATUSES)}; got {', '.join(bad)}")
+        return v
+
+    @field_validator("sex_codes")
+    @classmethod
+    def _sexes(cls, v: dict[str, str]) -> dict[str, str]:
+        bad = sorted({s for s in v.values() if s not in SEXES})
+        if bad:
+            raise ValueError(f"sex codes must map to one of {', '.join(SEXES)}; got {', '.join(bad)}")
+        return v
+
+    @field_validator("date_format")
+    @classmethod
+    def _format(cls, v: str | None) -> str | None:
+        if v is None:
+            return v
+        if "%d" not in v or "%m" not in v or ("%Y" not in v and "%y" not in v):
+            raise ValueError(f"date_format {v!r} needs day, month and year directives, e.g. \"%d/%m/%Y\"")
+        return v

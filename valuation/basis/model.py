@@ -1,0 +1,308 @@
+"""The assumptions basis: one TOML file validated into typed, frozen pydantic models.
+
+The TOML layout (every section optional unless marked):
+
+- ``name``, ``valuation_date`` (required);
+- ``[discount]`` and ``[inflation]`` (required): ``rate`` or ``curve`` (+ ``extrapolation``);
+- ``[salary]`` ``growth``; ``[benefits]`` ``design``, ``accrual_rate``, ``retirement_age``,
+  ``death_in_service_lump_sum``, ``default_tranche``;
+- ``[tranches.<name>]`` ``increase`` / ``revaluation`` rules (default: one tranche ``main``, no indexation);
+- ``[mortality.<group>.<sex>]`` (required: every member group and sex must resolve, see
+  :mod:`valuation.basis.mortality_entries` for the fallback rule);
+- ``[conventions]``, ``[withdrawal]``, ``[spouse]``, ``[payment]``, ``[commutation]``,
+  ``[[sensitivities]]``, ``[mapping]``, ``[thresholds]``.
+
+File paths inside the basis are relative to the TOML file.
+"""
+
+from __future__ import annotations
+
+import re
+from datetime import date
+from fractions import Fraction
+from pathlib import Path
+from typing import Any, Literal
+
+from pydantic import BaseModel, ConfigDict, Field, PrivateAttr, field_validator, model_validator
+
+from valuation.basis.curves import build_curve
+from valuation.basis.mapping import ColumnMapping
+from valuation.basis.mortality_entries import (
+    GROUPS,
+    Group,
+    MortalityEntries,
+    build_improvement,
+    entry_key,
+)
+from valuation.basis.rules import (
+    STRICT,
+    CommutationAssumption,
+    PaymentAssumption,
+    RateSpec,
+    Sensitivity,
+    SpouseAssumption,
+    Thresholds,
+    TrancheRule,
+)
+from valuation.errors import BasisError
+from valuation.members.schema import OUR_COLUMNS, known_columns, tranche_column
+
+_TRANCHE_NAME = re.compile(r"^[a-z][a-z0-9_]*$")
+
+
+class SalaryAssumption(BaseModel):
+    """Salary growth [per annum, effective], used to project actives' salaries (projected unit credit)."""
+
+    model_config = STRICT
+    growth: float = Field(default=0.0, gt=-0.5, lt=0.5)
+
+
+class BenefitDesign(BaseModel):
+    """The scheme's benefit design.
+
+    ``accrual_rate`` is the pension earned per year of service as a fraction of salary, written as a number
+    (0.0166667) or a fraction string ("1/60"); ``retirement_age`` the normal retirement age [years];
+    ``death_in_service_lump_sum`` a multiple of salary (0 = none); ``default_tranche`` the tranche a pension
+    without a split belongs to (may be left out when only one tranche is declared).
+    """
+
+    model_config = STRICT
+    design: Literal["final_salary", "career_average"] = "final_salary"
+    accrual_rate: float = Field(default=1 / 60, gt=0.0, le=1.0)
+    retirement_age: float = Field(default=65.0, ge=40.0, le=80.0)
+    death_in_service_lump_sum: float = Field(default=0.0, ge=0.0, le=20.0)
+    default_tranche: str | None = None
+
+    @field_validator("accrual_rate", mode="before")
+    @classmethod
+    def _fraction(cls, v: Any) -> Any:
+        if isinstance(v, str):
+            try:
+                return float(Fraction(v.replace(" ", "")))
+            except (ValueError, ZeroDivisionError):
+                raise ValueError(f"accrual_rate {v!r} is not a number or a fraction like \"1/60\"") from None
+        return v
+
+
+class Conventions(BaseModel):
+    """Calculation conventions: survival between integer ages and how ages are counted."""
+
+    model_config = STRICT
+    fractional_age: Literal["udd", "constant_force"] = "udd"
+    age_convention: Literal["exact", "last_birthday", "nearest_birthday"] = "exact"
+
+
+class WithdrawalSpec(BaseModel):
+    """Withdrawal (leaving service before retirement) as steps: ``rates = [[from_age, rate], ...]`` with
+    ages [years] increasing and rates [per annum] in [0, 1]."""
+
+    model_config = STRICT
+    rates: list[tuple[float, float]] = Field(min_length=1)
+
+    @field_validator("rates")
+    @classmethod
+    def _steps(cls, v: list[tuple[float, float]]) -> list[tuple[float, float]]:
+        ages = [a for a, _ in v]
+        if any(b <= a for a, b in zip(ages, ages[1:], strict=False)):
+            raise ValueError(f"from-ages must increase, got {ages}")
+        bad = [r for _, r in v if not 0.0 <= r <= 1.0]
+        if bad:
+            raise ValueError(f"withdrawal rates must lie in [0, 1], got {bad}")
+        return v
+
+
+class Basis(BaseModel):
+    """A validated assumptions basis (see the module docstring for the TOML layout).
+
+    Build it with :func:`valuation.basis.load_basis`. Curves and mortality bases are built once and cached.
+    """
+
+    model_config = ConfigDict(extra="forbid", frozen=True, arbitrary_types_allowed=True)
+
+    source_path: Path
+    name: str = Field(min_length=1)
+    valuation_date: date
+    discount: RateSpec
+    inflation: RateSpec
+    salary: SalaryAssumption = SalaryAssumption()
+    benefits: BenefitDesign = BenefitDesign()
+    tranches: dict[str, TrancheRule] = Field(default_factory=lambda: {"main": TrancheRule()})
+    mortality_entries: MortalityEntries = Field(alias="mortality")
+    conventions: Conventions = Conventions()
+    withdrawal_spec: WithdrawalSpec | None = Field(default=None, alias="withdrawal")
+    spouse: SpouseAssumption = SpouseAssumption()
+    payment: PaymentAssumption = PaymentAssumption()
+    commutation: CommutationAssumption = CommutationAssumption()
+    sensitivities: list[Sensitivity] = Field(default_factory=list)
+    mapping: ColumnMapping = ColumnMapping()
+    thresholds: Thresholds = Thresholds()
+
+    _cache: dict[Any, Any] = PrivateAttr(default_factory=dict)
+
+    # ---- cross-section checks ------------------------------------------------------------------------
+
+    @field_validator("tranches")
+    @classmethod
+    def _tranche_names(cls, v: dict[str, TrancheRule]) -> dict[str, TrancheRule]:
+        if not v:
+            raise ValueError("declare at least one tranche, or leave [tranches] out for a single one")
+        for name in v:
+            if not _TRANCHE_NAME.match(name):
+                raise ValueError(
+                    f"tranche name {name!r} must be lower-case letters, digits and '_' starting with a letter"
+                )
+            if tranche_column(name) in OUR_COLUMNS:
+                raise ValueError(f"tranche name {name!r} clashes with column '{tranche_column(name)}'")
+        return v
+
+    @model_validator(mode="after")
+    def _cross_checks(self) -> Basis:
+        names = list(self.tranches)
+        chosen = self.benefits.default_tranche
+        if chosen is None and len(names) > 1:
+            raise ValueError(
+                f"benefits.default_tranche is required when several tranches are declared "
+                f"(allowed: {', '.join(names)})"
+            )
+        if chosen is not None and chosen not in self.tranches:
+            raise ValueError(f"benefits.default_tranche {chosen!r} is not a declared tranche "
+                             f"(allowed: {', '.join(names)})")
+        for group in GROUPS:
+            for sex in ("M", "F"):
+                if entry_key(self.mortality_entries, group, sex) is None:
+                    raise ValueError(
+                        f"no mortality for group '{group}' sex {sex}: add [mortality.default.{sex}] "
+                        f"or [mortality.{group}.{sex}]"
+                    )
+        ours = set(known_columns(names))
+        bad = sorted({v for v in self.mapping.columns.values() if v not in ours})
+        if bad:
+            raise ValueError(
+                f"mapping.columns maps to unknown column(s) {', '.join(bad)}; allowed: {', '.join(sorted(ours))}"
+            )
+        seen = [s.name for s in self.sensitivities]
+        dup = sorted({s for s in seen if seen.count(s) > 1})
+        if dup:
+            raise ValueError(f"sensitivity names must be unique; repeated: {', '.join(dup)}")
+        return self
+
+    # ---- the flat Python surface the engine uses -----------------------------------------------------
+
+    @property
+    def default_tranche(self) -> str:
+        """Tranche that a plain ``pension`` without a split belongs to."""
+        return self.benefits.default_tranche or next(iter(self.tranches))
+
+    @property
+    def retirement_age(self) -> float:
+        """Normal retirement age [years]."""
+        return self.benefits.retirement_age
+
+    @property
+    def accrual_rate(self) -> float:
+        """Pension per year of service as a fraction of salary [per year of service]."""
+        return self.benefits.accrual_rate
+
+    @property
+    def benefit_design(self) -> Literal["final_salary", "career_average"]:
+        """Final salary or career average revalued earnings."""
+        return self.benefits.design
+
+    @property
+    def death_in_service_lump_sum(self) -> float:
+        """Lump sum on death in service as a multiple of salary (0 = none)."""
+        return self.benefits.death_in_service_lump_sum
+
+    @property
+    def salary_growth(self) -> float:
+        """Salary growth [per annum, effective]."""
+        return self.salary.growth
+
+    @property
+    def fractional_age(self) -> Literal["udd", "constant_force"]:
+        """Survival between integer ages: uniform distribution of deaths or constant force."""
+        return self.conventions.fractional_age
+
+    @property
+    def age_convention(self) -> Literal["exact", "last_birthday", "nearest_birthday"]:
+        """How ages at the valuation date are counted."""
+        return self.conventions.age_convention
+
+    @property
+    def withdrawal(self) -> list[tuple[float, float]] | None:
+        """Withdrawal steps ``(from_age [years], rate [per annum])``; ``None`` = no withdrawals."""
+        return None if self.withdrawal_spec is None else list(self.withdrawal_spec.rates)
+
+    @property
+    def base_dir(self) -> Path:
+        """Folder that relative paths in the basis are resolved against."""
+        return self.source_path.parent
+
+    def discount_curve(self) -> Any:
+        """The discount :class:`~valuation.discounting.RateCurve` (flat rate or spot curve file)."""
+        if "discount" not in self._cache:
+            self._cache["discount"] = build_curve(self.discount, self.base_dir, "discount")
+        return self._cache["discount"]
+
+    def inflation_curve(self) -> Any:
+        """The price-inflation :class:`~valuation.discounting.RateCurve` (flat rate or curve file)."""
+        if "inflation" not in self._cache:
+            self._cache["inflation"] = build_curve(self.inflation, self.base_dir, "inflation")
+        return self._cache["inflation"]
+
+    def mortality_key(self, group: Group, sex: Literal["M", "F"]) -> str:
+        """Dotted key of the entry a member group and sex use, e.g. ``"mortality.default.M"``.
+
+        Fallback rule: the group's own entry, else (spouse only) the dependant entry, else ``default``.
+        """
+        if group not in GROUPS:
+            raise BasisError(f"unknown mortality group {group!r} (allowed: {', '.join(GROUPS)})",
+                             file=self.source_path)
+        if sex not in ("M", "F"):
+            raise BasisError(f"unknown sex {sex!r} (allowed: M, F)", file=self.source_path)
+        found = entry_key(self.mortality_entries, group, sex)
+        assert found is not None  # guaranteed by validation
+        return f"mortality.{found}.{sex}"
+
+    def mortality(self, group: Group, sex: Literal["M", "F"]) -> Any:
+        """The :class:`~valuation.mortality.basis.MortalityBasis` for a member group and sex (cached).
+
+        A group without its own entry falls back to ``default`` for that sex; ``spouse`` first falls back
+        to ``dependant``. Groups sharing an entry share one object.
+        """
+        key = self.mortality_key(group, sex)
+        if key not in self._cache:
+            from valuation.mortality.basis import MortalityBasis
+            from valuation.mortality.bundled import resolve_table
+
+            _, g, s = key.split(".")
+            entry = self.mortality_entries[g][s]  # type: ignore[index]
+            try:
+                table = resolve_table(entry.table, self.base_dir, entry.table_name)
+                improvement = build_improvement(entry.improvement, self.base_dir)
+            except (FileNotFoundError, KeyError, ValueError) as exc:
+                raise BasisError(f"key '{key}': {exc}", file=self.source_path,
+                                 fix="give a bundled table name (SULT, DEMO_M, DEMO_F) or a path relative "
+                                 "to the basis file") from exc
+            self._cache[key] = MortalityBasis(
+                table,
+                percentage=entry.percentage,
+                age_rating=entry.age_rating,
+                improvement=improvement,
+                base_year=entry.base_year,
+            )
+        return self._cache[key]
+
+    def closing_age(self, group: Group, sex: Literal["M", "F"]) -> int:
+        """Oldest integer age [years] the group's table can value after its age rating.
+
+        A life whose age (under the basis's age convention, whole years) exceeds it is beyond the table.
+        """
+        entry_k = self.mortality_key(group, sex)
+        _, g, s = entry_k.split(".")
+        rating = self.mortality_entries[g][s].age_rating  # type: ignore[index]
+        return int(self.mortality(group, sex).table.max_age) - rating
+
+    def as_dict(self) -> dict[str, Any]:
+        """The basis as loaded, JSON-serialisable (TOML key names), for a run's manifest."""
+        return self.model_dump(mode="json", by_alias=True)

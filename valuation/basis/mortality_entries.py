@@ -1,0 +1,159 @@
+"""Mortality entries of the basis: a table, its adjustments and an improvement scale, per group and sex.
+
+An entry is written in the TOML file as ``[mortality.<group>.<sex>]`` with ``<group>`` one of
+``default``, ``pensioner``, ``deferred``, ``active``, ``dependant``, ``spouse`` and ``<sex>`` ``M`` or ``F``.
+
+Fallback rule (stated here and in :meth:`valuation.basis.Basis.mortality`): a member group without its own
+entry for a sex uses ``default`` for that sex; ``spouse`` first falls back to ``dependant`` (a surviving
+spouse becomes a dependant), then to ``default``.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Annotated, Literal
+
+from pydantic import BaseModel, Field, model_validator
+
+from valuation.basis.rules import STRICT
+
+Group = Literal["pensioner", "deferred", "active", "dependant", "spouse"]
+EntryGroup = Literal["default", "pensioner", "deferred", "active", "dependant", "spouse"]
+GROUPS: tuple[str, ...] = ("pensioner", "deferred", "active", "dependant", "spouse")
+
+#: Fallback chain of each member group (first entry found wins).
+FALLBACK: dict[str, tuple[str, ...]] = {
+    "pensioner": ("pensioner", "default"),
+    "deferred": ("deferred", "default"),
+    "active": ("active", "default"),
+    "dependant": ("dependant", "default"),
+    "spouse": ("spouse", "dependant", "default"),
+}
+
+
+class NoImprovementSpec(BaseModel):
+    """No improvement after the table's base year (a static table)."""
+
+    model_config = STRICT
+    kind: Literal["none"]
+
+
+class ConstantImprovementSpec(BaseModel):
+    """The same improvement ``rate`` [per annum] at every age and year."""
+
+    model_config = STRICT
+    kind: Literal["constant"]
+    rate: float = Field(ge=-0.1, le=0.1)
+
+
+class ByAgeImprovementSpec(BaseModel):
+    """Improvement rates by age [per annum], the same in every year."""
+
+    model_config = STRICT
+    kind: Literal["by_age"]
+    ages: list[int] = Field(min_length=1)
+    rates: list[float] = Field(min_length=1)
+
+    @model_validator(mode="after")
+    def _same_length(self) -> ByAgeImprovementSpec:
+        if len(self.ages) != len(self.rates):
+            raise ValueError(f"'ages' has {len(self.ages)} values but 'rates' has {len(self.rates)}")
+        return self
+
+
+class TableImprovementSpec(BaseModel):
+    """A two-dimensional (age x calendar year) improvement table in a file, relative to the TOML file."""
+
+    model_config = STRICT
+    kind: Literal["table"]
+    file: str
+    after_last_year: Literal["hold", "long_term"] = "hold"
+    long_term_rate: float | None = Field(default=None, ge=-0.1, le=0.1)
+
+
+class ConvergenceImprovementSpec(BaseModel):
+    """Initial improvement rates by age moving to a ``long_term_rate`` over ``convergence_years``.
+
+    ``shape``: ``"linear"`` or ``"smooth"`` path from initial to long-term rates.
+    """
+
+    model_config = STRICT
+    kind: Literal["convergence"]
+    initial_ages: list[int] = Field(min_length=1)
+    initial_rates: list[float] = Field(min_length=1)
+    long_term_rate: float = Field(ge=-0.1, le=0.1)
+    start_year: int = Field(ge=1800, le=2300)
+    convergence_years: int = Field(ge=0, le=100)
+    shape: Literal["linear", "smooth"] = "linear"
+
+    @model_validator(mode="after")
+    def _same_length(self) -> ConvergenceImprovementSpec:
+        if len(self.initial_ages) != len(self.initial_rates):
+            raise ValueError(
+                f"'initial_ages' has {len(self.initial_ages)} values but 'initial_rates' has "
+                f"{len(self.initial_rates)}"
+            )
+        return self
+
+
+ImprovementSpec = Annotated[
+    NoImprovementSpec
+    | ConstantImprovementSpec
+    | ByAgeImprovementSpec
+    | TableImprovementSpec
+    | ConvergenceImprovementSpec,
+    Field(discriminator="kind"),
+]
+
+
+class MortalityEntry(BaseModel):
+    """One mortality assumption: ``percentage`` x table rates at age + ``age_rating``, improved.
+
+    ``table`` is a bundled name (``SULT``, ``DEMO_M``, ``DEMO_F``) or a file path relative to the TOML file;
+    ``table_name`` picks a column / table inside a file. ``percentage`` is a multiplier (0.95 = 95 % of the
+    table's q) and ``age_rating`` whole years added to age (+1 = rated one year older). ``base_year``
+    overrides the table's own base year for improvement.
+    """
+
+    model_config = STRICT
+    table: str = Field(min_length=1)
+    table_name: str | None = None
+    percentage: float = Field(default=1.0, gt=0.0, le=5.0)
+    age_rating: int = Field(default=0, ge=-20, le=20)
+    improvement: ImprovementSpec = NoImprovementSpec(kind="none")
+    base_year: int | None = Field(default=None, ge=1800, le=2300)
+
+
+MortalityEntries = dict[EntryGroup, dict[Literal["M", "F"], MortalityEntry]]
+
+
+def entry_key(entries: MortalityEntries, group: str, sex: str) -> str | None:
+    """The ``<group>`` whose entry a member group and sex use under the fallback rule, or ``None``."""
+    for g in FALLBACK[group]:
+        if sex in entries.get(g, {}):  # type: ignore[call-overload]
+            return g
+    return None
+
+
+def build_improvement(spec: ImprovementSpec, base_dir: Path) -> object:
+    """The improvement scale object for an entry (see :mod:`valuation.mortality.improvement`)."""
+    from valuation.mortality import improvement as imp
+
+    if isinstance(spec, NoImprovementSpec):
+        return imp.NoImprovement()
+    if isinstance(spec, ConstantImprovementSpec):
+        return imp.ConstantImprovement(spec.rate)
+    if isinstance(spec, ByAgeImprovementSpec):
+        return imp.AgeImprovement(spec.ages, spec.rates)
+    if isinstance(spec, TableImprovementSpec):
+        return imp.load_improvement_table(
+            base_dir / spec.file, after_last_year=spec.after_last_year, long_term_rate=spec.long_term_rate
+        )
+    return imp.ConvergenceScale(
+        spec.initial_ages,
+        spec.initial_rates,
+        spec.long_term_rate,
+        spec.start_year,
+        spec.convergence_years,
+        shape=spec.shape,
+    )

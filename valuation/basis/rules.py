@@ -1,0 +1,146 @@
+"""Small typed pieces of the assumptions basis: benefit rules, spouse, payment, commutation, sensitivities.
+
+Each class is a frozen pydantic v2 model with unknown keys forbidden, so a misspelt key in the TOML file is
+reported instead of silently ignored. Rates are annual effective decimals (0.05 = 5 % p.a.).
+"""
+
+from __future__ import annotations
+
+from typing import Literal
+
+from pydantic import BaseModel, ConfigDict, Field, field_validator, model_validator
+
+STRICT = ConfigDict(extra="forbid", frozen=True)
+
+Sex = Literal["M", "F"]
+IndexKind = Literal["none", "fixed", "inflation"]
+SensitivityKind = Literal[
+    "discount_rate", "inflation", "salary_growth", "life_expectancy", "long_term_improvement"
+]
+
+
+class _IndexRule(BaseModel):
+    """Shared shape of pension increases and deferred revaluation.
+
+    ``kind = "none"``: no indexation; ``"fixed"``: ``rate`` [per annum]; ``"inflation"``: the basis's price
+    inflation, limited below by ``floor`` and above by ``cap`` [per annum] (limited price indexation,
+    common practice in UK schemes).
+    """
+
+    model_config = STRICT
+    kind: IndexKind = "none"
+    rate: float = Field(default=0.0, ge=-0.5, le=0.5)
+    floor: float = Field(default=0.0, ge=-0.5, le=0.5)
+    cap: float | None = Field(default=None, ge=-0.5, le=0.5)
+
+    @model_validator(mode="after")
+    def _consistent(self) -> _IndexRule:
+        if self.kind != "fixed" and self.rate != 0.0:
+            raise ValueError(f"'rate' applies only to kind = \"fixed\" (kind is \"{self.kind}\")")
+        if self.kind != "inflation" and (self.floor != 0.0 or self.cap is not None):
+            raise ValueError(f"'floor' and 'cap' apply only to kind = \"inflation\" (kind is \"{self.kind}\")")
+        if self.cap is not None and self.cap < self.floor:
+            raise ValueError(f"cap {self.cap} is below floor {self.floor}")
+        return self
+
+
+class IncreaseRule(_IndexRule):
+    """Increases to a pension in payment [per annum]."""
+
+
+class RevaluationRule(_IndexRule):
+    """Revaluation of a deferred pension between leaving and retirement [per annum], compounded over the
+    whole deferment (common practice)."""
+
+
+class TrancheRule(BaseModel):
+    """The indexation of one slice (tranche) of pension, e.g. benefits earned before a given date."""
+
+    model_config = STRICT
+    increase: IncreaseRule = IncreaseRule()
+    revaluation: RevaluationRule = RevaluationRule()
+
+
+class SpouseAssumption(BaseModel):
+    """Spouse's (partner's) pension on the member's death.
+
+    ``proportion_married`` by member sex [fraction]; ``age_difference``: the male partner is older by this
+    many years [years]; ``fraction``: spouse's pension / member's pension. The spouse is of the opposite
+    sex (common practice). The default is no spouse's pension.
+    """
+
+    model_config = STRICT
+    proportion_married: dict[Sex, float] = Field(default_factory=lambda: {"M": 0.0, "F": 0.0})
+    age_difference: float = Field(default=3.0, ge=-20.0, le=20.0)
+    fraction: float = Field(default=0.0, ge=0.0, le=1.0)
+
+    @field_validator("proportion_married")
+    @classmethod
+    def _both_sexes(cls, v: dict[str, float]) -> dict[str, float]:
+        missing = [s for s in ("M", "F") if s not in v]
+        if missing:
+            raise ValueError(f"give a proportion for both sexes M and F (missing: {', '.join(missing)})")
+        bad = {s: p for s, p in v.items() if not 0.0 <= p <= 1.0}
+        if bad:
+            raise ValueError(f"proportions must lie between 0 and 1, got {bad}")
+        return v
+
+
+class PaymentAssumption(BaseModel):
+    """How pensions are paid: ``frequency`` times a year, in ``advance`` or in ``arrears``."""
+
+    model_config = STRICT
+    frequency: Literal[1, 2, 4, 12] = 12
+    timing: Literal["advance", "arrears"] = "advance"
+
+
+class CommutationAssumption(BaseModel):
+    """Cash taken at retirement: ``proportion`` of pension given up [fraction], ``factor`` cash per 1 p.a.
+    of pension given up [currency per currency p.a.]."""
+
+    model_config = STRICT
+    proportion: float = Field(default=0.0, ge=0.0, le=1.0)
+    factor: float = Field(default=0.0, ge=0.0, le=100.0)
+
+    @model_validator(mode="after")
+    def _factor_needed(self) -> CommutationAssumption:
+        if self.proportion > 0 and self.factor <= 0:
+            raise ValueError("a commutation 'proportion' above 0 needs a positive 'factor'")
+        return self
+
+
+class Sensitivity(BaseModel):
+    """One sensitivity (IAS 19 para 145): ``shift`` is absolute for rates (0.005 = +0.5 % p.a.) and in
+    years of life expectancy at 65 for ``life_expectancy``."""
+
+    model_config = STRICT
+    name: str = Field(min_length=1)
+    kind: SensitivityKind
+    shift: float
+
+
+class Thresholds(BaseModel):
+    """Warning thresholds for member data: the record is still valued, but listed (common practice)."""
+
+    model_config = STRICT
+    large_pension: float = Field(default=100_000.0, gt=0)
+    tiny_pension: float = Field(default=100.0, ge=0)
+    old_age: float = Field(default=100.0, gt=0)
+
+
+class RateSpec(BaseModel):
+    """A flat ``rate`` [per annum, effective] or a spot ``curve`` file (CSV: term, rate), exactly one.
+
+    ``extrapolation`` applies beyond the curve's last term.
+    """
+
+    model_config = STRICT
+    rate: float | None = Field(default=None, gt=-0.5, lt=0.5)
+    curve: str | None = None
+    extrapolation: Literal["flat_spot", "flat_forward"] = "flat_spot"
+
+    @model_validator(mode="after")
+    def _exactly_one(self) -> RateSpec:
+        if (self.rate is None) == (self.curve is None):
+            raise ValueError("give exactly one of 'rate' (a flat rate) or 'curve' (a CSV file of term, rate)")
+        return self

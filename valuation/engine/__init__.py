@@ -1,0 +1,1 @@
+"""The valuation run: benefit projection, cash flows, liabilities, sensitivities and results."""

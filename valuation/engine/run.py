@@ -1,0 +1,325 @@
+"""The valuation run: value a scheme on a basis, with sensitivities, and assemble the results.
+
+``value_scheme(members_path, basis_path)`` is the one call a notebook user needs; it returns a
+:class:`~valuation.engine.results.ValuationResult` with polars data frames. ``write_run`` writes a run
+folder (summary.json, cashflows.csv, exceptions.csv, liabilities.csv, members.parquet, ...).
+
+References
+----------
+IAS 19 *Employee Benefits*: paras 67-69 (projected unit credit), 83 (discount rate), 145 (sensitivities),
+147 (maturity profile and weighted average duration).
+"""
+
+from __future__ import annotations
+
+import time
+from collections.abc import Callable, Iterable
+from datetime import datetime, timezone
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import polars as pl
+
+from valuation import __version__
+from valuation.discounting import present_value, single_equivalent_rate
+from valuation.engine.project import Projection, Valuer
+from valuation.engine.results import STATUSES, ValuationResult
+from valuation.engine.scenario import (
+    SEXES,
+    Scenario,
+    cohort_expectancy_at,
+    period_expectancy_at,
+    scenarios_from_basis,
+)
+from valuation.manifest import file_sha256
+from valuation.survival import age_at
+
+#: Members are valued in chunks of this many records, which keeps memory flat for any scheme size.
+DEFAULT_CHUNK = 200_000
+#: Shift of the discount curve for the effective duration [per annum].
+EFFECTIVE_SHIFT = 0.001
+
+Progress = Callable[[str, int, int], None]
+
+
+def _chunks(records: pl.DataFrame, size: int) -> Iterable[pl.DataFrame]:
+    for off in range(0, records.height, size):
+        yield records.slice(off, size)
+
+
+def project_records(
+    records: pl.DataFrame, basis: Any, scenario: Scenario = Scenario(), *, base_multiplier: float = 1.0,
+    chunk_size: int = DEFAULT_CHUNK,
+) -> Projection:
+    """Value ``records`` under one scenario, chunk by chunk, and join the per-member values."""
+    valuer = Valuer(basis, scenario, base_multiplier)
+    parts = [valuer.value(chunk) for chunk in _chunks(records, chunk_size)]
+    if not parts:
+        return valuer.value(records)
+    if len(parts) == 1:
+        return parts[0]
+    return Projection(
+        own=np.vstack([p.own for p in parts]),
+        spouse=np.vstack([p.spouse for p in parts]),
+        lump=np.concatenate([p.lump for p in parts]),
+        annuity_factor=np.concatenate([p.annuity_factor for p in parts]),
+        q_next=np.concatenate([p.q_next for p in parts]),
+        amount_now=np.concatenate([p.amount_now for p in parts]),
+        cashflow=sum((p.cashflow for p in parts), np.zeros_like(parts[0].cashflow)),
+        tranches=parts[0].tranches,
+    )
+
+
+def total_liability(records: pl.DataFrame, basis: Any, scenario: Scenario = Scenario(), *,
+                    base_multiplier: float = 1.0, chunk_size: int = DEFAULT_CHUNK) -> float:
+    """Total liability [currency] of ``records`` under one scenario (no per-member results kept)."""
+    valuer = Valuer(basis, scenario, base_multiplier)
+    return float(sum(valuer.value(chunk).liability.sum() for chunk in _chunks(records, chunk_size)))
+
+
+def _month_times(months: int) -> np.ndarray:
+    return np.arange(months) / 12.0
+
+
+def cashflow_measures(cash: np.ndarray, curve: Any) -> dict[str, float]:
+    """PV, Macaulay, modified and effective duration and the single equivalent rate of monthly cash flows.
+
+    References
+    ----------
+    Macaulay duration sum t v^t CF_t / sum v^t CF_t; modified = Macaulay / (1 + i) at the single
+    equivalent rate i; effective = (PV(-h) - PV(+h)) / (2 h PV) [DHW 2013, section 14.4; METHODS.md].
+    """
+    t = _month_times(len(cash))
+    nz = cash != 0
+    t, cf = t[nz], cash[nz]
+    pv = float(present_value(cf, t, curve))
+    v = curve.discount_factors(t)
+    macaulay = float((t * v * cf).sum() / (v * cf).sum()) if pv else 0.0
+    sedr = float(single_equivalent_rate(cf, t, curve)) if pv else float("nan")
+    up = float(present_value(cf, t, curve.shifted(EFFECTIVE_SHIFT)))
+    down = float(present_value(cf, t, curve.shifted(-EFFECTIVE_SHIFT)))
+    effective = (down - up) / (2 * EFFECTIVE_SHIFT * pv) if pv else 0.0
+    return {
+        "present_value": pv,
+        "macaulay": macaulay,
+        "modified": macaulay / (1.0 + sedr) if pv else 0.0,
+        "effective": effective,
+        "single_equivalent_discount_rate": sedr,
+    }
+
+
+def _yearly(cash: np.ndarray, curve: Any) -> pl.DataFrame:
+    months = cash.shape[1]
+    n_years = months // 12
+    by_year = cash[:, : n_years * 12].reshape(len(STATUSES), n_years, 12).sum(axis=2)
+    v = curve.discount_factors(_month_times(months))[: n_years * 12]
+    disc = (cash[:, : n_years * 12] * v).reshape(len(STATUSES), n_years, 12).sum(axis=2)
+    total = by_year.sum(axis=0)
+    last = int(np.flatnonzero(total > 1e-9).max()) + 1 if np.any(total > 1e-9) else 1
+    data: dict[str, Any] = {"year": np.arange(1, last + 1)}
+    for i, st in enumerate(STATUSES):
+        data[st] = by_year[i, :last]
+    data["total"] = total[:last]
+    data["discount_factor"] = curve.discount_factors(np.arange(last) + 0.5)
+    for i, st in enumerate(STATUSES):
+        data[f"discounted_{st}"] = disc[i, :last]
+    data["discounted_total"] = disc.sum(axis=0)[:last]
+    return pl.DataFrame(data)
+
+
+def _liability_cells(records: pl.DataFrame, proj: Projection) -> pl.DataFrame:
+    frames = []
+    for j, tr in enumerate(proj.tranches):
+        for benefit, arr in (("member_pension", proj.own[:, j]), ("spouse_pension", proj.spouse[:, j])):
+            frames.append(pl.DataFrame({"status": records["status"], "sex": records["sex"],
+                                        "tranche": tr, "benefit": benefit, "liability": arr}))
+    frames.append(pl.DataFrame({"status": records["status"], "sex": records["sex"], "tranche": "all",
+                                "benefit": "lump_sum", "liability": proj.lump}))
+    cells = pl.concat(frames).group_by(["status", "sex", "tranche", "benefit"]).agg(pl.col("liability").sum())
+    order = {s: i for i, s in enumerate(STATUSES)}
+    return cells.with_columns(pl.col("status").replace_strict(order, default=9).alias("_o")).sort(
+        ["_o", "sex", "tranche", "benefit"]).drop("_o")
+
+
+def _by(frame: pl.DataFrame, col: str, keys: Iterable[str]) -> dict[str, float]:
+    sums = dict(frame.group_by(col).agg(pl.col("liability").sum()).iter_rows())
+    return {k: float(sums.get(k, 0.0)) for k in keys}
+
+
+def _assumptions_summary(basis: Any) -> dict[str, Any]:
+    out: dict[str, Any] = {}
+    for name, fn in (("discount", basis.discount_curve), ("inflation", basis.inflation_curve)):
+        curve = fn()
+        out[f"{name}_rate_flat" if curve.is_flat else f"{name}_curve_10y"] = float(curve.spot(np.array([10.0]))[0])
+    out.update({
+        "salary_growth": float(basis.salary_growth),
+        "retirement_age": float(basis.retirement_age),
+        "payment_frequency": int(basis.payment.frequency),
+        "payment_timing": str(basis.payment.timing),
+        "proportion_married": {k: float(v) for k, v in basis.spouse.proportion_married.items()},
+        "spouse_age_difference": float(basis.spouse.age_difference),
+        "spouse_fraction": float(basis.spouse.fraction),
+        "commutation_proportion": float(basis.commutation.proportion),
+        "fractional_age": str(basis.fractional_age),
+        "age_convention": str(basis.age_convention),
+    })
+    return out
+
+
+def life_expectancies(basis: Any) -> pl.DataFrame:
+    """Cohort expectancy at 65 for members aged 65 and 45 now, and period expectancy at 65, by sex.
+
+    Uses the pensioner mortality of each sex (common practice for disclosures; METHODS.md).
+    """
+    year = basis.valuation_date.year
+    rows = []
+    for sex in SEXES:
+        mb = basis.mortality("pensioner", sex)
+        for age_now in (65, 45):
+            rows.append({"sex": sex, "age_now": age_now, "at_age": 65, "basis": "cohort",
+                         "years": cohort_expectancy_at(mb, year, age_now, 65.0, basis.fractional_age)})
+        rows.append({"sex": sex, "age_now": 65, "at_age": 65, "basis": "period",
+                     "years": period_expectancy_at(mb, year, 65.0, basis.fractional_age)})
+    return pl.DataFrame(rows)
+
+
+def value_members(
+    member_data: Any,
+    basis: Any,
+    *,
+    q_multiplier: float = 1.0,
+    sensitivities: bool = True,
+    chunk_size: int = DEFAULT_CHUNK,
+    progress: Progress | None = None,
+    input_files: Iterable[str | Path] = (),
+) -> ValuationResult:
+    """Value the records of ``member_data`` (from ``read_members``) on ``basis`` (from ``load_basis``).
+
+    ``q_multiplier`` scales every mortality rate (used by the experience analysis to re-value at an
+    implied percentage of the table). Returns the full results; nothing is written.
+    """
+    started = datetime.now(timezone.utc)
+    t0 = time.perf_counter()
+    records: pl.DataFrame = member_data.records
+    scenarios = scenarios_from_basis(basis, basis.valuation_date.year) if sensitivities else []
+    steps = 2 + len(scenarios)
+    if progress:
+        progress("valuing", 0, steps)
+    proj = project_records(records, basis, Scenario(), base_multiplier=q_multiplier, chunk_size=chunk_size)
+    liability = proj.liability
+    total = float(liability.sum())
+    if progress:
+        progress("valuing", 1, steps)
+
+    active = records["status"].to_numpy() == "active"
+    abo = total_liability(records.filter(pl.Series(active)), basis, Scenario(no_salary_growth=True),
+                          base_multiplier=q_multiplier, chunk_size=chunk_size) if active.any() else 0.0
+    if progress:
+        progress("valuing", 2, steps)
+    service = records["service_years"].fill_null(0.0).to_numpy().astype(float)
+    pension_benefit = proj.own.sum(axis=1) + proj.spouse.sum(axis=1)
+    if basis.benefit_design == "career_average":
+        accrued = proj.amount_now
+        next_unit = float(basis.accrual_rate) * records["salary"].fill_null(0.0).to_numpy().astype(float) * (
+            1.0 + basis.salary_growth) ** 0.5
+    else:
+        accrued = service
+        next_unit = np.ones(records.height)
+    per_unit = np.divide(pension_benefit, accrued, out=np.zeros(records.height), where=accrued > 0)
+    service_cost = float((per_unit * next_unit)[active].sum())
+
+    sens_rows = []
+    for k, sc in enumerate(scenarios, start=3):
+        value = total_liability(records, basis, sc, base_multiplier=q_multiplier, chunk_size=chunk_size)
+        sens_rows.append({"name": sc.name, "kind": sc.kind, "shift": sc.shift, "liability": value,
+                          "change_pct": 100.0 * (value / total - 1.0) if total else 0.0})
+        if progress:
+            progress("sensitivities", k, steps)
+    sens = pl.DataFrame(sens_rows, schema={"name": pl.Utf8, "kind": pl.Utf8, "shift": pl.Float64,
+                                           "liability": pl.Float64, "change_pct": pl.Float64})
+
+    curve = basis.discount_curve()
+    cash_total = proj.cashflow.sum(axis=0)
+    measures = cashflow_measures(cash_total, curve)
+    cashflows = _yearly(proj.cashflow, curve)
+    cells = _liability_cells(records, proj)
+    le = life_expectancies(basis)
+
+    deaths = pl.DataFrame({"status": records["status"], "sex": records["sex"], "lives": proj.q_next,
+                           "amounts": proj.q_next * proj.amount_now})
+    deaths = deaths.group_by(["status", "sex"]).agg(pl.col("lives").sum(), pl.col("amounts").sum()).sort(
+        ["status", "sex"])
+
+    ages = np.asarray(age_at(
+        records["date_of_birth"].to_numpy().astype("datetime64[D]"), np.datetime64(basis.valuation_date, "D"),
+        basis.age_convention), dtype=float)
+    members = pl.DataFrame({
+        "member_id": records["member_id"], "status": records["status"], "sex": records["sex"],
+        "age": ages, "pension": proj.amount_now, "liability": liability,
+        "member_liability": proj.own.sum(axis=1), "spouse_liability": proj.spouse.sum(axis=1),
+        "lump_sum_liability": proj.lump, "annuity_factor": proj.annuity_factor,
+        "q_next_year": proj.q_next,
+    })
+
+    counts = member_data.counts_by_status()
+    by_status_counts = {
+        r["status"]: {"read": int(r["read"]), "valued": int(r["valued"]), "excluded": int(r["excluded"])}
+        for r in counts.iter_rows(named=True) if r["status"] in STATUSES
+    }
+    inputs = {str(p): file_sha256(p) for p in [member_data.path, basis.source_path, *input_files] if p is not None}
+    run_seconds = time.perf_counter() - t0
+    summary: dict[str, Any] = {
+        "valuation_date": basis.valuation_date.isoformat(),
+        "basis_name": basis.name,
+        "records": {"read": int(member_data.read), "valued": int(member_data.valued),
+                    "excluded": int(member_data.excluded), "by_status": by_status_counts},
+        "liability": {
+            "total": total,
+            "by_status": _by(cells, "status", STATUSES),
+            "by_sex": _by(cells, "sex", SEXES),
+            "by_tranche": _by(cells.filter(pl.col("tranche") != "all"), "tranche", proj.tranches)
+            | {"lump_sums": float(proj.lump.sum())},
+        },
+        "active_measures": {"projected_obligation": float(liability[active].sum()),
+                            "accrued_benefit_obligation": abo, "current_service_cost": service_cost},
+        "duration": {k: measures[k] for k in ("macaulay", "modified", "effective")},
+        "single_equivalent_discount_rate": measures["single_equivalent_discount_rate"],
+        "cashflow_present_value": measures["present_value"],
+        "sensitivities": sens.to_dicts(),
+        "life_expectancy": le.to_dicts(),
+        "expected_deaths_next_year": {
+            "lives": float(deaths["lives"].sum()), "amounts": float(deaths["amounts"].sum()),
+            "by_group": deaths.to_dicts(),
+        },
+        "assumptions": _assumptions_summary(basis),
+        "manifest": {
+            "tool_version": __version__,
+            "inputs": inputs,
+            "basis": basis.as_dict(),
+            "settings": {"sensitivities": sensitivities, "q_multiplier": q_multiplier, "chunk_size": chunk_size},
+            "started_at": started.isoformat(timespec="seconds"),
+            "run_seconds": round(run_seconds, 3),
+        },
+    }
+    return ValuationResult(
+        summary=summary, liabilities=cells, cashflows=cashflows, members=members, sensitivities=sens,
+        life_expectancy=le, expected_deaths=deaths, exceptions=member_data.exceptions, basis=basis,
+    )
+
+
+def value_scheme(members_path: str | Path, basis_path: str | Path, **kw: Any) -> ValuationResult:
+    """Read the member file and the basis, then value the scheme (see :func:`value_members`).
+
+    Example
+    -------
+    >>> from valuation import value_scheme                      # doctest: +SKIP
+    >>> res = value_scheme("member_data_demo/members.csv", "assumptions/demo_basis.toml")  # doctest: +SKIP
+    >>> res.summary["liability"]["total"]                       # doctest: +SKIP
+    """
+    from valuation.basis import load_basis
+    from valuation.members import read_members
+
+    basis = load_basis(basis_path)
+    data = read_members(members_path, basis)
+    return value_members(data, basis, **kw)

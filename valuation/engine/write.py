@@ -1,0 +1,82 @@
+"""Writing a run folder atomically: everything goes to a temporary folder beside the target, which is
+renamed into place only when every file is complete, so an interrupted run leaves no half-written folder.
+"""
+
+from __future__ import annotations
+
+import shutil
+import tempfile
+from collections.abc import Callable
+from contextlib import contextmanager
+from pathlib import Path
+from typing import Iterator
+
+import polars as pl
+
+from valuation.engine.results import ValuationResult
+from valuation.manifest import dump_json
+
+#: Per-member results are also written as CSV (and to the workbook) up to this many members.
+SMALL_SCHEME = 50_000
+
+ExtraWriter = Callable[[ValuationResult, Path], None]
+
+
+@contextmanager
+def atomic_folder(target: str | Path, *, overwrite: bool = True) -> Iterator[Path]:
+    """Yield a temporary folder that replaces ``target`` when the block ends without an exception."""
+    target = Path(target)
+    target.parent.mkdir(parents=True, exist_ok=True)
+    tmp = Path(tempfile.mkdtemp(prefix=f".{target.name}.partial-", dir=target.parent))
+    try:
+        yield tmp
+    except BaseException:
+        shutil.rmtree(tmp, ignore_errors=True)
+        raise
+    if target.exists():
+        if not overwrite:
+            shutil.rmtree(tmp, ignore_errors=True)
+            raise FileExistsError(f"{target} already exists")
+        old = target.with_name(f".{target.name}.old-{tmp.name.rsplit('-', 1)[-1]}")
+        target.rename(old)
+        tmp.rename(target)
+        shutil.rmtree(old, ignore_errors=True)
+    else:
+        tmp.rename(target)
+
+
+def write_tables(result: ValuationResult, folder: Path) -> None:
+    """summary.json, cashflows.csv, exceptions.csv, liabilities.csv, sensitivities.csv, members.parquet..."""
+    dump_json(result.summary, folder / "summary.json")
+    dump_json(result.summary["manifest"], folder / "manifest.json")
+    result.cashflows.write_csv(folder / "cashflows.csv")
+    result.exceptions.write_csv(folder / "exceptions.csv")
+    result.liabilities.write_csv(folder / "liabilities.csv")
+    result.sensitivities.write_csv(folder / "sensitivities.csv")
+    result.life_expectancy.write_csv(folder / "life_expectancy.csv")
+    result.expected_deaths.write_csv(folder / "expected_deaths.csv")
+    result.members.write_parquet(folder / "members.parquet")
+    if result.members.height <= SMALL_SCHEME:
+        result.members.write_csv(folder / "members.csv")
+
+
+def write_run(result: ValuationResult, out_dir: str | Path, *, extra: list[ExtraWriter] | None = None) -> Path:
+    """Write the run folder ``out_dir`` atomically and return its path.
+
+    ``extra`` writers (the Excel workbook, the HTML summary) run inside the same temporary folder.
+    """
+    out_dir = Path(out_dir)
+    with atomic_folder(out_dir) as tmp:
+        write_tables(result, tmp)
+        for writer in extra or []:
+            writer(result, tmp)
+    return out_dir
+
+
+def read_summary(folder: str | Path) -> dict:
+    import json
+
+    return json.loads((Path(folder) / "summary.json").read_text(encoding="utf-8"))
+
+
+__all__ = ["atomic_folder", "write_run", "write_tables", "read_summary", "SMALL_SCHEME", "pl"]

@@ -1,0 +1,224 @@
+"""Expected against actual deaths: the whole analysis, from files to an :class:`ExperienceResult`.
+
+References
+----------
+.. [BP] Benjamin, B. and Pollard, J.H., *The Analysis of Mortality and Other Actuarial Statistics*,
+   3rd ed., 1993 (exposed to risk; actual versus expected deaths).
+.. [G] Garwood, F. (1936), *Biometrika* 28, 437-442 (exact Poisson limits).
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Any
+
+import polars as pl
+
+from valuation.experience.cells import RateLookup, build_cells
+from valuation.experience.checks import EXCEPTION_SCHEMA, check_events, empty_exceptions
+from valuation.experience.events import read_events
+from valuation.experience.implied import implied_percentages, liability_effect
+from valuation.experience.result import TABLE_COLUMNS, ExperienceResult
+from valuation.experience.settings import ExperienceSettings
+from valuation.experience.tables import DIMENSIONS, ae_table, default_band_edges, pension_band_labels
+from valuation.members.schema import GROUP_OF_STATUS
+
+
+def _conform(df: pl.DataFrame) -> pl.DataFrame:
+    return df.select(
+        [
+            pl.col(c).cast(t) if c in df.columns else pl.lit(None, t).alias(c)
+            for c, t in EXCEPTION_SCHEMA.items()
+        ]
+    )
+
+
+def analyse_records(
+    records: pl.DataFrame,
+    deaths: pl.DataFrame,
+    exits: pl.DataFrame | None,
+    lookup: RateLookup,
+    settings: ExperienceSettings,
+    *,
+    excluded_ids: pl.Series | None = None,
+    member_exceptions: pl.DataFrame | None = None,
+    member_counts: dict[str, int] | None = None,
+    files: dict[str, str] | None = None,
+    date_format: str | None = None,
+) -> ExperienceResult:
+    """The analysis on frames already read (no liability effect: see :func:`analyse_experience`).
+
+    Parameters
+    ----------
+    records
+        Valued start membership: ``row, member_id, status, sex, date_of_birth`` (Date), ``pension``
+        [currency p.a.].
+    deaths, exits
+        Frames from :func:`valuation.experience.events.read_events`.
+    lookup
+        ``lookup(group, sex)`` -> mortality with ``q(ages, years)``, ``mu(ages, years)`` (and ``percentage``).
+    settings
+        The analysis settings.
+    excluded_ids, member_exceptions, member_counts
+        What reading the start membership excluded, its exceptions and its ``read/valued/excluded`` counts.
+    files
+        Display names: ``members``, ``deaths``, ``exits``.
+    date_format
+        The accepted non-ISO date pattern (quoted in messages).
+
+    References
+    ----------
+    [BP] actual versus expected deaths by lives and by amounts; [G] exact Poisson limits.
+    """
+    files = {"members": "", "deaths": "", "exits": "", **(files or {})}
+    excluded_ids = excluded_ids if excluded_ids is not None else pl.Series("member_id", [], pl.String)
+    checked = check_events(
+        deaths,
+        exits,
+        valued_ids=records["member_id"],
+        excluded_ids=excluded_ids,
+        period_start=settings.period_start,
+        period_end=settings.period_end,
+        deaths_file=files["deaths"],
+        exits_file=files["exits"],
+        members_file=files["members"],
+        date_format=date_format,
+    )
+    edges = settings.pension_band_edges
+    if edges is None:
+        edges = default_band_edges(records["pension"])
+    bands, band_order = pension_band_labels(records["pension"], edges)
+    members = records.select(
+        pl.col("row").cast(pl.Int64),
+        pl.col("member_id").cast(pl.String),
+        pl.col("status").replace_strict(GROUP_OF_STATUS, default=pl.col("status")).alias("group"),
+        pl.col("sex"),
+        pl.col("date_of_birth"),
+        pl.col("pension").cast(pl.Float64),
+    ).with_columns(bands)
+    cells, closing = build_cells(
+        members, checked.deaths, checked.exits, lookup, settings, members_file=files["members"]
+    )
+    table = ae_table(
+        cells, confidence=settings.confidence, overdispersion=settings.overdispersion, band_order=band_order
+    )
+    overall = table.filter(pl.col("dimension") == "overall")
+    if overall.height:
+        o = overall.row(0, named=True)
+        ae, lo, hi = o["ae_amounts"], o["ae_amounts_lower"], o["ae_amounts_upper"]
+    else:
+        ae = lo = hi = float("nan")
+    groups = [tuple(r) for r in members.select("group", "sex").unique().sort(["group", "sex"]).iter_rows()]
+    implied = implied_percentages(ae, lo, hi, groups, lookup)
+
+    exceptions = pl.concat(
+        [
+            _conform(member_exceptions if member_exceptions is not None else empty_exceptions()),
+            checked.exceptions,
+            closing,
+        ],
+        how="vertical",
+    )
+    counts: dict[str, Any] = {
+        "members": member_counts or {"read": records.height, "valued": records.height, "excluded": 0},
+        **checked.counts,
+    }
+    counts["deaths"]["in_cells"] = int(cells["deaths"].sum())
+    counts["deaths"]["left_out_at_closing_age"] = counts["deaths"]["counted"] - counts["deaths"]["in_cells"]
+    public = table.select(TABLE_COLUMNS)
+    summary: dict[str, Any] = {
+        "settings": settings.as_dict(),
+        "pension_band_edges": list(edges),
+        "records": counts,
+        "overall": public.filter(pl.col("dimension") == "overall").to_dicts()[0] if overall.height else None,
+        "by_group": {
+            d: public.filter(pl.col("dimension") == d).drop("dimension").to_dicts() for d in DIMENSIONS[1:]
+        },
+        "implied": implied,
+        "exceptions": {
+            "total": exceptions.height,
+            "excluded": int((exceptions["severity"] == "excluded").sum()),
+            "warning": int((exceptions["severity"] == "warning").sum()),
+        },
+    }
+    return ExperienceResult(
+        settings=settings, table=public, implied=implied, exceptions=exceptions, summary=summary, cells=cells
+    )
+
+
+def analyse_experience(
+    members_path: str | Path,
+    deaths_path: str | Path,
+    basis_path_or_basis: Any,
+    settings: ExperienceSettings,
+    *,
+    exits_path: str | Path | None = None,
+    valuation_members_path: str | Path | None = None,
+) -> ExperienceResult:
+    """Actual against expected deaths over a period, with the implied mortality level.
+
+    Parameters
+    ----------
+    members_path
+        Membership at the start of the period (same schema and basis mapping as a valuation file).
+    deaths_path
+        Deaths in the period: member_id, date_of_death, optional pension_at_death [currency p.a.].
+    basis_path_or_basis
+        The basis (TOML path or a loaded ``Basis``): its mortality for each status group and sex gives
+        the expected deaths; its mapping gives the date format and column names.
+    settings
+        Period, exposure method, confidence level, overdispersion, late-reporting allowance.
+    exits_path
+        Other exits (member_id, exit_date, reason); exposure stops at the exit.
+    valuation_members_path
+        Membership at the valuation date: when given, the liability is re-valued with every q scaled by
+        A/E by amounts; when not, the liability effect is skipped and the result says so.
+
+    Returns
+    -------
+    ExperienceResult
+
+    References
+    ----------
+    [BP] exposed to risk and actual versus expected deaths; [G] exact Poisson limits.
+    """
+    from valuation.basis import load_basis
+    from valuation.members import read_members
+
+    basis = (
+        load_basis(basis_path_or_basis)
+        if isinstance(basis_path_or_basis, str | Path)
+        else basis_path_or_basis
+    )
+    mapping = basis.mapping
+    date_format = mapping.date_format
+    column_map = dict(mapping.columns)
+    data = read_members(members_path, basis)
+    deaths = read_events(deaths_path, "deaths", date_format=date_format, column_map=column_map)
+    exits = (
+        read_events(exits_path, "exits", date_format=date_format, column_map=column_map)
+        if exits_path
+        else None
+    )
+    member_exc = data.exceptions
+    excluded_ids = (
+        member_exc.filter(pl.col("severity") == "excluded")["member_id"]
+        if member_exc.height
+        else pl.Series([], dtype=pl.String)
+    )
+    result = analyse_records(
+        data.records,
+        deaths,
+        exits,
+        basis.mortality,
+        settings,
+        excluded_ids=excluded_ids,
+        member_exceptions=member_exc,
+        member_counts={"read": data.read, "valued": data.valued, "excluded": data.excluded},
+        files={"members": str(members_path), "deaths": str(deaths_path), "exits": str(exits_path or "")},
+        date_format=date_format,
+    )
+    effect = liability_effect(valuation_members_path, basis, result.implied["multiplier"])
+    result.implied.update(effect)
+    result.summary["implied"] = result.implied
+    return result

@@ -1,0 +1,335 @@
+"""Checks of the deaths and exits rows against the start membership and the period.
+
+Nothing is dropped silently: every row that is not used becomes an exception with severity ``excluded``,
+and a row that is used with a caveat gets severity ``warning``. A row with several problems is counted once
+but every problem is listed. Invariants: deaths read = counted + excluded; exits read = applied + excluded.
+
+Rules (common practice in mortality investigations, stated here once):
+
+* a death or exit must name a member of the start membership that was valued (not excluded);
+* its date must parse and fall in the period: after ``period_start`` and on or before ``period_end``;
+* two deaths (or two exits) for one member: the earliest (then the first row) is kept, the others excluded;
+* a member with both a death and an exit: if the exit comes first, the death is excluded (the member had
+  left observation); otherwise the exit is excluded (the death ends observation);
+* a pension at death that is blank is fine (the record's pension is used); one that is not a number >= 0
+  is a warning and the record's pension is used.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from datetime import date
+
+import polars as pl
+
+EXCEPTION_SCHEMA: dict[str, type[pl.DataType] | pl.DataType] = {
+    "file": pl.String,
+    "row": pl.Int64,
+    "member_id": pl.String,
+    "column": pl.String,
+    "value": pl.String,
+    "reason": pl.String,
+    "severity": pl.String,
+}
+
+
+def empty_exceptions() -> pl.DataFrame:
+    """An exceptions frame with no rows and the shared columns."""
+    return pl.DataFrame(schema=EXCEPTION_SCHEMA)
+
+
+@dataclass
+class CheckedEvents:
+    """Deaths and exits that passed the checks, and the exceptions raised by the others."""
+
+    deaths: pl.DataFrame  # member_id, row, date, pension_at_death (f64 or null)
+    exits: pl.DataFrame  # member_id, row, date, reason
+    exceptions: pl.DataFrame
+    counts: dict[str, dict[str, int]]
+
+
+def _problems(
+    df: pl.DataFrame, file: str, checks: list[tuple[pl.Expr, str, pl.Expr, pl.Expr, str]]
+) -> pl.DataFrame:
+    frames = []
+    for flag, column, value, reason, severity in checks:
+        hit = df.filter(flag)
+        if hit.height:
+            frames.append(
+                hit.select(
+                    pl.lit(file).alias("file"),
+                    pl.col("row"),
+                    pl.col("member_id"),
+                    pl.lit(column).alias("column"),
+                    value.cast(pl.String).alias("value"),
+                    reason.alias("reason"),
+                    pl.lit(severity).alias("severity"),
+                )
+            )
+    return pl.concat(frames, how="vertical") if frames else empty_exceptions()
+
+
+def _basic_checks(
+    df: pl.DataFrame,
+    *,
+    what: str,
+    date_column: str,
+    valued: pl.Series,
+    excluded: pl.Series,
+    start: date,
+    end: date,
+    members_file: str,
+    date_format: str | None,
+) -> tuple[pl.DataFrame, list[tuple[pl.Expr, str, pl.Expr, pl.Expr, str]]]:
+    expected = "YYYY-MM-DD" + (f" or {date_format}" if date_format else "")
+    flags = df.with_columns(
+        (pl.col("member_id").is_null()).alias("_no_id"),
+        (pl.col("date").is_null()).alias("_bad_date"),
+        (
+            pl.col("member_id").is_not_null() & pl.col("member_id").is_in(excluded.implode()).fill_null(False)
+        ).alias("_excluded_member"),
+    ).with_columns(
+        (
+            pl.col("member_id").is_not_null()
+            & ~pl.col("member_id").is_in(valued.implode()).fill_null(False)
+            & ~pl.col("_excluded_member")
+        ).alias("_unknown"),
+        (pl.col("date") <= start).fill_null(False).alias("_before"),
+        (pl.col("date") > end).fill_null(False).alias("_after"),
+    )
+    s, e = start.isoformat(), end.isoformat()
+    checks = [
+        (pl.col("_no_id"), "member_id", pl.lit(""), pl.lit(f"{what} row has no member_id"), "excluded"),
+        (
+            pl.col("_bad_date"),
+            date_column,
+            pl.col("date_text").fill_null(""),
+            pl.format(
+                f"{date_column} '{{}}' is not a date (expected {expected})", pl.col("date_text").fill_null("")
+            ),
+            "excluded",
+        ),
+        (
+            pl.col("_unknown"),
+            "member_id",
+            pl.col("member_id"),
+            pl.format(
+                f"{what} for unknown member '{{}}': not in the start membership ({members_file})",
+                pl.col("member_id"),
+            ),
+            "excluded",
+        ),
+        (
+            pl.col("_excluded_member"),
+            "member_id",
+            pl.col("member_id"),
+            pl.format(
+                f"{what} for member '{{}}' who was excluded from the start membership ({members_file}; see its "
+                "exceptions): not counted",
+                pl.col("member_id"),
+            ),
+            "excluded",
+        ),
+        (
+            pl.col("_before"),
+            date_column,
+            pl.col("date_text"),
+            pl.format(
+                f"{what} on {{}} is on or before the period start {s}: the member should not be in the start "
+                "membership; not counted",
+                pl.col("date").dt.to_string("%Y-%m-%d"),
+            ),
+            "excluded",
+        ),
+        (
+            pl.col("_after"),
+            date_column,
+            pl.col("date_text"),
+            pl.format(
+                f"{what} on {{}} is outside the period ({s} to {e}): after the period end; not counted",
+                pl.col("date").dt.to_string("%Y-%m-%d"),
+            ),
+            "excluded",
+        ),
+    ]
+    flags = flags.with_columns(
+        (
+            pl.col("_no_id")
+            | pl.col("_bad_date")
+            | pl.col("_unknown")
+            | pl.col("_excluded_member")
+            | pl.col("_before")
+            | pl.col("_after")
+        ).alias("_fail")
+    )
+    return flags, checks
+
+
+def _duplicates(ok: pl.DataFrame, what: str, date_column: str) -> tuple[pl.DataFrame, list]:
+    ranked = ok.sort(["member_id", "date", "row"]).with_columns(
+        pl.col("row").first().over("member_id").alias("_kept_row"),
+        pl.col("date").first().over("member_id").dt.to_string("%Y-%m-%d").alias("_kept_date"),
+        (pl.int_range(pl.len()).over("member_id") > 0).alias("_dup"),
+    )
+    check = (
+        pl.col("_dup"),
+        date_column,
+        pl.col("date_text"),
+        pl.format(
+            f"second {what} record for member '{{}}' (row {{}} on {{}} is kept): not counted",
+            pl.col("member_id"),
+            pl.col("_kept_row"),
+            pl.col("_kept_date"),
+        ),
+        "excluded",
+    )
+    return ranked, [check]
+
+
+def check_events(
+    deaths: pl.DataFrame,
+    exits: pl.DataFrame | None,
+    *,
+    valued_ids: pl.Series,
+    excluded_ids: pl.Series,
+    period_start: date,
+    period_end: date,
+    deaths_file: str,
+    exits_file: str = "",
+    members_file: str = "",
+    date_format: str | None = None,
+) -> CheckedEvents:
+    """Apply the rules in the module docstring; vectorised with polars (no per-row Python loops).
+
+    Parameters
+    ----------
+    deaths, exits
+        Frames from :func:`valuation.experience.events.read_events` (``exits`` may be None).
+    valued_ids, excluded_ids
+        Member ids valued from, and excluded from, the start membership.
+    period_start, period_end
+        The investigation period: events on days after ``period_start`` up to ``period_end`` count.
+    deaths_file, exits_file, members_file
+        Names written into the exceptions and messages.
+    date_format
+        The accepted non-ISO date pattern, quoted in messages.
+    """
+    valued_ids = valued_ids.cast(pl.String)
+    excluded_ids = excluded_ids.cast(pl.String).drop_nulls().unique()
+    excluded_ids = excluded_ids.filter(~excluded_ids.is_in(valued_ids.implode()))
+    common = dict(
+        valued=valued_ids,
+        excluded=excluded_ids,
+        start=period_start,
+        end=period_end,
+        members_file=members_file,
+        date_format=date_format,
+    )
+    d_flags, d_checks = _basic_checks(deaths, what="death", date_column="date_of_death", **common)
+    d_ranked, d_dup = _duplicates(d_flags.filter(~pl.col("_fail")), "death", "date_of_death")
+    d_first = d_ranked.filter(~pl.col("_dup"))
+
+    if exits is None:
+        exits = pl.DataFrame(
+            schema={
+                "row": pl.Int64,
+                "member_id": pl.String,
+                "date_text": pl.String,
+                "date": pl.Date,
+                "reason": pl.String,
+            }
+        )
+    x_flags, x_checks = _basic_checks(exits, what="exit", date_column="exit_date", **common)
+    x_ranked, x_dup = _duplicates(x_flags.filter(~pl.col("_fail")), "exit", "exit_date")
+    x_first = x_ranked.filter(~pl.col("_dup"))
+
+    # A member with a death and an exit: the earlier event stands (death wins a tie).
+    both = d_first.select(
+        "member_id", pl.col("date").alias("_death"), pl.col("row").alias("_death_row")
+    ).join(
+        x_first.select("member_id", pl.col("date").alias("_exit"), pl.col("row").alias("_exit_row")),
+        on="member_id",
+        how="inner",
+    )
+    d_first = d_first.join(
+        both.select("member_id", "_exit", "_exit_row"), on="member_id", how="left"
+    ).with_columns((pl.col("_exit") < pl.col("date")).fill_null(False).alias("_after_exit"))
+    x_first = x_first.join(
+        both.select("member_id", "_death", "_death_row"), on="member_id", how="left"
+    ).with_columns((pl.col("_death") <= pl.col("date")).fill_null(False).alias("_after_death"))
+    after_exit = (
+        pl.col("_after_exit"),
+        "date_of_death",
+        pl.col("date_text"),
+        pl.format(
+            "death on {} is after the member's exit on {} ({} row {}): the member had left observation; not counted",
+            pl.col("date").dt.to_string("%Y-%m-%d"),
+            pl.col("_exit").dt.to_string("%Y-%m-%d"),
+            pl.lit(exits_file),
+            pl.col("_exit_row"),
+        ),
+        "excluded",
+    )
+    after_death = (
+        pl.col("_after_death"),
+        "exit_date",
+        pl.col("date_text"),
+        pl.format(
+            "exit on {} is on or after the member's death on {} ({} row {}): the death ends observation; exit ignored",
+            pl.col("date").dt.to_string("%Y-%m-%d"),
+            pl.col("_death").dt.to_string("%Y-%m-%d"),
+            pl.lit(deaths_file),
+            pl.col("_death_row"),
+        ),
+        "excluded",
+    )
+    bad_pension = (
+        pl.col("pension_text").is_not_null()
+        & (pl.col("pension_text") != "")
+        & (pl.col("pension_at_death").is_null() | (pl.col("pension_at_death") < 0))
+    )
+    pension_warning = (
+        bad_pension,
+        "pension_at_death",
+        pl.col("pension_text"),
+        pl.format(
+            "pension_at_death '{}' is not a number >= 0: the record's pension is used", pl.col("pension_text")
+        ),
+        "warning",
+    )
+    d_counted = d_first.filter(~pl.col("_after_exit"))
+    x_applied = x_first.filter(~pl.col("_after_death"))
+
+    exceptions = pl.concat(
+        [
+            _problems(d_flags, deaths_file, d_checks),
+            _problems(d_ranked, deaths_file, d_dup),
+            _problems(d_first, deaths_file, [after_exit]),
+            _problems(d_counted, deaths_file, [pension_warning]),
+            _problems(x_flags, exits_file, x_checks),
+            _problems(x_ranked, exits_file, x_dup),
+            _problems(x_first, exits_file, [after_death]),
+        ],
+        how="vertical",
+    ).sort(["file", "row"], maintain_order=True)
+
+    deaths_out = d_counted.select(
+        "member_id",
+        "row",
+        "date",
+        pl.when(bad_pension).then(None).otherwise(pl.col("pension_at_death")).alias("pension_at_death"),
+    )
+    exits_out = x_applied.select("member_id", "row", "date", "reason")
+    counts = {
+        "deaths": {
+            "read": deaths.height,
+            "counted": deaths_out.height,
+            "excluded": deaths.height - deaths_out.height,
+        },
+        "exits": {
+            "read": exits.height,
+            "applied": exits_out.height,
+            "excluded": exits.height - exits_out.height,
+        },
+    }
+    return CheckedEvents(deaths=deaths_out, exits=exits_out, exceptions=exceptions, counts=counts)

@@ -1,0 +1,147 @@
+"""Readers for the deaths file and the other-exits file of an experience analysis.
+
+Both files are read with every column as text, headers trimmed and matched case-insensitively, then the
+basis's column mapping (their header -> ours) applied. Rows are numbered as in the member data: the header
+is row 1, so the first data row is row 2. Dates are ISO ``YYYY-MM-DD`` or the basis's ``date_format``.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Literal
+
+import polars as pl
+
+from valuation.errors import DataError
+
+EventKind = Literal["deaths", "exits"]
+
+#: Required and optional columns of each file (our names).
+REQUIRED: dict[str, tuple[str, ...]] = {
+    "deaths": ("member_id", "date_of_death"),
+    "exits": ("member_id", "exit_date"),
+}
+OPTIONAL: dict[str, tuple[str, ...]] = {
+    "deaths": ("pension_at_death",),
+    "exits": ("reason",),
+}
+DATE_COLUMN: dict[str, str] = {"deaths": "date_of_death", "exits": "exit_date"}
+
+
+def _read_text_frame(path: Path) -> pl.DataFrame:
+    suffix = path.suffix.lower()
+    try:
+        if suffix in (".csv", ".txt"):
+            return pl.read_csv(path, infer_schema=False, missing_utf8_is_empty_string=False)
+        if suffix == ".parquet":
+            df = pl.read_parquet(path)
+        elif suffix in (".xlsx", ".xlsm"):
+            df = pl.read_excel(path)
+        else:
+            raise DataError(
+                f"unknown file type '{suffix}'",
+                file=path,
+                fix="give a .csv, .xlsx or .parquet file",
+            )
+    except DataError:
+        raise
+    except Exception as exc:  # polars/fastexcel raise several types for unreadable files
+        raise DataError(f"cannot be read: {exc}", file=path, fix="check the file is a valid table") from exc
+    return df.with_columns(pl.all().cast(pl.String))
+
+
+def parse_dates(values: pl.Expr, date_format: str | None) -> pl.Expr:
+    """Text -> Date, accepting ISO ``YYYY-MM-DD`` and, where given, ``date_format``; null where neither fits."""
+    text = values.str.strip_chars()
+    iso = text.str.to_date("%Y-%m-%d", strict=False)
+    if date_format is None:
+        return iso
+    return iso.fill_null(text.str.to_date(date_format, strict=False))
+
+
+def read_events(
+    path: str | Path,
+    kind: EventKind,
+    *,
+    date_format: str | None = None,
+    column_map: dict[str, str] | None = None,
+) -> pl.DataFrame:
+    """Read a deaths or exits file into typed columns, keeping the raw text of every checked value.
+
+    Parameters
+    ----------
+    path
+        CSV, XLSX or Parquet file.
+    kind
+        ``"deaths"`` (member_id, date_of_death, optional pension_at_death [currency p.a.]) or ``"exits"``
+        (member_id, exit_date, optional reason).
+    date_format
+        ``strftime`` pattern accepted besides ISO dates (the basis mapping's date format).
+    column_map
+        Their header -> our column name (the basis mapping's columns), compared case-insensitively.
+
+    Returns
+    -------
+    polars.DataFrame
+        ``row`` (file row, header = 1), ``member_id`` (text, trimmed, null when blank), ``date_text``,
+        ``date`` (Date or null), and for deaths ``pension_text``, ``pension_at_death`` (f64 or null), for
+        exits ``reason`` (text).
+
+    Raises
+    ------
+    DataError
+        The file is missing, unreadable, of an unknown type, or lacks a required column.
+    """
+    path = Path(path)
+    if not path.is_file():
+        raise DataError(f"{kind} file not found", file=path, fix=f"give the path of the {kind} file")
+    df = _read_text_frame(path)
+    lookup = {k.strip().lower(): v.strip().lower() for k, v in (column_map or {}).items()}
+    renames: dict[str, str] = {}
+    for col in df.columns:
+        key = col.strip().lower()
+        renames[col] = lookup.get(key, key)
+    seen: dict[str, str] = {}
+    for original, ours in renames.items():
+        if ours in seen:
+            raise DataError(
+                f"two columns map to '{ours}' ('{seen[ours]}' and '{original}')",
+                file=path,
+                column=ours,
+                fix="keep one of them or change the basis column mapping",
+            )
+        seen[ours] = original
+    df = df.rename(renames)
+    for col in REQUIRED[kind]:
+        if col not in df.columns:
+            raise DataError(
+                f"required column '{col}' is missing (found: {', '.join(df.columns) or 'none'})",
+                file=path,
+                column=col,
+                fix=f"add a '{col}' column (headers are matched ignoring case)",
+            )
+    date_col = DATE_COLUMN[kind]
+    ident = pl.col("member_id").str.strip_chars()
+    out = df.with_row_index("row", offset=2).select(
+        pl.col("row").cast(pl.Int64),
+        pl.when(ident == "").then(None).otherwise(ident).alias("member_id"),
+        pl.col(date_col).alias("date_text"),
+        parse_dates(pl.col(date_col), date_format).alias("date"),
+        *(
+            [
+                (pl.col("pension_at_death") if "pension_at_death" in df.columns else pl.lit(None, pl.String))
+                .str.strip_chars()
+                .alias("pension_text")
+            ]
+            if kind == "deaths"
+            else [(pl.col("reason") if "reason" in df.columns else pl.lit(None, pl.String)).alias("reason")]
+        ),
+    )
+    if kind == "deaths":
+        out = out.with_columns(
+            pl.col("pension_text")
+            .str.replace_all(",", "")
+            .cast(pl.Float64, strict=False)
+            .alias("pension_at_death")
+        )
+    return out

@@ -1,0 +1,486 @@
+"""Readers for mortality tables: CSV and XLSX grids (ages in rows) and XTbML, with validation.
+
+CSV / XLSX layout: a header row, then one row per integer age. The first column holds the age; each
+further column is one table (or one sex), headed by its name. XLSX files are read from the first sheet
+unless ``sheet`` is given.
+
+XTbML layout (the SOA's XML standard for actuarial tables): root ``XTbML`` -> ``ContentClassification``
+(``TableIdentity``, ``TableName``, ...) -> one or more ``Table`` elements, each with ``MetaData``
+(``ScalingFactor``, ``AxisDef``: ``ScaleType``, ``AxisName``, ``MinScaleValue``, ``MaxScaleValue``,
+``Increment``) and ``Values`` made of nested ``Axis`` and ``Y`` elements (``<Axis t="60"><Y t="1">...``).
+A table with one AxisDef is an ultimate table (by attained age); a table with two AxisDefs is a select
+table (selection age x duration). Values are divided by 10**ScalingFactor (from memory: the scaling
+factor is the power of ten the stored values were multiplied by; 0 means rates as stored).
+
+The XML is parsed with the standard library after rejecting any DOCTYPE or ENTITY declaration, so no
+entity expansion can happen (the protection defusedxml gives).
+
+References
+----------
+.. [XTbML] Society of Actuaries, *XTbML: Extensible Table Markup Language* (adopted by ACORD, 2002).
+.. [DHW] Dickson, Hardy & Waters, *Actuarial Mathematics for Life Contingent Risks*, 2nd ed., 2013,
+   sections 3.2 and 3.7-3.9 (life tables; select and ultimate tables).
+"""
+
+from __future__ import annotations
+
+import csv
+import xml.etree.ElementTree as ET
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any, Literal
+
+import numpy as np
+import polars as pl
+
+from valuation.errors import TableError
+from valuation.mortality.table import MortalityTable
+
+Closing = Literal["require", "set_last_to_one"]
+
+CSV_SUFFIXES = (".csv", ".txt")
+XLSX_SUFFIXES = (".xlsx", ".xlsm")
+XTBML_SUFFIXES = (".xml", ".xtbml")
+
+
+# --------------------------------------------------------------------------------------------------
+# Grids: first column an integer key (age), one numeric column per header
+# --------------------------------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class Grid:
+    """A numeric grid read from CSV or XLSX: integer keys in the first column, one column per header."""
+
+    file: str
+    key_name: str
+    keys: np.ndarray  # int64, contiguous ascending
+    columns: tuple[str, ...]
+    values: np.ndarray  # float64, shape (len(keys), len(columns))
+    first_row: int  # file row (1-based) of the first data row
+
+
+def _raw_csv(path: Path) -> list[tuple[int, list[str]]]:
+    with path.open(newline="", encoding="utf-8-sig") as fh:
+        return [(i, [c.strip() for c in r]) for i, r in enumerate(csv.reader(fh), start=1)]
+
+
+def _raw_xlsx(path: Path, sheet: str | None) -> list[tuple[int, list[str]]]:
+    import openpyxl
+
+    try:
+        wb = openpyxl.load_workbook(path, read_only=True, data_only=True)
+    except Exception as exc:  # openpyxl raises several unrelated types for a broken file
+        raise TableError(f"cannot open as an XLSX workbook ({exc})", file=path) from exc
+    try:
+        if sheet is not None and sheet not in wb.sheetnames:
+            raise TableError(
+                f"no sheet named '{sheet}'", file=path, fix=f"use one of {', '.join(wb.sheetnames)}"
+            )
+        ws = wb[sheet] if sheet is not None else wb.worksheets[0]
+        out = []
+        for i, r in enumerate(ws.iter_rows(values_only=True), start=1):
+            out.append((i, ["" if c is None else str(c).strip() for c in r]))
+        return out
+    finally:
+        wb.close()
+
+
+def _numbers(cells: list[str]) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Parse strings to float64 in one vectorised pass: (values, missing mask, non-numeric mask)."""
+    s = pl.Series(cells, dtype=pl.String)
+    num = s.cast(pl.Float64, strict=False)
+    missing = (s == "").to_numpy() | np.isnan(num.fill_null(0.0).to_numpy())
+    bad = num.is_null().to_numpy() & ~missing
+    return num.fill_null(np.nan).to_numpy().astype(np.float64), missing, bad
+
+
+def read_grid(path: str | Path, *, sheet: str | None = None, key: str = "age") -> Grid:
+    """Read a CSV or XLSX grid: a header row, the first column integer ``key`` values, numbers elsewhere.
+
+    Raises :class:`TableError` naming the file, row, column and ``key`` value for a missing or
+    non-numeric cell, a non-integer or missing key, or keys that are not contiguous and ascending.
+    """
+    p = Path(path)
+    if not p.is_file():
+        raise TableError("file not found", file=p, fix="check the path in the basis")
+    suffix = p.suffix.lower()
+    if suffix in XLSX_SUFFIXES:
+        raw = _raw_xlsx(p, sheet)
+    elif suffix in CSV_SUFFIXES:
+        raw = _raw_csv(p)
+    else:
+        raise TableError(f"cannot read a '{suffix}' file as a grid", file=p, fix="use .csv or .xlsx")
+    raw = [(i, r) for i, r in raw if any(r)]
+    if len(raw) < 2:
+        raise TableError("needs a header row and at least one data row", file=p)
+    (header_row, header), body = raw[0], raw[1:]
+    while header and not header[-1]:
+        header = header[:-1]
+    width = len(header)
+    if width < 2:
+        raise TableError(
+            f"needs a {key} column and at least one rate column", file=p, row=header_row,
+            fix=f"first column {key}, then one column per table",
+        )
+    names = header[1:]
+    for j, n in enumerate(names, start=2):
+        if not n:
+            raise TableError(f"column {j} has no header", file=p, row=header_row)
+    dup = sorted({n for n in names if names.count(n) > 1})
+    if dup:
+        raise TableError(f"duplicate column headers {dup}", file=p, row=header_row)
+    rows = np.array([i for i, _ in body])
+    cells = [(r + [""] * width)[:width] for _, r in body]
+    cols = list(zip(*cells, strict=True))
+
+    kv, kmiss, kbad = _numbers(list(cols[0]))
+    nonint = ~kmiss & ~kbad & (kv != np.round(kv))
+    for mask, what in ((kmiss, "missing"), (kbad | nonint, "not a whole number")):
+        if mask.any():
+            k = int(np.argmax(mask))
+            raise TableError(
+                f"{key} {what} ('{cols[0][k]}'); the first column must hold whole-number {key}s",
+                file=p, row=int(rows[k]), column=header[0],
+            )
+    keys = kv.astype(np.int64)
+    step = np.diff(keys)
+    if (step != 1).any():
+        k = int(np.argmax(step != 1)) + 1
+        raise TableError(
+            f"{key} {keys[k]} follows {key} {keys[k - 1]}; {key}s must be contiguous and ascending",
+            file=p, row=int(rows[k]), column=header[0], fix=f"one row per {key}, no gaps or repeats",
+        )
+
+    values = np.empty((len(keys), len(names)), dtype=np.float64)
+    for j, name in enumerate(names, start=1):
+        v, miss, bad = _numbers(list(cols[j]))
+        for mask, what in ((miss, "missing value"), (bad, "non-numeric value")):
+            if mask.any():
+                k = int(np.argmax(mask))
+                shown = f" '{cols[j][k]}'" if what.startswith("non") else ""
+                raise TableError(
+                    f"{what}{shown} at {key} {keys[k]}; expected a number",
+                    file=p, row=int(rows[k]), column=name,
+                )
+        values[:, j - 1] = v
+    return Grid(str(p), header[0], keys, tuple(names), values, int(rows[0]))
+
+
+# --------------------------------------------------------------------------------------------------
+# Validation
+# --------------------------------------------------------------------------------------------------
+
+
+def validate_table(table: MortalityTable, *, file: str, first_row: int | None = None) -> None:
+    """Check a table: no missing q, every q within [0, 1], q = 1 at the closing (last) age.
+
+    Contiguous ages are guaranteed by the array layout and checked by the readers. ``first_row`` is
+    the file row of ``min_age`` (CSV / XLSX) so that the message can give the row as well.
+
+    Raises
+    ------
+    TableError
+        Naming ``file``, the age and the table name as the column.
+    """
+
+    def row(k: int) -> int | None:
+        return None if first_row is None else first_row + k
+
+    q = table.qx
+    nan = np.isnan(q)
+    if nan.any():
+        k = int(np.argmax(nan))
+        raise TableError(
+            f"missing value at age {table.min_age + k}", file=file, row=row(k), column=table.name
+        )
+    out = (q < 0.0) | (q > 1.0)
+    if out.any():
+        k = int(np.argmax(out))
+        raise TableError(
+            f"q = {q[k]:g} at age {table.min_age + k} is outside [0, 1]",
+            file=file, row=row(k), column=table.name, fix="rates must be probabilities, not per mille",
+        )
+    if q[-1] != 1.0:
+        k = q.size - 1
+        raise TableError(
+            f"no closing age: q = {q[-1]:g} at the last age {table.max_age}; expected q = 1",
+            file=file, row=row(k), column=table.name,
+            fix="add a closing age with q = 1, or read with closing='set_last_to_one'",
+        )
+    s = table.select_qx
+    if s is not None:
+        bad = np.isnan(s) | (s < 0.0) | (s > 1.0)
+        if bad.any():
+            k, d = (int(v) for v in np.unravel_index(int(np.argmax(bad)), s.shape))
+            raise TableError(
+                f"select q = {s[k, d]:g} at selection age {table.min_age + k}, duration {d} is missing "
+                "or outside [0, 1]", file=file, column=f"{table.name} (select)",
+            )
+
+
+def _close(qx: np.ndarray, closing: Closing) -> np.ndarray:
+    if closing not in ("require", "set_last_to_one"):
+        raise ValueError(f"closing must be 'require' or 'set_last_to_one', not {closing!r}")
+    qx = np.array(qx, dtype=np.float64)
+    if closing == "set_last_to_one":
+        qx[-1] = 1.0  # stated closing rule: the last age given becomes the closing age
+    return qx
+
+
+# --------------------------------------------------------------------------------------------------
+# XTbML
+# --------------------------------------------------------------------------------------------------
+
+
+def _local(tag: str) -> str:
+    return tag.rsplit("}", 1)[-1]
+
+
+def _child(elem: ET.Element, name: str) -> ET.Element | None:
+    return next((c for c in elem if _local(c.tag) == name), None)
+
+
+def _children(elem: ET.Element, name: str) -> list[ET.Element]:
+    return [c for c in elem if _local(c.tag) == name]
+
+
+def _text(elem: ET.Element | None, name: str) -> str | None:
+    c = None if elem is None else _child(elem, name)
+    return None if c is None or c.text is None else c.text.strip()
+
+
+@dataclass(frozen=True)
+class _XTable:
+    label: str
+    axes: list[dict[str, Any]]
+    cells: dict[tuple[int, ...], float]
+
+
+def _int_or_none(s: str | None, what: str, file: Path) -> int | None:
+    if s is None or s == "":
+        return None
+    try:
+        return int(float(s))
+    except ValueError as exc:
+        raise TableError(f"{what} '{s}' is not a number", file=file) from exc
+
+
+def _parse_xtable(elem: ET.Element, k: int, file: Path) -> _XTable:
+    meta = _child(elem, "MetaData")
+    label = _text(meta, "TableDescription") or f"Table {k}"
+    scaling = _int_or_none(_text(meta, "ScalingFactor"), f"{label}: ScalingFactor", file) or 0
+    axes = []
+    for ad in [] if meta is None else _children(meta, "AxisDef"):
+        axes.append({
+            "type": _text(ad, "ScaleType") or "",
+            "name": _text(ad, "AxisName") or "",
+            "min": _int_or_none(_text(ad, "MinScaleValue"), f"{label}: MinScaleValue", file),
+            "max": _int_or_none(_text(ad, "MaxScaleValue"), f"{label}: MaxScaleValue", file),
+            "inc": _int_or_none(_text(ad, "Increment"), f"{label}: Increment", file) or 1,
+        })
+    if not axes:
+        raise TableError(f"{label}: MetaData has no AxisDef", file=file, fix="describe each axis")
+    for ax in axes:
+        if ax["inc"] != 1:
+            raise TableError(
+                f"{label}: axis '{ax['name']}' has Increment {ax['inc']}; only 1 is supported", file=file
+            )
+    values = _child(elem, "Values")
+    if values is None:
+        raise TableError(f"{label}: no Values element", file=file)
+    cells: dict[tuple[int, ...], float] = {}
+
+    def walk(node: ET.Element, prefix: tuple[int, ...]) -> None:
+        ys = _children(node, "Y")
+        level = len(prefix)
+        start = axes[min(level, len(axes) - 1)]["min"] or 0
+        for n, y in enumerate(ys):
+            t = _int_or_none(y.get("t"), f"{label}: Y t", file)
+            coord = prefix + (start + n if t is None else t,)
+            where = ", ".join(f"{a['name'] or a['type']} {c}" for a, c in zip(axes, coord, strict=False))
+            try:
+                v = float((y.text or "").strip())
+            except ValueError as exc:
+                raise TableError(
+                    f"{label}: non-numeric value '{y.text}' at {where}", file=file, column=label
+                ) from exc
+            if coord in cells:
+                raise TableError(f"{label}: two values at {where}", file=file, column=label)
+            cells[coord] = v / 10.0**scaling
+        for ax in _children(node, "Axis"):
+            t = _int_or_none(ax.get("t"), f"{label}: Axis t", file)
+            walk(ax, prefix if t is None else prefix + (t,))
+
+    walk(values, ())
+    bad = [c for c in cells if len(c) != len(axes)]
+    if bad:
+        raise TableError(
+            f"{label}: value at {bad[0]} does not match the {len(axes)} axes in AxisDef", file=file
+        )
+    return _XTable(label, axes, cells)
+
+
+def _axis_range(xt: _XTable, i: int, file: Path) -> np.ndarray:
+    seen = sorted({c[i] for c in xt.cells})
+    ax = xt.axes[i]
+    lo = ax["min"] if ax["min"] is not None else seen[0]
+    hi = ax["max"] if ax["max"] is not None else seen[-1]
+    outside = [v for v in seen if v < lo or v > hi]
+    if outside:
+        raise TableError(
+            f"{xt.label}: {ax['name'] or ax['type']} {outside[0]} is outside MinScaleValue {lo} .. "
+            f"MaxScaleValue {hi}", file=file, column=xt.label,
+        )
+    return np.arange(lo, hi + 1, dtype=np.int64)
+
+
+def _ultimate_q(xt: _XTable, file: Path) -> tuple[int, np.ndarray]:
+    ages = _axis_range(xt, 0, file)
+    q = np.array([xt.cells.get((int(a),), np.nan) for a in ages])
+    if np.isnan(q).any():
+        a = int(ages[int(np.argmax(np.isnan(q)))])
+        raise TableError(f"{xt.label}: missing value at age {a}", file=file, column=xt.label)
+    return int(ages[0]), q
+
+
+def _select_q(xt: _XTable, min_age: int, ult: np.ndarray, file: Path) -> np.ndarray:
+    ages, durs = _axis_range(xt, 0, file), _axis_range(xt, 1, file)
+    grid = np.array([[xt.cells.get((int(a), int(d)), np.nan) for d in durs] for a in ages])
+    if np.isnan(grid).any():
+        i, j = np.unravel_index(int(np.argmax(np.isnan(grid))), grid.shape)
+        raise TableError(
+            f"{xt.label}: missing select value at age {ages[i]}, duration {durs[j]}",
+            file=file, column=xt.label,
+        )
+    max_age = min_age + ult.size - 1
+    if ages[0] < min_age or ages[-1] > max_age:
+        raise TableError(
+            f"{xt.label}: select ages {ages[0]}..{ages[-1]} are not within the ultimate ages "
+            f"{min_age}..{max_age}", file=file, column=xt.label,
+            fix="the ultimate table must cover every selection age",
+        )
+    # Rows for ages without select rates follow the ultimate rates q_{x+d} (stated rule).
+    all_ages = np.arange(min_age, max_age + 1)
+    att = all_ages[:, None] + np.arange(durs.size)[None, :]
+    out = np.where(att > max_age, 1.0, ult[np.clip(att - min_age, 0, ult.size - 1)])
+    out[ages - min_age, :] = grid
+    return out
+
+
+def _read_xtbml(path: Path, closing: Closing, base_year: int | None) -> dict[str, MortalityTable]:
+    data = path.read_bytes()
+    upper = data.upper()
+    if b"<!DOCTYPE" in upper or b"<!ENTITY" in upper:
+        raise TableError(
+            "XML with a DOCTYPE or ENTITY declaration is refused (entity expansion is unsafe)",
+            file=path, fix="remove the DOCTYPE declaration",
+        )
+    try:
+        root = ET.fromstring(data)
+    except ET.ParseError as exc:
+        raise TableError(f"not well-formed XML ({exc})", file=path) from exc
+    if _local(root.tag) != "XTbML":
+        raise TableError(f"root element is '{_local(root.tag)}', expected 'XTbML'", file=path)
+    cc = _child(root, "ContentClassification")
+    name = _text(cc, "TableName") or path.stem
+    identity = _text(cc, "TableIdentity")
+    src = f"XTbML file {path.name}" + (f", table identity {identity}" if identity else "")
+    xts = [_parse_xtable(t, k, path) for k, t in enumerate(_children(root, "Table"), start=1)]
+    if not xts:
+        raise TableError("no Table element", file=path)
+    ults = [x for x in xts if len(x.axes) == 1]
+    sels = [x for x in xts if len(x.axes) == 2]
+    if len(ults) + len(sels) != len(xts) or not ults or (sels and (len(sels) > 1 or len(ults) > 1)):
+        raise TableError(
+            f"{len(ults)} one-axis and {len(sels)} two-axis tables: supported are ultimate tables, or "
+            "one select table (age x duration) with one ultimate table", file=path,
+        )
+    out: dict[str, MortalityTable] = {}
+    for k, ut in enumerate(ults):
+        label = name if len(ults) == 1 else (ut.label if ut.label != f"Table {k + 1}" else f"{name} [{k + 1}]")
+        min_age, q = _ultimate_q(ut, path)
+        q = _close(q, closing)
+        sel = _select_q(sels[0], min_age, q, path) if sels else None
+        table = MortalityTable(label, min_age, q, base_year=base_year, source=f"{src}, {ut.label}",
+                               select_qx=sel)
+        validate_table(table, file=str(path))
+        out[label] = table
+    return out
+
+
+# --------------------------------------------------------------------------------------------------
+# Public entry points
+# --------------------------------------------------------------------------------------------------
+
+
+def load_tables(
+    path: str | Path,
+    *,
+    closing: Closing = "require",
+    base_year: int | None = None,
+    sheet: str | None = None,
+) -> dict[str, MortalityTable]:
+    """Read every table in a CSV, XLSX or XTbML file, validated.
+
+    Parameters
+    ----------
+    path : str or Path
+        ``.csv`` / ``.txt``, ``.xlsx`` / ``.xlsm`` or ``.xml`` / ``.xtbml``.
+    closing : {"require", "set_last_to_one"}
+        ``"require"``: the last age must have q = 1. ``"set_last_to_one"``: the last age in the file is
+        made the closing age by setting its q to 1 (stated closing rule).
+    base_year : int, optional
+        Calendar year the rates describe [year], for improvement.
+    sheet : str, optional
+        XLSX sheet name (default: the first sheet).
+
+    Returns
+    -------
+    dict
+        Table name (column header, or XTbML TableName) -> :class:`MortalityTable`.
+
+    References
+    ----------
+    [XTbML]; [DHW] section 3.2.
+    """
+    p = Path(path)
+    if not p.is_file():
+        raise TableError("file not found", file=p, fix="check the table path in the basis")
+    suffix = p.suffix.lower()
+    if suffix in XTBML_SUFFIXES:
+        return _read_xtbml(p, closing, base_year)
+    if suffix not in CSV_SUFFIXES + XLSX_SUFFIXES:
+        raise TableError(
+            f"unknown table format '{suffix}'", file=p, fix="use .csv, .xlsx or XTbML (.xml)"
+        )
+    grid = read_grid(p, sheet=sheet, key="age")
+    out = {}
+    for j, col in enumerate(grid.columns):
+        table = MortalityTable(
+            col, int(grid.keys[0]), _close(grid.values[:, j], closing), base_year=base_year,
+            source=f"{'XLSX' if suffix in XLSX_SUFFIXES else 'CSV'} file {p.name}, column '{col}'",
+        )
+        validate_table(table, file=str(p), first_row=grid.first_row)
+        out[col] = table
+    return out
+
+
+def load_table(path: str | Path, name: str | None = None, **kw: Any) -> MortalityTable:
+    """Read one table from a file; ``name`` picks a column (CSV/XLSX) or table (XTbML).
+
+    Without ``name`` the file must hold exactly one table. Keywords go to :func:`load_tables`.
+    """
+    tables = load_tables(path, **kw)
+    if name is None:
+        if len(tables) != 1:
+            raise TableError(
+                f"holds {len(tables)} tables; say which one", file=path,
+                fix=f"give a table name: one of {', '.join(tables)}",
+            )
+        return next(iter(tables.values()))
+    if name not in tables:
+        raise TableError(
+            f"no table named '{name}'", file=path, column=name, fix=f"use one of {', '.join(tables)}"
+        )
+    return tables[name]

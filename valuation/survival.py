@@ -1,0 +1,339 @@
+"""Ages at a date, cohort l_x and survival probabilities on any time grid.
+
+Everything here is a pure array function. Survival works on *cohort q rows*: a 2-D array ``q_rows`` of
+shape ``(n_rows, n_ages)`` whose column ``j`` holds q at integer age ``j`` (ages start at 0) and whose
+last column is 1.0 (the closing age). A life of exact age ``x0`` on row ``r`` survives to time ``t`` with
+``tp = l(x0 + t) / l(x0)``, where ``l`` is the row's l_x interpolated between integer ages.
+
+References
+----------
+.. [DHW] Dickson, D.C.M., Hardy, M.R. and Waters, H.R., *Actuarial Mathematics for Life Contingent
+   Risks*, 2nd ed., Cambridge University Press, 2013: section 3.3 (fractional age assumptions) and
+   chapter 9 (multiple lives).
+.. [BGHJN] Bowers, N.L., Gerber, H.U., Hickman, J.C., Jones, D.A. and Nesbitt, C.J., *Actuarial
+   Mathematics*, 2nd ed., Society of Actuaries, 1997: section 3.6 (fractional ages) and chapter 9.
+"""
+
+from __future__ import annotations
+
+from datetime import date
+from typing import Literal
+
+import numpy as np
+from numpy.typing import ArrayLike, NDArray
+
+from valuation.errors import TableError
+
+FractionalAge = Literal["udd", "constant_force"]
+AgeConvention = Literal["exact", "last_birthday", "nearest_birthday"]
+
+_FRACTIONAL: tuple[str, ...] = ("udd", "constant_force")
+_CONVENTIONS: tuple[str, ...] = ("exact", "last_birthday", "nearest_birthday")
+
+
+def _check_option(value: str, allowed: tuple[str, ...], name: str) -> None:
+    if value not in allowed:
+        raise ValueError(f"{name} must be one of {', '.join(allowed)}; got {value!r}")
+
+
+# --------------------------------------------------------------------------------------------------
+# Ages at a date
+# --------------------------------------------------------------------------------------------------
+
+
+def _anniversary(
+    month_index: NDArray[np.int64], day: NDArray[np.int64], year_offset: NDArray[np.int64]
+) -> NDArray[np.datetime64]:
+    """The birthday in a given year as datetime64[D].
+
+    ``month_index`` counts months since 1970-01 for the birth month, ``day`` is the day of the month
+    (1-based) and ``year_offset`` the number of years after birth. A day past the end of its month rolls
+    into the next month, so a 29 February birthday falls on 1 March in a common year.
+    """
+    months = (month_index + 12 * year_offset).astype("datetime64[M]")
+    return months.astype("datetime64[D]") + (day - 1).astype("timedelta64[D]")
+
+
+def exact_age(dob: ArrayLike, at: date | np.datetime64) -> NDArray[np.float64]:
+    """Exact age [years] at the date ``at`` of lives born on ``dob``.
+
+    Exact age = completed years + (days since the last birthday) / (days from the last birthday to the
+    next one). A birthday on 29 February falls on 1 March in a common year (common practice), so such a
+    life's birthday-year from 1 March 2023 to 29 February 2024 has 366 days. Missing dates (NaT) give
+    NaN. A date of birth after ``at`` gives a negative age; the member-data checks reject those before
+    this function is reached.
+
+    Parameters
+    ----------
+    dob : array_like of datetime64[D] (or ISO date strings / ``datetime.date``)
+        Dates of birth.
+    at : date or numpy.datetime64
+        The valuation date.
+
+    Returns
+    -------
+    numpy.ndarray of float
+        Exact age [years], the shape of ``dob``.
+
+    References
+    ----------
+    Common practice (the day-count rule for a fraction of a birthday-year is the tool's own stated rule).
+    """
+    d = np.asarray(dob, dtype="datetime64[D]")
+    a = np.datetime64(at, "D")
+    missing = np.isnat(d)
+    d_ok = np.where(missing, a, d)
+    birth_month = d_ok.astype("datetime64[M]")
+    month_index = birth_month.astype(np.int64)
+    day = (d_ok - birth_month.astype("datetime64[D]")).astype(np.int64) + 1
+    birth_year = d_ok.astype("datetime64[Y]").astype(np.int64)
+    at_year = a.astype("datetime64[Y]").astype(np.int64)
+    years = np.asarray(at_year - birth_year, dtype=np.int64)
+    this_year = _anniversary(month_index, day, years)
+    completed = np.where(this_year > a, years - 1, years)
+    last = _anniversary(month_index, day, completed)
+    nxt = _anniversary(month_index, day, completed + 1)
+    frac = (a - last).astype(np.float64) / (nxt - last).astype(np.float64)
+    age = completed.astype(np.float64) + frac
+    return np.where(missing, np.nan, age)
+
+
+def age_at(
+    dob: ArrayLike, at: date | np.datetime64, convention: AgeConvention = "exact"
+) -> NDArray[np.float64]:
+    """Age [years] at ``at`` under an age convention.
+
+    ``"exact"`` is :func:`exact_age`; ``"last_birthday"`` its whole part (completed years);
+    ``"nearest_birthday"`` the age at the nearer birthday, measured by the fraction of the birthday-year
+    that has passed, with a life exactly half-way taken to the next birthday (common practice).
+
+    Parameters
+    ----------
+    dob : array_like of datetime64[D]
+        Dates of birth.
+    at : date or numpy.datetime64
+        The valuation date.
+    convention : {"exact", "last_birthday", "nearest_birthday"}
+        The age convention.
+
+    Returns
+    -------
+    numpy.ndarray of float
+        Age [years]; whole numbers for the two birthday conventions.
+
+    References
+    ----------
+    Common practice (age last birthday and age nearest birthday are the trade's usual rating conventions).
+    """
+    _check_option(convention, _CONVENTIONS, "convention")
+    x = exact_age(dob, at)
+    if convention == "exact":
+        return x
+    if convention == "last_birthday":
+        return np.floor(x)
+    return np.floor(x + 0.5)
+
+
+# --------------------------------------------------------------------------------------------------
+# Cohort l_x and interpolation between integer ages
+# --------------------------------------------------------------------------------------------------
+
+
+def _as_q_rows(q_rows: ArrayLike) -> NDArray[np.float64]:
+    q = np.asarray(q_rows, dtype=np.float64)
+    if q.ndim == 1:
+        q = q[None, :]
+    if q.ndim != 2 or q.shape[1] < 1:
+        raise TableError(
+            f"cohort q rows must be a 2-D array (rows x ages); got shape {q.shape}",
+            fix="pass one row of q by integer age from 0 to the closing age for each cohort",
+        )
+    bad = ~np.isfinite(q) | (q < 0.0) | (q > 1.0)
+    if bad.any():
+        r, j = np.argwhere(bad)[0]
+        raise TableError(
+            f"q at age {j} is {float(q[r, j]):g}; expected a probability in [0, 1]",
+            row=int(r),
+            column=f"q[{j}]",
+            fix="check the mortality table and its adjustments (percentage, rating, improvement)",
+        )
+    not_closed = q[:, -1] != 1.0
+    if not_closed.any():
+        r = int(np.flatnonzero(not_closed)[0])
+        raise TableError(
+            f"q at the closing age {q.shape[1] - 1} is {float(q[r, -1]):g}; expected 1.0",
+            row=r,
+            column=f"q[{q.shape[1] - 1}]",
+            fix="close the table with q = 1 at its last age",
+        )
+    return q
+
+
+def cohort_lx(q_rows: ArrayLike) -> NDArray[np.float64]:
+    """Cohort survivors l_x at integer ages from cohort q rows, with l_0 = 1.
+
+    l_{j+1} = l_j (1 - q_j) [DHW section 3.2; BGHJN section 3.3].
+
+    Parameters
+    ----------
+    q_rows : array_like, shape (n_rows, n_ages)
+        q at integer ages 0 .. n_ages - 1 for each cohort row; the last column must be 1.0.
+
+    Returns
+    -------
+    numpy.ndarray, shape (n_rows, n_ages + 1)
+        l at ages 0 .. n_ages [proportion of a radix of 1]; the last column is 0.
+
+    Raises
+    ------
+    TableError
+        If a q is not a probability or a row does not close with q = 1.
+
+    References
+    ----------
+    [DHW] section 3.2; [BGHJN] section 3.3.
+    """
+    q = _as_q_rows(q_rows)
+    lx = np.ones((q.shape[0], q.shape[1] + 1))
+    np.cumprod(1.0 - q, axis=1, out=lx[:, 1:])
+    return lx
+
+
+def lx_at(
+    lx: NDArray[np.float64],
+    q_rows: ArrayLike,
+    rows: ArrayLike,
+    ages: ArrayLike,
+    fractional: FractionalAge = "udd",
+) -> NDArray[np.float64]:
+    """l at fractional ages, interpolated between integer ages.
+
+    With age y = j + s (j integer, 0 <= s < 1):
+
+    - UDD: l(j + s) = l_j (1 - s q_j), linear in l [DHW section 3.3.1; BGHJN section 3.6].
+    - constant force: l(j + s) = l_j (p_j)^s, linear in log l [DHW section 3.3.2; BGHJN section 3.6].
+
+    Beyond the closing age l = 0; ages below 0 are treated as 0.
+
+    Parameters
+    ----------
+    lx : numpy.ndarray, shape (n_rows, n_ages + 1)
+        Output of :func:`cohort_lx` for ``q_rows``.
+    q_rows : array_like, shape (n_rows, n_ages)
+        Cohort q rows.
+    rows : array_like of int
+        Row of each value; broadcasts with ``ages``.
+    ages : array_like of float
+        Ages [years].
+    fractional : {"udd", "constant_force"}
+        Fractional-age assumption.
+
+    Returns
+    -------
+    numpy.ndarray
+        l at the requested ages [proportion of a radix of 1], the broadcast shape of ``rows`` and
+        ``ages``.
+
+    References
+    ----------
+    [DHW] section 3.3; [BGHJN] section 3.6.
+    """
+    _check_option(fractional, _FRACTIONAL, "fractional")
+    q = np.asarray(q_rows, dtype=np.float64)
+    if q.ndim == 1:
+        q = q[None, :]
+    n_ages = q.shape[1]
+    r = np.asarray(rows, dtype=np.intp)
+    y = np.maximum(np.asarray(ages, dtype=np.float64), 0.0)
+    j = np.minimum(np.floor(y), n_ages - 1).astype(np.intp)
+    s = np.minimum(y - j, 1.0)  # s = 1 past the closing age, where l_j p_j = 0
+    l_j = lx[r, j]
+    q_j = q[r, j]
+    if fractional == "udd":
+        return l_j * (1.0 - s * q_j)
+    p_j = 1.0 - q_j
+    with np.errstate(divide="ignore"):
+        # p^s with 0^0 = 1 and 0^s = 0 for s > 0 (numpy's power already does this)
+        return l_j * np.power(p_j, s)
+
+
+def _survival(
+    q: NDArray[np.float64],
+    lx: NDArray[np.float64],
+    rows: NDArray[np.intp],
+    x0: NDArray[np.float64],
+    t: NDArray[np.float64],
+    fractional: FractionalAge,
+) -> NDArray[np.float64]:
+    """tp_x0 for broadcastable rows/x0 (shape (n, 1)) and times t (shape (T,) or (n, T))."""
+    l0 = lx_at(lx, q, rows, x0, fractional)
+    lt = lx_at(lx, q, rows, x0 + t, fractional)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        tp = np.where(l0 > 0.0, lt / np.where(l0 > 0.0, l0, 1.0), 0.0)
+    return np.clip(tp, 0.0, 1.0)
+
+
+def tpx(
+    q_rows: ArrayLike,
+    rows: ArrayLike,
+    x0: ArrayLike,
+    t: ArrayLike,
+    fractional: FractionalAge = "udd",
+) -> NDArray[np.float64]:
+    """Survival probabilities tp_x0 = l(x0 + t) / l(x0) on a time grid.
+
+    Parameters
+    ----------
+    q_rows : array_like, shape (n_rows, n_ages)
+        Cohort q rows (column j = q at integer age j; last column 1.0).
+    rows : array_like of int, shape (n,)
+        Cohort row of each life.
+    x0 : array_like of float, shape (n,)
+        Exact age of each life [years].
+    t : array_like of float, shape (T,)
+        Times from now, t >= 0 [years]; any grid (annual, monthly, ...).
+    fractional : {"udd", "constant_force"}
+        Fractional-age assumption between integer ages.
+
+    Returns
+    -------
+    numpy.ndarray, shape (n, T)
+        tp_x0 for each life and time; 0 past the closing age (and for a life already past it).
+
+    References
+    ----------
+    [DHW] sections 2.2 and 3.3, tp_x = l_{x+t} / l_x; [BGHJN] sections 3.3 and 3.6.
+    """
+    q = _as_q_rows(q_rows)
+    lx = cohort_lx(q)
+    r = np.atleast_1d(np.asarray(rows, dtype=np.intp))
+    x = np.atleast_1d(np.asarray(x0, dtype=np.float64))
+    tt = np.atleast_1d(np.asarray(t, dtype=np.float64))
+    if tt.ndim != 1:
+        raise ValueError(f"t must be 1-D (a time grid); got shape {tt.shape}")
+    if (tt < 0).any():
+        raise ValueError("t must be >= 0 [years]")
+    r, x = np.broadcast_arrays(r, x)
+    return _survival(q, lx, r[:, None], x[:, None], tt[None, :], fractional)
+
+
+def joint_life(tp_x: ArrayLike, tp_y: ArrayLike) -> NDArray[np.float64]:
+    """Joint-life survival tp_xy = tp_x tp_y of two independent lives [probability].
+
+    References
+    ----------
+    [DHW] chapter 9 (independent future lifetimes); [BGHJN] section 9.3.
+    """
+    return np.asarray(tp_x, dtype=np.float64) * np.asarray(tp_y, dtype=np.float64)
+
+
+def last_survivor(tp_x: ArrayLike, tp_y: ArrayLike) -> NDArray[np.float64]:
+    """Last-survivor survival tp_{xy-bar} = tp_x + tp_y - tp_x tp_y of independent lives [probability].
+
+    References
+    ----------
+    [DHW] chapter 9 (independent future lifetimes); [BGHJN] section 9.4.
+    """
+    a = np.asarray(tp_x, dtype=np.float64)
+    b = np.asarray(tp_y, dtype=np.float64)
+    return a + b - a * b
