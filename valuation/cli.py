@@ -1,13 +1,261 @@
-"""Command line: parses arguments and calls the library (filled in by the valuation and reporting work)."""
+"""Command line. Parses arguments and calls the library; every command is one Python call away.
+
+Exit codes: 0 success; 1 unexpected internal error; 2 usage error (bad arguments); 3 fatal input error
+(a data, basis or table file that cannot be used: the message on stderr names the file, row, column and
+the fix). Nothing is left half-written: run folders are written to a temporary folder and moved into
+place at the end.
+"""
 
 from __future__ import annotations
 
+import argparse
 import sys
+import textwrap
+from datetime import date
+from pathlib import Path
+from typing import Any
+
+from valuation import __version__
+from valuation.errors import ValuationError
+
+EXIT_OK, EXIT_INTERNAL, EXIT_USAGE, EXIT_INPUT = 0, 1, 2, 3
+
+EPILOG_EXIT = """exit codes: 0 ok; 1 internal error; 2 usage error; 3 input error (data, basis or table file),
+with the message on stderr."""
+
+
+class _Progress:
+    """A tqdm progress bar that stays quiet when stderr is not a terminal or --quiet is given."""
+
+    def __init__(self, quiet: bool) -> None:
+        self.enabled = not quiet and sys.stderr.isatty()
+        self.bar: Any = None
+
+    def __call__(self, label: str, done: int, total: int) -> None:
+        if not self.enabled:
+            return
+        from tqdm import tqdm
+
+        if self.bar is None:
+            self.bar = tqdm(total=total, desc=label, unit="step", leave=False)
+        self.bar.set_description(label)
+        self.bar.n = done
+        self.bar.refresh()
+
+    def close(self) -> None:
+        if self.bar is not None:
+            self.bar.close()
+
+
+def _say(args: argparse.Namespace, text: str) -> None:
+    if not args.quiet:
+        print(text)
+
+
+def _report_writers(experience: Any = None) -> list:
+    try:
+        from valuation.reports import write_html, write_workbook
+    except ImportError:  # pragma: no cover - reports are part of the package
+        return []
+
+    def wb(result: Any, folder: Path) -> None:
+        write_workbook(result, folder / "valuation.xlsx", experience=experience)
+
+    def html(result: Any, folder: Path) -> None:
+        write_html(result, folder / "summary.html", experience=experience)
+
+    return [wb, html]
+
+
+def _headline(result: Any) -> str:
+    s = result.summary
+    rec = s["records"]
+    lines = [
+        f"valuation date {s['valuation_date']}: liability {s['liability']['total']:,.0f}",
+        f"records read {rec['read']:,} = valued {rec['valued']:,} + excluded {rec['excluded']:,}",
+    ]
+    for st, v in s["liability"]["by_status"].items():
+        lines.append(f"  {st:<10} {v:>16,.0f}")
+    d = s["duration"]
+    lines.append(f"duration (Macaulay) {d['macaulay']:.2f} years; single equivalent rate "
+                 f"{100 * (s['single_equivalent_discount_rate'] or 0):.3f} %")
+    return "\n".join(lines)
+
+
+def cmd_run(args: argparse.Namespace) -> int:
+    from valuation.basis import load_basis
+    from valuation.engine.run import value_members
+    from valuation.engine.write import write_run
+    from valuation.members import read_members
+
+    progress = _Progress(args.quiet)
+    basis = load_basis(args.basis)
+    data = read_members(args.members, basis)
+    _say(args, data.reconciliation_text())
+    result = value_members(data, basis, sensitivities=not args.no_sensitivities, chunk_size=args.chunk_size,
+                           progress=progress)
+    progress.close()
+    out = Path(args.out) if args.out else Path("outputs") / Path(args.members).stem
+    write_run(result, out, extra=[] if args.no_reports else _report_writers())
+    _say(args, _headline(result))
+    _say(args, f"written to {out}/")
+    return EXIT_OK
+
+
+def cmd_check(args: argparse.Namespace) -> int:
+    from valuation.basis import load_basis
+    from valuation.members import read_members
+
+    basis = load_basis(args.basis)
+    data = read_members(args.members, basis)
+    print(data.reconciliation_text())
+    if data.exceptions.height:
+        counts = data.exceptions.group_by(["severity", "reason"]).len().sort(["severity", "len"], descending=[False, True])
+        for sev, reason, n in counts.iter_rows():
+            print(f"  {sev:<8} {n:>6}  {reason}")
+    if args.exceptions:
+        data.exceptions.write_csv(args.exceptions)
+        print(f"exceptions written to {args.exceptions}")
+    return EXIT_OK
+
+
+def cmd_synth(args: argparse.Namespace) -> int:
+    from valuation.members.synth import synth_scheme, write_scheme
+
+    vd = date.fromisoformat(args.valuation_date)
+    df = synth_scheme(args.members, seed=args.seed, valuation_date=vd)
+    write_scheme(df, Path(args.out))
+    _say(args, f"{df.height:,} synthetic members written to {args.out}")
+    return EXIT_OK
+
+
+def cmd_batch(args: argparse.Namespace) -> int:
+    from valuation.engine.batch import run_batch
+
+    progress = _Progress(args.quiet)
+    index = run_batch(args.batch, out_root=Path(args.out) if args.out else None, progress=progress,
+                      writers=_report_writers)
+    progress.close()
+    with __import__("polars").Config(tbl_rows=100, tbl_cols=12):
+        _say(args, str(index))
+    return EXIT_OK
+
+
+def cmd_experience(args: argparse.Namespace) -> int:
+    from valuation.engine.write import atomic_folder
+    from valuation.experience import ExperienceSettings, analyse_experience
+
+    settings = ExperienceSettings(
+        period_start=date.fromisoformat(args.start), period_end=date.fromisoformat(args.end),
+        exposure=args.exposure, confidence=args.confidence, overdispersion=args.overdispersion,
+        late_months=args.late_months, late_uplift=args.late_uplift,
+    )
+    res = analyse_experience(args.members, args.deaths, args.basis, settings, exits_path=args.exits,
+                             valuation_members_path=args.valuation_members)
+    out = Path(args.out) if args.out else Path("outputs") / "experience"
+    with atomic_folder(out) as tmp:
+        res.write(tmp)
+    overall = res.table.filter(res.table["dimension"] == "overall").row(0, named=True)
+    _say(args, f"A/E lives {100 * overall['ae_lives']:.1f} % "
+               f"({100 * overall['ae_lives_lower']:.1f} % to {100 * overall['ae_lives_upper']:.1f} %); "
+               f"A/E amounts {100 * overall['ae_amounts']:.1f} %")
+    _say(args, f"written to {out}/")
+    return EXIT_OK
+
+
+def build_parser() -> argparse.ArgumentParser:
+    fmt = argparse.RawDescriptionHelpFormatter
+    p = argparse.ArgumentParser(
+        prog="valuation", formatter_class=fmt,
+        description="Value defined-benefit pension schemes: liabilities, cash flows, sensitivities, experience.",
+        epilog=EPILOG_EXIT,
+    )
+    p.add_argument("--version", action="version", version=f"valuation {__version__}")
+    sub = p.add_subparsers(dest="command", required=True, metavar="COMMAND")
+
+    def common(sp: argparse.ArgumentParser) -> None:
+        sp.add_argument("-q", "--quiet", action="store_true", help="print nothing but errors; no progress bars")
+
+    r = sub.add_parser("run", help="value a scheme on a basis and write a run folder", formatter_class=fmt,
+                       epilog=textwrap.dedent("""\
+        examples:
+          valuation run assumptions/demo_basis.toml member_data_demo/members.csv --out outputs/demo
+          valuation run basis.toml members.parquet --no-sensitivities --quiet
+        """) + EPILOG_EXIT)
+    r.add_argument("basis", help="assumptions basis (TOML)")
+    r.add_argument("members", help="member data file (CSV, XLSX or Parquet)")
+    r.add_argument("--out", help="run folder to write (default: outputs/<member file name>)")
+    r.add_argument("--no-sensitivities", action="store_true", help="skip the sensitivity re-valuations")
+    r.add_argument("--no-reports", action="store_true", help="skip the workbook and HTML summary")
+    r.add_argument("--chunk-size", type=int, default=200_000, help="members valued at a time (memory bound)")
+    common(r)
+    r.set_defaults(func=cmd_run)
+
+    c = sub.add_parser("check", help="validate member data and basis without valuing", formatter_class=fmt,
+                       epilog="example:\n  valuation check assumptions/demo_basis.toml member_data_demo/members_dirty.csv"
+                              " --exceptions exceptions.csv\n" + EPILOG_EXIT)
+    c.add_argument("basis")
+    c.add_argument("members")
+    c.add_argument("--exceptions", help="write the exceptions list to this CSV file")
+    common(c)
+    c.set_defaults(func=cmd_check)
+
+    b = sub.add_parser("batch", help="run every valuation listed in a batch file", formatter_class=fmt,
+                       epilog="example:\n  valuation batch assumptions/demo_batch.toml\n" + EPILOG_EXIT)
+    b.add_argument("batch", help="batch file (TOML) listing runs")
+    b.add_argument("--out", help="folder for the run folders and the index (default: from the batch file)")
+    common(b)
+    b.set_defaults(func=cmd_batch)
+
+    s = sub.add_parser("synth", help="write a synthetic scheme of any size, reproducibly", formatter_class=fmt,
+                       epilog="example:\n  valuation synth --members 1000000 --seed 7 --out outputs/synth.parquet\n"
+                              + EPILOG_EXIT)
+    s.add_argument("--members", type=int, required=True, help="number of member records")
+    s.add_argument("--seed", type=int, default=1, help="random seed (same seed, same file)")
+    s.add_argument("--valuation-date", default="2026-12-31", help="ISO date the ages refer to")
+    s.add_argument("--out", required=True, help="output file: .csv, .parquet or .xlsx")
+    common(s)
+    s.set_defaults(func=cmd_synth)
+
+    e = sub.add_parser("experience", help="actual against expected deaths over a period", formatter_class=fmt,
+                       epilog=textwrap.dedent("""\
+        example:
+          valuation experience assumptions/demo_basis.toml member_data_demo/members_start.csv \\
+              member_data_demo/deaths.csv --start 2023-12-31 --end 2026-12-31 \\
+              --exits member_data_demo/exits.csv --valuation-members member_data_demo/members.csv
+        """) + EPILOG_EXIT)
+    e.add_argument("basis")
+    e.add_argument("members", help="member data at the start of the period")
+    e.add_argument("deaths", help="deaths file: member_id, date_of_death[, pension_at_death]")
+    e.add_argument("--start", required=True, help="period start (ISO date)")
+    e.add_argument("--end", required=True, help="period end (ISO date)")
+    e.add_argument("--exits", help="other exits: member_id, exit_date, reason")
+    e.add_argument("--valuation-members", help="member data at the valuation date, to re-value at the implied table")
+    e.add_argument("--exposure", choices=["central", "initial"], default="central")
+    e.add_argument("--confidence", type=float, default=0.95)
+    e.add_argument("--overdispersion", type=float, default=1.0, help="variance factor for amounts")
+    e.add_argument("--late-months", type=int, default=0, help="final months with late-reported deaths")
+    e.add_argument("--late-uplift", type=float, default=0.0, help="uplift to deaths in those months, e.g. 0.05")
+    e.add_argument("--out", help="folder to write (default: outputs/experience)")
+    common(e)
+    e.set_defaults(func=cmd_experience)
+    return p
 
 
 def main(argv: list[str] | None = None) -> int:
-    print("valuation: commands are not wired yet", file=sys.stderr)
-    return 2
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    try:
+        return int(args.func(args))
+    except ValuationError as exc:
+        print(f"valuation: error: {exc}", file=sys.stderr)
+        return EXIT_INPUT
+    except FileNotFoundError as exc:
+        print(f"valuation: error: {exc.filename or exc}: file not found", file=sys.stderr)
+        return EXIT_INPUT
+    except KeyboardInterrupt:  # pragma: no cover
+        print("valuation: interrupted; no partial output was kept", file=sys.stderr)
+        return 130
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -44,7 +44,7 @@ from valuation.basis.rules import (
     Thresholds,
     TrancheRule,
 )
-from valuation.errors import BasisError
+from valuation.errors import BasisError, ValuationError
 from valuation.members.schema import OUR_COLUMNS, known_columns, tranche_column
 
 _TRANCHE_NAME = re.compile(r"^[a-z][a-z0-9_]*$")
@@ -280,28 +280,32 @@ class Basis(BaseModel):
             try:
                 table = resolve_table(entry.table, self.base_dir, entry.table_name)
                 improvement = build_improvement(entry.improvement, self.base_dir)
-            except (FileNotFoundError, KeyError, ValueError) as exc:
-                raise BasisError(f"key '{key}': {exc}", file=self.source_path,
-                                 fix="give a bundled table name (SULT, DEMO_M, DEMO_F) or a path relative "
-                                 "to the basis file") from exc
-            self._cache[key] = MortalityBasis(
-                table,
-                percentage=entry.percentage,
-                age_rating=entry.age_rating,
-                improvement=improvement,
-                base_year=entry.base_year,
-            )
+                mb = MortalityBasis(
+                    table,
+                    percentage=entry.percentage,
+                    age_rating=entry.age_rating,
+                    improvement=improvement,  # type: ignore[arg-type]
+                    base_year=entry.base_year,
+                )
+            except (ValuationError, FileNotFoundError, KeyError, ValueError) as exc:
+                fix = getattr(exc, "fix", None) or (
+                    "give a bundled table name (SULT, DEMO_M, DEMO_F) or a table file path relative to the "
+                    "basis file, and a valid improvement")
+                raise BasisError(f"key '{key}': {exc}", file=self.source_path, fix=fix) from exc
+            self._cache[key] = mb
         return self._cache[key]
 
     def closing_age(self, group: Group, sex: Literal["M", "F"]) -> int:
         """Oldest integer age [years] the group's table can value after its age rating.
 
         A life whose age (under the basis's age convention, whole years) exceeds it is beyond the table.
+        At this age q = 1 (the table is closed); a negative rating does not extend the table
+        (:class:`~valuation.mortality.basis.MortalityBasis` rule).
         """
         entry_k = self.mortality_key(group, sex)
         _, g, s = entry_k.split(".")
         rating = self.mortality_entries[g][s].age_rating  # type: ignore[index]
-        return int(self.mortality(group, sex).table.max_age) - rating
+        return int(self.mortality(group, sex).table.max_age) - max(rating, 0)
 
     def as_dict(self) -> dict[str, Any]:
         """The basis as loaded, JSON-serialisable (TOML key names), for a run's manifest."""

@@ -13,6 +13,7 @@ from __future__ import annotations
 from pathlib import Path
 from typing import Annotated, Literal
 
+import numpy as np
 from pydantic import BaseModel, Field, model_validator
 
 from valuation.basis.rules import STRICT
@@ -46,8 +47,22 @@ class ConstantImprovementSpec(BaseModel):
     rate: float = Field(ge=-0.1, le=0.1)
 
 
+def _knots_increase(ages: list[int], what: str) -> None:
+    if any(b <= a for a, b in zip(ages, ages[1:], strict=False)):
+        raise ValueError(f"'{what}' must increase strictly, got {ages}")
+
+
+def interpolate_knots(ages: list[int], rates: list[float]) -> tuple[list[int], list[float]]:
+    """Rates at every integer age from the first to the last knot, linear between knots (stated rule).
+
+    Outside the knots the scale takes the nearest age's rate (the improvement module's rule).
+    """
+    full = np.arange(ages[0], ages[-1] + 1)
+    return full.tolist(), np.interp(full, ages, rates).tolist()
+
+
 class ByAgeImprovementSpec(BaseModel):
-    """Improvement rates by age [per annum], the same in every year."""
+    """Improvement rates [per annum] at knot ``ages``, linear between knots, the same in every year."""
 
     model_config = STRICT
     kind: Literal["by_age"]
@@ -58,6 +73,7 @@ class ByAgeImprovementSpec(BaseModel):
     def _same_length(self) -> ByAgeImprovementSpec:
         if len(self.ages) != len(self.rates):
             raise ValueError(f"'ages' has {len(self.ages)} values but 'rates' has {len(self.rates)}")
+        _knots_increase(self.ages, "ages")
         return self
 
 
@@ -67,14 +83,15 @@ class TableImprovementSpec(BaseModel):
     model_config = STRICT
     kind: Literal["table"]
     file: str
-    after_last_year: Literal["hold", "long_term"] = "hold"
-    long_term_rate: float | None = Field(default=None, ge=-0.1, le=0.1)
+    after_last_year: Literal["hold_last", "long_term", "zero"] = "hold_last"
+    long_term_rate: float = Field(default=0.0, ge=-0.1, le=0.1)
 
 
 class ConvergenceImprovementSpec(BaseModel):
     """Initial improvement rates by age moving to a ``long_term_rate`` over ``convergence_years``.
 
-    ``shape``: ``"linear"`` or ``"smooth"`` path from initial to long-term rates.
+    ``initial_ages`` are knot ages: initial rates are linear between them. ``shape``: ``"linear"`` or
+    ``"smooth"`` path from initial to long-term rates.
     """
 
     model_config = STRICT
@@ -83,7 +100,7 @@ class ConvergenceImprovementSpec(BaseModel):
     initial_rates: list[float] = Field(min_length=1)
     long_term_rate: float = Field(ge=-0.1, le=0.1)
     start_year: int = Field(ge=1800, le=2300)
-    convergence_years: int = Field(ge=0, le=100)
+    convergence_years: int = Field(ge=1, le=100)
     shape: Literal["linear", "smooth"] = "linear"
 
     @model_validator(mode="after")
@@ -93,6 +110,7 @@ class ConvergenceImprovementSpec(BaseModel):
                 f"'initial_ages' has {len(self.initial_ages)} values but 'initial_rates' has "
                 f"{len(self.initial_rates)}"
             )
+        _knots_increase(self.initial_ages, "initial_ages")
         return self
 
 
@@ -144,14 +162,15 @@ def build_improvement(spec: ImprovementSpec, base_dir: Path) -> object:
     if isinstance(spec, ConstantImprovementSpec):
         return imp.ConstantImprovement(spec.rate)
     if isinstance(spec, ByAgeImprovementSpec):
-        return imp.AgeImprovement(spec.ages, spec.rates)
+        return imp.AgeImprovement(*interpolate_knots(spec.ages, spec.rates))
     if isinstance(spec, TableImprovementSpec):
         return imp.load_improvement_table(
             base_dir / spec.file, after_last_year=spec.after_last_year, long_term_rate=spec.long_term_rate
         )
+    ages, rates = interpolate_knots(spec.initial_ages, spec.initial_rates)
     return imp.ConvergenceScale(
-        spec.initial_ages,
-        spec.initial_rates,
+        ages,
+        rates,
         spec.long_term_rate,
         spec.start_year,
         spec.convergence_years,

@@ -48,12 +48,15 @@ class CheckedEvents:
     counts: dict[str, dict[str, int]]
 
 
-def _problems(
-    df: pl.DataFrame, file: str, checks: list[tuple[pl.Expr, str, pl.Expr, pl.Expr, str]]
-) -> pl.DataFrame:
+Check = tuple[str, str, pl.Expr, pl.Expr, str]  # flag column, checked column, value, reason, severity
+
+
+def _problems(df: pl.DataFrame, file: str, checks: list[Check]) -> pl.DataFrame:
     frames = []
     for flag, column, value, reason, severity in checks:
-        hit = df.filter(flag)
+        if df.height == 0 or not df[flag].any():
+            continue
+        hit = df.filter(pl.col(flag))
         if hit.height:
             frames.append(
                 hit.select(
@@ -80,7 +83,7 @@ def _basic_checks(
     end: date,
     members_file: str,
     date_format: str | None,
-) -> tuple[pl.DataFrame, list[tuple[pl.Expr, str, pl.Expr, pl.Expr, str]]]:
+) -> tuple[pl.DataFrame, list[Check]]:
     expected = "YYYY-MM-DD" + (f" or {date_format}" if date_format else "")
     flags = df.with_columns(
         (pl.col("member_id").is_null()).alias("_no_id"),
@@ -99,9 +102,9 @@ def _basic_checks(
     )
     s, e = start.isoformat(), end.isoformat()
     checks = [
-        (pl.col("_no_id"), "member_id", pl.lit(""), pl.lit(f"{what} row has no member_id"), "excluded"),
+        ("_no_id", "member_id", pl.lit(""), pl.lit(f"{what} row has no member_id"), "excluded"),
         (
-            pl.col("_bad_date"),
+            "_bad_date",
             date_column,
             pl.col("date_text").fill_null(""),
             pl.format(
@@ -110,7 +113,7 @@ def _basic_checks(
             "excluded",
         ),
         (
-            pl.col("_unknown"),
+            "_unknown",
             "member_id",
             pl.col("member_id"),
             pl.format(
@@ -120,7 +123,7 @@ def _basic_checks(
             "excluded",
         ),
         (
-            pl.col("_excluded_member"),
+            "_excluded_member",
             "member_id",
             pl.col("member_id"),
             pl.format(
@@ -131,7 +134,7 @@ def _basic_checks(
             "excluded",
         ),
         (
-            pl.col("_before"),
+            "_before",
             date_column,
             pl.col("date_text"),
             pl.format(
@@ -142,7 +145,7 @@ def _basic_checks(
             "excluded",
         ),
         (
-            pl.col("_after"),
+            "_after",
             date_column,
             pl.col("date_text"),
             pl.format(
@@ -165,14 +168,14 @@ def _basic_checks(
     return flags, checks
 
 
-def _duplicates(ok: pl.DataFrame, what: str, date_column: str) -> tuple[pl.DataFrame, list]:
+def _duplicates(ok: pl.DataFrame, what: str, date_column: str) -> tuple[pl.DataFrame, list[Check]]:
     ranked = ok.sort(["member_id", "date", "row"]).with_columns(
         pl.col("row").first().over("member_id").alias("_kept_row"),
         pl.col("date").first().over("member_id").dt.to_string("%Y-%m-%d").alias("_kept_date"),
         (pl.int_range(pl.len()).over("member_id") > 0).alias("_dup"),
     )
     check = (
-        pl.col("_dup"),
+        "_dup",
         date_column,
         pl.col("date_text"),
         pl.format(
@@ -258,7 +261,7 @@ def check_events(
         both.select("member_id", "_death", "_death_row"), on="member_id", how="left"
     ).with_columns((pl.col("_death") <= pl.col("date")).fill_null(False).alias("_after_death"))
     after_exit = (
-        pl.col("_after_exit"),
+        "_after_exit",
         "date_of_death",
         pl.col("date_text"),
         pl.format(
@@ -271,7 +274,7 @@ def check_events(
         "excluded",
     )
     after_death = (
-        pl.col("_after_death"),
+        "_after_death",
         "exit_date",
         pl.col("date_text"),
         pl.format(
@@ -289,7 +292,7 @@ def check_events(
         & (pl.col("pension_at_death").is_null() | (pl.col("pension_at_death") < 0))
     )
     pension_warning = (
-        bad_pension,
+        "_bad_pension",
         "pension_at_death",
         pl.col("pension_text"),
         pl.format(
@@ -297,7 +300,7 @@ def check_events(
         ),
         "warning",
     )
-    d_counted = d_first.filter(~pl.col("_after_exit"))
+    d_counted = d_first.filter(~pl.col("_after_exit")).with_columns(bad_pension.alias("_bad_pension"))
     x_applied = x_first.filter(~pl.col("_after_death"))
 
     exceptions = pl.concat(
@@ -317,7 +320,10 @@ def check_events(
         "member_id",
         "row",
         "date",
-        pl.when(bad_pension).then(None).otherwise(pl.col("pension_at_death")).alias("pension_at_death"),
+        pl.when(pl.col("_bad_pension"))
+        .then(None)
+        .otherwise(pl.col("pension_at_death"))
+        .alias("pension_at_death"),
     )
     exits_out = x_applied.select("member_id", "row", "date", "reason")
     counts = {

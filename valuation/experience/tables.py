@@ -12,7 +12,7 @@ from valuation.experience.intervals import ae_amounts_interval, ae_lives_interva
 #: Dimensions of the A/E table, in output order.
 DIMENSIONS: tuple[str, ...] = ("overall", "sex", "status", "age_band", "pension_band", "calendar_year")
 
-_STATUS_ORDER = {"pensioner": 0, "dependant": 1, "deferred": 2, "active": 3}
+_STATUS_ORDER: dict[str, float] = {"pensioner": 0, "dependant": 1, "deferred": 2, "active": 3}
 
 
 def _round2(x: float) -> float:
@@ -53,21 +53,34 @@ def pension_band_labels(pension: pl.Series, edges: tuple[float, ...]) -> tuple[p
     return out, {label: i for i, label in enumerate(labels)}
 
 
-def _grouped(cells: pl.DataFrame, dimension: str, key: pl.Expr, order: pl.Expr) -> pl.DataFrame:
-    return (
-        cells.with_columns(key.alias("group"), order.alias("_order"))
-        .group_by("group", "_order")
-        .agg(
-            pl.col("exposure").sum().alias("exposure_years"),
-            pl.col("actual_lives").sum(),
-            pl.col("expected_lives").sum(),
-            pl.col("actual_amounts").sum(),
-            pl.col("expected_amounts").sum(),
-            pl.col("var_amounts").sum(),
+_SUMS: tuple[tuple[str, str], ...] = (
+    ("exposure", "exposure_years"),
+    ("actual_lives", "actual_lives"),
+    ("expected_lives", "expected_lives"),
+    ("actual_amounts", "actual_amounts"),
+    ("expected_amounts", "expected_amounts"),
+    ("var_amounts", "var_amounts"),
+)
+
+
+def _grouped(
+    sums: dict[str, np.ndarray], dimension: str, keys: np.ndarray, order: dict[str, float] | None
+) -> pl.DataFrame:
+    """Sum the cell columns by ``keys`` (numpy bincount); groups sorted by ``order`` (default: the key)."""
+    labels, inverse = np.unique(keys, return_inverse=True)
+    names = [str(v) for v in labels.tolist()]
+    data: dict[str, object] = {"dimension": [dimension] * len(names), "group": names}
+    for source, target in _SUMS:
+        data[target] = np.bincount(inverse, weights=sums[source], minlength=len(names))
+    frame = pl.DataFrame(data)
+    if order is not None:
+        rank = [order.get(n, len(order)) for n in names]  # one entry a group, never one a member
+        frame = (
+            frame.with_columns(pl.Series("_rank", rank, dtype=pl.Float64))
+            .sort("_rank", "group")
+            .drop("_rank")
         )
-        .sort("_order", "group")
-        .with_columns(pl.lit(dimension).alias("dimension"))
-    )
+    return frame
 
 
 def ae_table(
@@ -102,26 +115,28 @@ def ae_table(
     Garwood (1936) exact Poisson limits for lives; normal interval with Var = phi sum w^2 E for amounts
     (see :mod:`valuation.experience.intervals`).
     """
-    band_floor = (pl.col("age") // 5) * 5
+    sums = {source: cells[source].to_numpy().astype(float) for source, _ in _SUMS}
+    age = cells["age"].to_numpy()
+    floor = (age // 5) * 5
+    ages = {f"{b}-{b + 4}": float(b) for b in np.unique(floor).tolist()}
+    years = cells["year"].to_numpy()
     parts = [
-        _grouped(cells, "overall", pl.lit("all"), pl.lit(0)),
-        _grouped(cells, "sex", pl.col("sex"), pl.col("sex").replace_strict({"M": 0, "F": 1}, default=2)),
-        _grouped(cells, "status", pl.col("group"), pl.col("group").replace_strict(_STATUS_ORDER, default=9)),
+        _grouped(sums, "overall", np.zeros(cells.height, dtype=np.int64), None),
+        _grouped(sums, "sex", cells["sex"].to_numpy().astype(str), {"M": 0, "F": 1}),
+        _grouped(sums, "status", cells["group"].to_numpy().astype(str), _STATUS_ORDER),
         _grouped(
-            cells,
-            "age_band",
-            pl.format("{}-{}", band_floor, band_floor + 4),
-            band_floor,
+            sums, "age_band", np.char.add(np.char.add(floor.astype(str), "-"), (floor + 4).astype(str)), ages
         ),
-        _grouped(
-            cells,
-            "pension_band",
-            pl.col("pension_band"),
-            pl.col("pension_band").replace_strict(band_order, default=len(band_order)),
-        ),
-        _grouped(cells, "calendar_year", pl.col("year").cast(pl.String), pl.col("year")),
+        _grouped(sums, "pension_band", cells["pension_band"].to_numpy().astype(str), band_order),
+        _grouped(sums, "calendar_year", years, None),
     ]
-    table = pl.concat([p.with_columns(pl.col("_order").cast(pl.Int64)) for p in parts], how="vertical")
+    table = pl.concat(parts, how="vertical")
+    table = table.with_columns(
+        pl.when(pl.col("dimension") == "overall")
+        .then(pl.lit("all"))
+        .otherwise(pl.col("group"))
+        .alias("group")
+    )
     a = table["actual_lives"].to_numpy()
     e = table["expected_lives"].to_numpy()
     lo, hi = ae_lives_interval(a, e, confidence)

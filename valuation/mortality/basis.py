@@ -96,6 +96,10 @@ class MortalityBasis:
         """Cohort rows: shape (len(cohorts), max_age + 1); [r, j] = q(j, cohorts[r] + j); column max_age = 1.
 
         ``cohorts`` are birth years [calendar year]; column index = age [years].
+
+        References
+        ----------
+        [MP2014] section 2 (generational, cohort rates: a life aged x in year Y uses q(x + t, Y + t)).
         """
         c = np.asarray(cohorts, dtype=np.int64).reshape(-1, 1)
         ages = np.arange(max_age + 1, dtype=np.int64)[None, :]
@@ -104,7 +108,12 @@ class MortalityBasis:
         return q
 
     def period_q(self, year: int, max_age: int = 120) -> NDArray[np.float64]:
-        """Period rates q(j, year) for ages j = 0 .. max_age [probability]; the last entry is 1."""
+        """Period rates q(j, year) for ages j = 0 .. max_age [probability]; the last entry is 1.
+
+        References
+        ----------
+        [DHW] section 2.6 and METHODS.md "Life table": period rates use one calendar year's q.
+        """
         ages = np.arange(max_age + 1, dtype=np.int64)
         q = self.q(ages, np.full_like(ages, int(year)))
         q[max_age] = 1.0

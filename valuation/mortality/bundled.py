@@ -80,12 +80,16 @@ def write_bundled_files(directory: Path = DATA_DIR) -> list[Path]:
     return written
 
 
-@functools.lru_cache(maxsize=None)
 def bundled_table(name: str) -> MortalityTable:
     """A bundled table by name: one of :data:`BUNDLED` (case-insensitive). Cached; arrays are read-only."""
     key = name.strip().upper()
     if key not in _SPECS:
         raise TableError(f"unknown bundled table '{name}'", column=name, fix=f"use one of {', '.join(BUNDLED)}")
+    return _load_bundled(key)
+
+
+@functools.lru_cache(maxsize=None)
+def _load_bundled(key: str) -> MortalityTable:
     fname, column, _law, _lo, _hi, base_year, source = _SPECS[key]
     t = load_tables(DATA_DIR / fname, closing="require")[column]
     return MortalityTable(key, t.min_age, t.qx, base_year=base_year, source=source)

@@ -82,6 +82,19 @@ class MortalityTable:
                 f"table '{self.name}': select_qx has {self.select_qx.shape[0]} ages, qx has {self.qx.size}"
             )
 
+    def _key(self) -> tuple[object, ...]:
+        sel = None if self.select_qx is None else (self.select_qx.shape, self.select_qx.tobytes())
+        return (self.name, self.min_age, self.base_year, self.source, self.qx.tobytes(), sel)
+
+    def __eq__(self, other: object) -> bool:
+        """Value equality (arrays compared element by element), so tables can be compared and hashed."""
+        if not isinstance(other, MortalityTable):
+            return NotImplemented
+        return self._key() == other._key()
+
+    def __hash__(self) -> int:
+        return hash(self._key())
+
     @property
     def max_age(self) -> int:
         """Closing age [years]: the last age of the table, where q = 1."""

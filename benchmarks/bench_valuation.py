@@ -1,0 +1,74 @@
+"""Benchmark: value a synthetic scheme and print wall time, peak memory and members per second.
+
+Usage::
+
+    .venv/bin/python benchmarks/bench_valuation.py --members 1000000            # with all sensitivities
+    .venv/bin/python benchmarks/bench_valuation.py --members 1000000 --no-sensitivities
+    .venv/bin/python benchmarks/bench_valuation.py --members 10000000 --no-sensitivities --chunk-size 200000
+
+The synthetic scheme (all four statuses, spouses, tranches, guarantees) comes from ``valuation synth``'s
+generator with a fixed seed; the basis is ``assumptions/demo_basis.toml`` (monthly payments,
+generational improvement, every sensitivity). Peak memory is the process's maximum resident set size.
+Results go to stdout only; nothing is timed inside the test suite.
+"""
+
+from __future__ import annotations
+
+import argparse
+import resource
+import sys
+import tempfile
+import time
+from datetime import date
+from pathlib import Path
+
+ROOT = Path(__file__).resolve().parents[1]
+
+
+def peak_mb() -> float:
+    return resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024.0  # Linux reports KiB
+
+
+def main() -> int:
+    ap = argparse.ArgumentParser(description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
+    ap.add_argument("--members", type=int, default=1_000_000)
+    ap.add_argument("--seed", type=int, default=2026)
+    ap.add_argument("--basis", default=str(ROOT / "assumptions" / "demo_basis.toml"))
+    ap.add_argument("--no-sensitivities", action="store_true")
+    ap.add_argument("--chunk-size", type=int, default=200_000)
+    args = ap.parse_args()
+
+    from valuation.basis import load_basis
+    from valuation.engine.run import value_members
+    from valuation.members import read_members
+    from valuation.members.synth import synth_scheme, write_scheme
+
+    basis = load_basis(args.basis)
+    t0 = time.perf_counter()
+    df = synth_scheme(args.members, seed=args.seed, valuation_date=basis.valuation_date)
+    with tempfile.TemporaryDirectory() as tmp:
+        path = Path(tmp) / "scheme.parquet"
+        write_scheme(df, path)
+        del df
+        t_gen = time.perf_counter() - t0
+        t1 = time.perf_counter()
+        data = read_members(path, basis)
+        t_read = time.perf_counter() - t1
+        t2 = time.perf_counter()
+        res = value_members(data, basis, sensitivities=not args.no_sensitivities, chunk_size=args.chunk_size)
+        t_value = time.perf_counter() - t2
+    total = t_read + t_value
+    print(f"members          {args.members:,} (valued {data.valued:,}, excluded {data.excluded:,})")
+    print(f"sensitivities    {0 if args.no_sensitivities else len(res.summary['sensitivities'])}")
+    print(f"generate+write   {t_gen:8.1f} s (not counted)")
+    print(f"read+validate    {t_read:8.1f} s")
+    print(f"value            {t_value:8.1f} s")
+    print(f"wall (read+value){total:8.1f} s")
+    print(f"members/second   {args.members / total:,.0f}")
+    print(f"peak memory      {peak_mb():,.0f} MB")
+    print(f"liability        {res.summary['liability']['total']:,.0f}")
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())

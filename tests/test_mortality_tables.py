@@ -1,0 +1,142 @@
+"""Bundled tables and life-table identities, checked against published values and formulas.
+
+Sources: [DHW] Dickson, Hardy & Waters, *Actuarial Mathematics for Life Contingent Risks*, 2nd ed.,
+Appendix D (Standard Ultimate Life Table, SULT) and chapters 2-3; the same SULT values are printed in the
+SOA long-term actuarial mathematics exam tables. ``actuarialmath`` (PyPI) is a test-only cross-check.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from valuation.errors import TableError
+from valuation.mortality import BUNDLED, MortalityTable, bundled_table, resolve_table
+from valuation.mortality.bundled import write_bundled_files
+
+DATA = Path(__file__).parent / "data" / "mortality"
+
+# SULT Makeham parameters as printed in [DHW] Appendix D.
+A, B, C = 0.00022, 2.7e-6, 1.124
+
+
+def makeham_tpx(x, t):
+    """[DHW] eq. (2.29): tp_x = exp(-A t - B c^x (c^t - 1) / ln c), typed in here from the book."""
+    x = np.asarray(x, dtype=float)
+    return np.exp(-A * t - B * C**x * (C**t - 1.0) / np.log(C))
+
+
+@pytest.mark.parametrize(
+    "age, published",
+    # [DHW] Appendix D, SULT l_x column (printed to 0.1); also the SOA LTAM exam tables.
+    [(60, 96_634.1), (65, 94_579.7), (70, 91_082.4)],
+)
+def test_sult_lx_matches_published_table(age, published):
+    lx = bundled_table("SULT").lx(100_000.0)
+    assert lx[age - 20] == pytest.approx(published, abs=0.05)
+
+
+def test_sult_annuity_due_65_matches_published_value():
+    """[DHW] Appendix D: a-due_65 = 13.5498 at i = 5 % (printed to 4 decimals)."""
+    lx = bundled_table("SULT").lx()
+    l65 = lx[65 - 20 :]
+    v = 1.05 ** -np.arange(l65.size)
+    assert np.sum(v * l65) / l65[0] == pytest.approx(13.5498, abs=5e-5)
+
+
+def test_sult_qx_is_makeham_closed_form_with_closing_rule():
+    """q_x = 1 - 1p_x from [DHW] eq. (2.29) at ages 20..119; q_120 = 1 is the stated closing rule."""
+    t = bundled_table("SULT")
+    ages = np.arange(20, 120)
+    assert t.min_age == 20 and t.max_age == 120
+    np.testing.assert_allclose(t.qx[:-1], 1.0 - makeham_tpx(ages, 1.0), rtol=1e-13)
+    assert t.qx[-1] == 1.0
+    assert t.base_year is None
+    assert "Appendix D" in t.source and "q_120 = 1" in t.source
+
+
+def test_sult_lx_agrees_with_actuarialmath():
+    """Cross-check against actuarialmath's SULT (test-only library), ages 20..100, to 1e-9 relative."""
+    am = pytest.importorskip("actuarialmath")
+    ref = am.SULT()
+    lx = bundled_table("SULT").lx()
+    ages = np.arange(20, 101)
+    np.testing.assert_allclose(lx[ages - 20], [ref.l_x(int(a)) for a in ages], rtol=1e-9)
+
+
+def test_bundled_files_match_their_laws(tmp_path):
+    """The shipped CSV files are exactly what the laws produce (provenance in data/README.md)."""
+    for fresh in write_bundled_files(tmp_path):
+        shipped = Path(__file__).parents[1] / "valuation" / "mortality" / "data" / fresh.name
+        assert shipped.read_text() == fresh.read_text()
+
+
+@pytest.mark.parametrize("name", BUNDLED)
+def test_life_table_identities(name):
+    """[DHW] ch. 3 / [BGHJN] ch. 3 (METHODS.md "Life table"): d_x = l_x - l_{x+1}, q_x = d_x / l_x,
+    tp_x = l_{x+t} / l_x = prod of p, u|tq_x = (l_{x+u} - l_{x+u+t}) / l_x = up_x * tq_{x+u}."""
+    t = bundled_table(name)
+    lx = t.lx(100_000.0)
+    dx = lx[:-1] - lx[1:]
+    np.testing.assert_allclose(dx / lx[:-1], t.qx, rtol=1e-12)
+    assert lx[-1] == 0.0  # q = 1 at the closing age
+    n = t.qx.size
+    x = np.arange(0, n - 30)
+    for tt in (1, 5, 10, 30):
+        tpx_l = lx[x + tt] / lx[x]
+        tpx_prod = np.array([np.prod(1.0 - t.qx[i : i + tt]) for i in x])  # definition, not cumprod
+        np.testing.assert_allclose(tpx_l, tpx_prod, rtol=1e-12)
+    u, tt = 7, 4
+    lhs = (lx[x + u] - lx[x + u + tt]) / lx[x]
+    rhs = (lx[x + u] / lx[x]) * (1.0 - lx[x + u + tt] / lx[x + u])
+    np.testing.assert_allclose(lhs, rhs, rtol=1e-12)
+
+
+def test_sult_tpx_matches_makeham_survival_function():
+    """tp_x = l_{x+t} / l_x against [DHW] eq. (2.29) for t up to 40 years (before the closing age)."""
+    lx = bundled_table("SULT").lx()
+    x = np.arange(20, 80)
+    for tt in (1, 10, 40):
+        np.testing.assert_allclose(lx[x + tt - 20] / lx[x - 20], makeham_tpx(x, tt), rtol=1e-12)
+
+
+def test_demo_tables_are_illustrative_with_base_year():
+    m, f = bundled_table("DEMO_M"), bundled_table("DEMO_F")
+    for t in (m, f):
+        assert (t.min_age, t.max_age, t.base_year) == (0, 120, 2020)
+        assert "not fitted to any population" in t.source
+        assert np.all(np.diff(t.qx) > 0)  # Makeham with B > 0, c > 1 is increasing in age ([DHW] 2.7)
+    assert np.all(f.qx[:-1] < m.qx[:-1])  # the female law has smaller A and B (laws.py parameters)
+
+
+def test_table_q_lookup_rules():
+    """Stated rules of MortalityTable.q: past the closing age q = 1; below min_age q at min_age;
+    any shape; non-integer ages floored."""
+    t = MortalityTable("T", 60, [0.1, 0.2, 1.0])
+    got = t.q(np.array([[50, 60], [61, 62], [63, 200]]))
+    np.testing.assert_array_equal(got, [[0.1, 0.1], [0.2, 1.0], [1.0, 1.0]])
+    np.testing.assert_array_equal(t.q([60.9, 61.2]), [0.1, 0.2])
+    np.testing.assert_allclose(t.lx(1000.0), [1000.0, 900.0, 720.0, 0.0], rtol=1e-15)  # by hand
+    assert t.max_age == 62
+    with pytest.raises(ValueError):
+        t.qx[0] = 0.5  # arrays are read-only so cached tables cannot be changed
+    # Value equality and hashing, so tables (and bases holding them) can be cache keys.
+    same = MortalityTable("T", 60, np.array([0.1, 0.2, 1.0]))
+    assert same == t and hash(same) == hash(t) and MortalityTable("T", 60, [0.1, 0.3, 1.0]) != t
+
+
+def test_bundled_names_are_case_insensitive_and_cached():
+    assert bundled_table("sult") is bundled_table("SULT")
+    with pytest.raises(TableError, match="unknown bundled table 'XYZ'"):
+        bundled_table("XYZ")
+
+
+def test_resolve_table_bundled_or_file():
+    assert resolve_table("DEMO_F").name == "DEMO_F"
+    t = resolve_table("small.csv", base_dir=DATA, name="F")
+    assert (t.name, t.min_age, t.max_age) == ("F", 60, 66)
+    with pytest.raises(TableError, match="neither a bundled table nor an existing file") as e:
+        resolve_table("nope.csv", base_dir=DATA)
+    assert "nope.csv" in str(e.value)

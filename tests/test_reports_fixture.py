@@ -1,0 +1,126 @@
+"""A small hand-made valuation result for the report tests, with hostile text in member fields.
+
+The figures are invented (not the output of a valuation) and only need to be internally consistent:
+the reports must show what the result holds, whatever it holds. The hostile strings are the classic
+spreadsheet formula-injection probes (OWASP, "CSV Injection") and an HTML script probe (OWASP XSS
+filter evasion cheat sheet).
+"""
+
+from __future__ import annotations
+
+from datetime import date
+
+import polars as pl
+
+from valuation.engine.results import ValuationResult
+from valuation.experience.result import TABLE_COLUMNS, ExperienceResult
+from valuation.experience.settings import ExperienceSettings
+
+FORMULA_PROBES = ["=1+1", "+44", "-3", "@SUM(A1)"]
+SCRIPT_PROBE = "<script>alert(1)</script>"
+
+
+def make_result(n_members: int = 6) -> ValuationResult:
+    ids = (FORMULA_PROBES + [f"M{i:04d}" for i in range(n_members)])[:n_members]
+    members = pl.DataFrame({
+        "member_id": ids,
+        "status": (["pensioner", "deferred", "active"] * n_members)[:n_members],
+        "sex": (["M", "F"] * n_members)[:n_members],
+        "age": [70.25, 55.5, 40.0, 81.0, 66.0, 35.75][: n_members] + [50.0] * max(0, n_members - 6),
+        "pension": [12000.0, 5000.0, 3000.0, 8000.0, 9000.0, 1000.0][:n_members] + [2000.0] * max(0, n_members - 6),
+        "liability": [180000.0, 60000.0, 30000.0, 80000.0, 150000.0, 8000.0][:n_members]
+        + [20000.0] * max(0, n_members - 6),
+        "member_liability": [1.0] * n_members, "spouse_liability": [0.5] * n_members,
+        "lump_sum_liability": [0.0] * n_members, "annuity_factor": [15.0] * n_members,
+        "q_next_year": [0.01] * n_members,
+    })
+    exceptions = pl.DataFrame({
+        "file": ["members.csv"] * 6,
+        "row": [2, 3, 4, 5, 6, 7],
+        "member_id": FORMULA_PROBES + [SCRIPT_PROBE, "X9"],
+        "column": ["date_of_birth", "pension", "sex", "status", "member_id", "pension"],
+        "value": ["=HYPERLINK(\"x\")", "+1", "-", "@", SCRIPT_PROBE, "70000"],
+        "reason": ["date of birth is not a date", "pension is negative", "sex code unknown",
+                   "status code unknown", "duplicate member id " + SCRIPT_PROBE, "pension above the large-pension threshold"],
+        "severity": ["excluded"] * 5 + ["warning"],
+    })
+    liabilities = pl.DataFrame({
+        "status": ["pensioner", "pensioner", "deferred", "active"],
+        "sex": ["M", "F", "F", "M"],
+        "tranche": ["post2005", "post2005", "pre2005", "all"],
+        "benefit": ["member_pension", "spouse_pension", "member_pension", "lump_sum"],
+        "liability": [300000.0, 110000.0, 68000.0, 30000.0],
+    })
+    cashflows = pl.DataFrame({
+        "year": [1, 2, 3],
+        "pensioner": [20000.0, 19500.0, 19000.0], "dependant": [0.0, 100.0, 200.0],
+        "deferred": [0.0, 1000.0, 2000.0], "active": [0.0, 0.0, 500.0],
+        "total": [20000.0, 20600.0, 21700.0], "discount_factor": [0.9768, 0.9320, 0.8893],
+        "discounted_total": [19536.0, 19199.2, 19297.8],
+    })
+    sens = pl.DataFrame({
+        "name": ["Discount rate +0.5% p.a.", "Life expectancy +1 year " + SCRIPT_PROBE],
+        "kind": ["discount_rate", "life_expectancy"], "shift": [0.005, 1.0],
+        "liability": [470000.0, 525000.0], "change_pct": [-7.48, 3.35],
+    })
+    le = pl.DataFrame({"sex": ["M", "M", "M", "F"], "age_now": [65, 45, 65, 65], "at_age": [65, 65, 65, 65],
+                       "basis": ["cohort", "cohort", "period", "cohort"], "years": [21.4, 23.1, 20.2, 23.9]})
+    deaths = pl.DataFrame({"status": ["pensioner", "deferred"], "sex": ["M", "F"], "lives": [0.05, 0.01],
+                           "amounts": [600.0, 50.0]})
+    total = 508000.0
+    summary = {
+        "valuation_date": "2025-03-31",
+        "basis_name": "Test basis " + SCRIPT_PROBE,
+        "records": {"read": 11, "valued": 6, "excluded": 5,
+                    "by_status": {"pensioner": {"read": 4, "valued": 2, "excluded": 2},
+                                  "deferred": {"read": 4, "valued": 2, "excluded": 2},
+                                  "active": {"read": 3, "valued": 2, "excluded": 1}}},
+        "liability": {"total": total,
+                      "by_status": {"pensioner": 410000.0, "dependant": 0.0, "deferred": 68000.0, "active": 30000.0},
+                      "by_sex": {"M": 330000.0, "F": 178000.0},
+                      "by_tranche": {"pre2005": 68000.0, "post2005": 410000.0, "lump_sums": 30000.0}},
+        "active_measures": {"projected_obligation": 30000.0, "accrued_benefit_obligation": 25000.0,
+                            "current_service_cost": 1500.0},
+        "duration": {"macaulay": 14.237, "modified": 13.585, "effective": 13.6},
+        "single_equivalent_discount_rate": 0.048,
+        "sensitivities": sens.to_dicts(),
+        "life_expectancy": le.to_dicts(),
+        "expected_deaths_next_year": {"lives": 0.06, "amounts": 650.0, "by_group": deaths.to_dicts()},
+        "assumptions": {"discount_rate_flat": 0.048, "inflation_rate_flat": 0.03, "salary_growth": 0.035,
+                        "retirement_age": 65.0, "payment_frequency": 12, "payment_timing": "advance",
+                        "proportion_married": {"M": 0.8, "F": 0.7}, "spouse_age_difference": 3.0,
+                        "spouse_fraction": 0.5, "commutation_proportion": 0.2, "fractional_age": "udd",
+                        "age_convention": "exact"},
+        "manifest": {
+            "tool_version": "0.1.0", "inputs": {"members.csv": "ab" * 32},
+            "basis": {"name": "=cmd|' /C calc'!A0", "discount": {"rate": 0.048},
+                      "mortality": {"default": {"M": {"table": SCRIPT_PROBE, "percentage": 0.95, "age_rating": 0,
+                                                      "improvement": {"kind": "constant", "rate": 0.01}}}},
+                      "withdrawal": {"rates": [[18.0, 0.1], [30.0, 0.05]]},
+                      "sensitivities": [{"name": "+0.5%", "kind": "discount_rate", "shift": 0.005}]},
+            "settings": {"sensitivities": True}, "started_at": "2025-04-01T09:00:00+00:00", "run_seconds": 0.5,
+        },
+    }
+    return ValuationResult(summary=summary, liabilities=liabilities, cashflows=cashflows, members=members,
+                           sensitivities=sens, life_expectancy=le, expected_deaths=deaths, exceptions=exceptions)
+
+
+def make_experience() -> ExperienceResult:
+    groups = [("overall", "all"), ("sex", "M"), ("age_band", "60-64"), ("age_band", "65-69"), ("age_band", "70-74")]
+    n = len(groups)
+    table = pl.DataFrame({
+        "dimension": [g[0] for g in groups], "group": [g[1] for g in groups],
+        "exposure_years": [300.0, 150.0, 100.0, 120.0, 80.0], "actual_lives": [9.0, 5.0, 2.0, 3.0, 4.0],
+        "expected_lives": [10.0, 5.5, 2.5, 3.5, 4.0], "ae_lives": [0.9, 0.909, 0.8, 0.857, 1.0],
+        "ae_lives_lower": [0.41, 0.30, 0.10, 0.18, 0.27], "ae_lives_upper": [1.71, 2.12, 2.89, 2.50, 2.56],
+        "actual_amounts": [90000.0, 50000.0, 20000.0, 30000.0, 40000.0],
+        "expected_amounts": [95000.0, 52000.0, 24000.0, 33000.0, 38000.0],
+        "ae_amounts": [0.947, 0.96, 0.83, 0.91, 1.05], "ae_amounts_lower": [0.5] * n, "ae_amounts_upper": [1.5] * n,
+    }).select(TABLE_COLUMNS)
+    implied = {"implied_percentage": 90.0, "lower": 47.5, "upper": 142.5, "multiplier": 0.947,
+               "multiplier_lower": 0.5, "multiplier_upper": 1.5, "by_table": [], "note": None,
+               "liability_before": None, "liability_after": None, "change_pct": None,
+               "reason": "no valuation member file given: liability effect not calculated"}
+    settings = ExperienceSettings(period_start=date(2022, 3, 31), period_end=date(2025, 3, 31))
+    return ExperienceResult(settings=settings, table=table, implied=implied, exceptions=pl.DataFrame(),
+                            summary={"overall": table.row(0, named=True)})

@@ -1,0 +1,258 @@
+"""Read and validate one scheme's member file: the valued records plus every problem found.
+
+Row numbers are those of a spreadsheet view of the file: the header is row 1, so the first data row is
+row 2 (for Parquet, which has no header row, the same numbering is used: first record = row 2).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+import polars as pl
+
+from valuation.basis.model import Basis
+from valuation.errors import DataError
+from valuation.members.checks import build_checks
+from valuation.members.parse import clean_text, parse_all, parsed
+from valuation.members.readers import map_headers, read_text_frame
+from valuation.members.schema import (
+    DATE_COLUMNS,
+    GROUP_OF_STATUS,
+    NUMERIC_COLUMNS,
+    REQUIRED,
+    SEXES,
+    STATUSES,
+    known_columns,
+    tranche_column,
+)
+from valuation.survival import age_at
+
+EXCEPTION_SCHEMA: dict[str, type[pl.DataType]] = {
+    "file": pl.String, "row": pl.Int64, "member_id": pl.String, "column": pl.String,
+    "value": pl.String, "reason": pl.String, "severity": pl.String,
+}
+UNKNOWN_STATUS = "(unknown status)"
+
+
+@dataclass
+class MemberData:
+    """Valued member records, the exceptions found, and the reconciliation counts.
+
+    ``records`` holds the valued records, typed (see :func:`read_members`); ``exceptions`` lists every
+    problem (file, row, member_id, column, value as written, reason, severity ``excluded``/``warning``)
+    sorted by row. ``read = valued + excluded`` always holds.
+    """
+
+    path: Path
+    records: pl.DataFrame
+    exceptions: pl.DataFrame
+    read: int
+    valued: int
+    excluded: int
+    ignored_columns: list[str] = field(default_factory=list)
+    _status_counts: pl.DataFrame | None = None
+
+    def counts_by_status(self) -> pl.DataFrame:
+        """Records read, valued and excluded by status, with a ``total`` row last.
+
+        A record whose status code is unknown is counted under ``(unknown status)``.
+        """
+        assert self._status_counts is not None
+        c = self._status_counts
+        total = c.select(pl.lit("total").alias("status"), pl.col("read", "valued", "excluded").sum())
+        return pl.concat([c, total])
+
+    def reconciliation_text(self) -> str:
+        """Plain-text reconciliation, e.g. ``records read 3,012 = valued 2,998 + excluded 14``, then by status."""
+        lines = [f"records read {self.read:,} = valued {self.valued:,} + excluded {self.excluded:,}"]
+        for r in self.counts_by_status().filter(pl.col("status") != "total").iter_rows(named=True):
+            lines.append(f"  {r['status']}: read {r['read']:,} = valued {r['valued']:,} + excluded {r['excluded']:,}")
+        return "\n".join(lines)
+
+
+def _fmt_text(fmt: str | None) -> str:
+    return f"a date as {fmt} or ISO YYYY-MM-DD" if fmt else "an ISO date YYYY-MM-DD"
+
+
+def _closing_expr(basis: Basis, status: pl.Expr, sex: pl.Expr, group: str | None) -> pl.Expr:
+    """Closing age by (status, sex), or by sex alone for a fixed ``group`` (used for spouses)."""
+    out: pl.Expr = pl.lit(None, dtype=pl.Int64)
+    for s in SEXES:
+        for st in STATUSES:
+            if group is None:
+                g = GROUP_OF_STATUS[st]
+                cond = (status == st) & (sex == s)
+            else:
+                g, cond = group, (sex == s)
+            out = pl.when(cond).then(pl.lit(basis.closing_age(g, s))).otherwise(out)  # type: ignore[arg-type]
+    return out
+
+
+def _ages(d: pl.Series, basis: Basis) -> tuple[np.ndarray, np.ndarray]:
+    """Age in whole years under the basis's convention, and exact age [years], at the valuation date."""
+    dob = d.to_numpy().astype("datetime64[D]")
+    with np.errstate(invalid="ignore"):
+        exact = age_at(dob, basis.valuation_date, "exact")
+        conv = np.floor(age_at(dob, basis.valuation_date, basis.age_convention))
+    return conv, exact
+
+
+def _prepare(df: pl.DataFrame, basis: Basis, path: Path, tranche_cols: list[str]) -> pl.DataFrame:
+    missing = [c for c in REQUIRED if c not in df.columns]
+    if missing:
+        mapped = ", ".join(f"'{k}' -> {v}" for k, v in basis.mapping.columns.items()) or "none"
+        raise DataError(
+            f"required column(s) {', '.join(missing)} not found (headers: {', '.join(df.columns)}; "
+            f"mapping in the basis: {mapped})",
+            file=path, column=missing[0],
+            fix="add the column, or map the administrator's header to it under [mapping.columns] in the basis",
+        )
+    wanted = [*REQUIRED, *DATE_COLUMNS[1:], *NUMERIC_COLUMNS, *tranche_cols]
+    df = df.with_columns(pl.lit(None, dtype=pl.String).alias(c) for c in wanted if c not in df.columns)
+    df = df.select(wanted).with_row_index("row", offset=2).with_columns(pl.col("row").cast(pl.Int64))
+    df = df.with_columns(clean_text(wanted))
+    df = parse_all(df, basis.mapping, list(DATE_COLUMNS), [*NUMERIC_COLUMNS, *tranche_cols])
+    tr = [pl.col(parsed(c)) for c in tranche_cols]
+    given = pl.any_horizontal([pl.col(c).is_not_null() for c in tranche_cols]) if tranche_cols else pl.lit(False)
+    df = df.with_columns(
+        _tr_given=given,
+        _tr_sum=pl.sum_horizontal(tr) if tr else pl.lit(0.0),
+        _dup_n=pl.len().over("member_id").cast(pl.Int64),
+        _dup_rows=pl.col("row").cast(pl.String).implode().over("member_id").list.join(", "),
+    ).with_columns(
+        _dup_n=pl.when(pl.col("member_id").is_null()).then(1).otherwise(pl.col("_dup_n")),
+        _pension=pl.when(pl.col(parsed("pension")).is_null() & pl.col("_tr_given"))
+        .then(pl.col("_tr_sum")).otherwise(pl.col(parsed("pension"))),
+    )
+    conv, exact = _ages(df.get_column(parsed("date_of_birth")), basis)
+    sp_conv, _ = _ages(df.get_column(parsed("spouse_date_of_birth")), basis)
+    opposite = pl.col(parsed("sex")).replace_strict({"M": "F", "F": "M"}, default=None)
+    return df.with_columns(
+        _age=pl.Series(conv).fill_nan(None),
+        _exact_age=pl.Series(exact).fill_nan(None),
+        _sp_age=pl.Series(sp_conv).fill_nan(None),
+        _closing=_closing_expr(basis, pl.col(parsed("status")), pl.col(parsed("sex")), None),
+        _sp_closing=_closing_expr(basis, pl.col(parsed("status")), opposite, "spouse"),
+    )
+
+
+def _exceptions(df: pl.DataFrame, basis: Basis, path: Path, tranche_cols: list[str]) -> pl.DataFrame:
+    m = basis.mapping
+    status_codes = ", ".join([*m.status_codes, *STATUSES])
+    sex_codes = ", ".join([*m.sex_codes, *SEXES])
+    checks = build_checks(
+        tranche_cols=tranche_cols, fmt_text=_fmt_text(m.date_format),
+        valuation_date=basis.valuation_date, large=basis.thresholds.large_pension,
+        tiny=basis.thresholds.tiny_pension, old=basis.thresholds.old_age,
+        status_codes=status_codes, sex_codes=sex_codes,
+    )
+    parts = [
+        df.filter(c.mask.fill_null(False)).select(
+            pl.lit(str(path)).alias("file"),
+            pl.col("row"),
+            pl.col("member_id"),
+            pl.lit(c.column).alias("column"),
+            (c.value if c.value is not None else pl.col(c.column)).cast(pl.String).alias("value"),
+            (pl.lit(c.reason) if isinstance(c.reason, str) else c.reason).cast(pl.String).alias("reason"),
+            pl.lit(c.severity).alias("severity"),
+            pl.lit(k).alias("_order"),
+        )
+        for k, c in enumerate(checks)
+    ]
+    out = pl.concat(parts)
+    return out.sort(["row", "_order"]).drop("_order").cast(EXCEPTION_SCHEMA)  # type: ignore[arg-type]
+
+
+def _records(df: pl.DataFrame, basis: Basis, tranche_cols: list[str], all_tranches: list[str]) -> pl.DataFrame:
+    v = parsed
+    pension = pl.col("_pension").fill_null(0.0)
+    default = tranche_column(basis.default_tranche)
+    cols = []
+    for t in all_tranches:
+        given = pl.col(v(t)).fill_null(0.0) if t in tranche_cols else pl.lit(0.0)
+        fallback = pension if t == default else pl.lit(0.0)
+        cols.append(pl.when(pl.col("_tr_given")).then(given).otherwise(fallback).alias(t))
+    return df.select(
+        pl.col("row"),
+        pl.col("member_id"),
+        pl.col(v("status")).alias("status"),
+        pl.col(v("sex")).alias("sex"),
+        pl.col(v("date_of_birth")).alias("date_of_birth"),
+        pension.alias("pension"),
+        *cols,
+        pl.col(v("salary")).fill_null(0.0).alias("salary"),
+        pl.col(v("service_years")).fill_null(0.0).alias("service_years"),
+        pl.col(v("retirement_age")).fill_null(basis.retirement_age).alias("retirement_age"),
+        pl.col(v("spouse_date_of_birth")).alias("spouse_date_of_birth"),
+        pl.col(v("spouse_fraction")).fill_null(basis.spouse.fraction).alias("spouse_fraction"),
+        pl.col(v("guarantee_end")).alias("guarantee_end"),
+        pl.col(v("pension_end_age")).alias("pension_end_age"),
+    )
+
+
+def read_members(path: str | Path, basis: Basis) -> MemberData:
+    """Read one scheme's member file (CSV, XLSX or Parquet) and validate every record.
+
+    Parameters
+    ----------
+    path : str or Path
+        The member file. Headers are matched case-insensitively after trimming, through the basis's
+        ``[mapping]`` (column names, status and sex codes, date format).
+    basis : Basis
+        The assumptions basis: valuation date, tranches, mortality tables (closing ages), thresholds.
+
+    Returns
+    -------
+    MemberData
+        ``records`` (valued records, one row each: row, member_id, status, sex, date_of_birth, pension,
+        ``pension_<tranche>`` for every tranche of the basis, salary, service_years, retirement_age,
+        spouse_date_of_birth, spouse_fraction, guarantee_end, pension_end_age). Filling rules: an empty
+        pension is 0 for actives, or the sum of the tranches where those are given; a record without a
+        tranche split puts its whole pension in ``basis.default_tranche``, and a record with a split
+        has 0 in the tranches it leaves empty; salary and service_years are 0 where empty (they are
+        required of actives); retirement_age and spouse_fraction come from the basis where empty.
+
+    Raises
+    ------
+    DataError
+        The file is missing or unreadable, its extension is unknown, a required column is absent, or a
+        ``pension_<name>`` column names a tranche the basis does not declare.
+    """
+    p = Path(path)
+    raw = map_headers(read_text_frame(p), basis.mapping, p)
+    all_tranches = [tranche_column(t) for t in basis.tranches]
+    stray = [c for c in raw.columns if c.startswith("pension_") and c not in known_columns(list(basis.tranches))]
+    if stray:
+        raise DataError(
+            f"column '{stray[0]}' names a tranche the basis does not declare (declared: "
+            f"{', '.join(basis.tranches)})", file=p, column=stray[0],
+            fix="declare the tranche under [tranches] in the basis, or rename the column",
+        )
+    tranche_cols = [c for c in all_tranches if c in raw.columns]
+    ignored = [c for c in raw.columns if c not in known_columns(list(basis.tranches))]
+    df = _prepare(raw, basis, p, tranche_cols)
+    exceptions = _exceptions(df, basis, p, tranche_cols)
+    bad_rows = exceptions.filter(pl.col("severity") == "excluded").get_column("row").unique()
+    df = df.with_columns(_excluded=pl.col("row").is_in(bad_rows.implode()))
+    records = _records(df.filter(~pl.col("_excluded")), basis, tranche_cols, all_tranches)
+    status_label = pl.col(parsed("status")).fill_null(UNKNOWN_STATUS)
+    counts = (
+        df.group_by(status_label.alias("status"))
+        .agg(read=pl.len(), valued=(~pl.col("_excluded")).sum(), excluded=pl.col("_excluded").sum())
+        .with_columns(pl.col("read", "valued", "excluded").cast(pl.Int64))
+    )
+    order = {s: k for k, s in enumerate([*STATUSES, UNKNOWN_STATUS])}
+    counts = counts.sort(pl.col("status").replace_strict(order, return_dtype=pl.Int64))
+    return MemberData(
+        path=p, records=records, exceptions=exceptions, read=df.height, valued=records.height,
+        excluded=df.height - records.height, ignored_columns=ignored, _status_counts=counts,
+    )
+
+
+def write_exceptions(md: MemberData, path: str | Path) -> Path:
+    """Write ``md.exceptions`` to a CSV file (values kept as text, exactly as they were read)."""
+    p = Path(path)
+    md.exceptions.write_csv(p)
+    return p

@@ -1,0 +1,186 @@
+"""What the reports say, taken from a valuation result: headline figures, assumptions in words, the
+basis flattened to key/value rows and the exceptions counted by reason. Shared by the workbook and the
+HTML summary so both tell the same story.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Any
+
+import polars as pl
+
+from valuation.engine.results import STATUSES, ValuationResult
+from valuation.reports import format as fmt
+
+#: Plain-words names of the member statuses (the engine's codes are the keys).
+STATUS_LABELS: dict[str, str] = {
+    "pensioner": "Pensioners",
+    "dependant": "Dependants",
+    "deferred": "Deferred members",
+    "active": "Active members",
+}
+SEX_LABELS: dict[str, str] = {"M": "Men", "F": "Women"}
+
+
+@dataclass(frozen=True)
+class Headline:
+    """One headline figure: its key, label, raw value, formatted text and a sentence on its meaning."""
+
+    key: str
+    label: str
+    value: Any
+    text: str
+    meaning: str
+
+
+def headlines(summary: dict[str, Any]) -> list[Headline]:
+    """The headline figures of a run, each with one plain sentence on what it means."""
+    liab = summary["liability"]
+    rec = summary["records"]
+    dur = summary.get("duration", {})
+    act = summary.get("active_measures", {})
+    out = [
+        Headline("total_liability", "Total liability", liab["total"], fmt.money(liab["total"]),
+                 "The amount that, invested today and earning the discount rate, would pay every pension and "
+                 "lump sum the members have earned so far, if the future turns out as assumed."),
+        Headline("duration", "Duration", dur.get("macaulay"), fmt.years(dur.get("macaulay")),
+                 "The average time until the payments are made, weighted by their present value; the longer "
+                 "it is, the more the liability moves when interest rates change."),
+        Headline("sedr", "Single equivalent discount rate", summary.get("single_equivalent_discount_rate"),
+                 fmt.rate(summary.get("single_equivalent_discount_rate")),
+                 "The one flat interest rate that gives the same liability as the discount rate basis."),
+        Headline("members_valued", "Members valued", rec["valued"], fmt.number(rec["valued"]),
+                 f"Of the {fmt.number(rec['read'])} records in the member data, {fmt.number(rec['valued'])} "
+                 f"were valued and {fmt.number(rec['excluded'])} were left out because their data could not "
+                 "be used (see the data section)."),
+    ]
+    if act.get("projected_obligation"):
+        out.append(Headline(
+            "service_cost", "Cost of next year's benefits", act.get("current_service_cost"),
+            fmt.money(act.get("current_service_cost")),
+            "The value of the pension that active members are expected to earn over the coming year."))
+    return out
+
+
+def _rate_words(assumptions: dict[str, Any], name: str) -> tuple[str, str] | None:
+    flat = assumptions.get(f"{name}_rate_flat")
+    if flat is not None:
+        return fmt.rate(flat), "a single rate for all terms"
+    curve = assumptions.get(f"{name}_curve_10y")
+    if curve is not None:
+        return fmt.rate(curve), "a yield curve, shown here at the 10-year term"
+    return None
+
+
+def assumption_lines(summary: dict[str, Any]) -> list[tuple[str, str]]:
+    """The key assumptions as (name, words) pairs, readable by a trustee."""
+    a = summary.get("assumptions", {})
+    lines: list[tuple[str, str]] = []
+    disc = _rate_words(a, "discount")
+    if disc:
+        lines.append(("Discount rate", f"{disc[0]} a year ({disc[1]}): future payments are reduced by this "
+                      "rate to give today's value."))
+    infl = _rate_words(a, "inflation")
+    if infl:
+        lines.append(("Price inflation", f"{infl[0]} a year ({infl[1]}): drives pension increases and the "
+                      "revaluation of deferred pensions, within their caps."))
+    if "salary_growth" in a:
+        lines.append(("Salary growth", f"{fmt.rate(a['salary_growth'])} a year for active members."))
+    if "retirement_age" in a:
+        lines.append(("Retirement age", f"{fmt.number(a['retirement_age'])}, unless a member's own retirement "
+                      "age is recorded."))
+    married = a.get("proportion_married") or {}
+    if married:
+        parts = ", ".join(f"{SEX_LABELS.get(k, k).lower()} {fmt.rate(v, 0)}" for k, v in married.items())
+        lines.append(("Spouses", f"Proportion with a spouse at death: {parts}; the spouse receives "
+                      f"{fmt.rate(a.get('spouse_fraction'), 0)} of the member's pension; age difference "
+                      f"{fmt.years(a.get('spouse_age_difference'))}."))
+    if "commutation_proportion" in a:
+        lines.append(("Cash at retirement", f"Members give up {fmt.rate(a['commutation_proportion'], 0)} of "
+                      "their pension for a cash sum."))
+    if "payment_frequency" in a:
+        lines.append(("Payments", f"{fmt.number(a['payment_frequency'])} a year, paid in "
+                      f"{a.get('payment_timing', 'advance')}."))
+    lines.extend(mortality_lines(summary))
+    return lines
+
+
+def mortality_lines(summary: dict[str, Any]) -> list[tuple[str, str]]:
+    """The mortality assumptions, one line a (group, sex) entry of the basis."""
+    basis = summary.get("manifest", {}).get("basis") or {}
+    out = []
+    for group, by_sex in (basis.get("mortality") or {}).items():
+        for sex, entry in (by_sex or {}).items():
+            if not isinstance(entry, dict):
+                continue
+            imp = entry.get("improvement") or {}
+            kind = imp.get("kind", "none")
+            if kind == "none":
+                imp_text = "no allowance for future improvements"
+            elif kind == "constant":
+                imp_text = f"improving by {fmt.rate(imp.get('rate'))} a year"
+            else:
+                imp_text = (f"improving in future ({kind}), long-term rate {fmt.rate(imp.get('long_term_rate'))}"
+                            " a year" if imp.get("long_term_rate") is not None else f"improving in future ({kind})")
+            rating = entry.get("age_rating") or 0
+            rating_text = f", rated {rating:+d} years" if rating else ""
+            who = f"{'All members' if group == 'default' else STATUS_LABELS.get(group, group)}, " \
+                  f"{SEX_LABELS.get(sex, sex).lower()}"
+            out.append((f"Mortality: {who}",
+                        f"{fmt.rate(entry.get('percentage'), 0)} of table {entry.get('table')}{rating_text}; "
+                        f"{imp_text}."))
+    return out
+
+
+def flatten(obj: Any, prefix: str = "") -> list[tuple[str, Any]]:
+    """Nested dicts and lists as (dotted key, scalar value) rows, in their own order.
+
+    Lists of scalars stay one row (written as text, items separated by ", "); lists of dicts or lists are
+    indexed ``key[0].name``.
+    """
+    rows: list[tuple[str, Any]] = []
+    if isinstance(obj, dict):
+        for k, v in obj.items():
+            rows.extend(flatten(v, f"{prefix}.{k}" if prefix else str(k)))
+    elif isinstance(obj, (list, tuple)):
+        if all(not isinstance(v, (dict, list, tuple)) for v in obj):
+            rows.append((prefix, ", ".join("" if v is None else str(v) for v in obj)))
+        else:
+            for i, v in enumerate(obj):
+                rows.extend(flatten(v, f"{prefix}[{i}]"))
+    else:
+        rows.append((prefix, obj))
+    return rows
+
+
+def exception_reasons(exceptions: pl.DataFrame) -> pl.DataFrame:
+    """Exceptions counted by severity and reason: ``severity, reason, records`` (most frequent first)."""
+    if exceptions.height == 0 or "reason" not in exceptions.columns:
+        return pl.DataFrame(schema={"severity": pl.String, "reason": pl.String, "records": pl.Int64})
+    sev = exceptions["severity"] if "severity" in exceptions.columns else pl.Series([""] * exceptions.height)
+    return (
+        pl.DataFrame({"severity": sev.cast(pl.String), "reason": exceptions["reason"].cast(pl.String)})
+        .group_by("severity", "reason").agg(pl.len().cast(pl.Int64).alias("records"))
+        .sort(["severity", "records", "reason"], descending=[False, True, False])
+    )
+
+
+def status_rows(summary: dict[str, Any]) -> list[dict[str, Any]]:
+    """Per status: label, records read/valued/excluded and liability [currency]."""
+    by_rec = summary["records"].get("by_status", {})
+    by_liab = summary["liability"].get("by_status", {})
+    rows = []
+    for st in STATUSES:
+        rec = by_rec.get(st, {})
+        rows.append({"status": st, "label": STATUS_LABELS[st], "read": rec.get("read", 0),
+                     "valued": rec.get("valued", 0), "excluded": rec.get("excluded", 0),
+                     "liability": by_liab.get(st, 0.0)})
+    return rows
+
+
+def ae_by_age(experience: Any) -> pl.DataFrame:
+    """The experience table's age-band rows (empty when no analysis was run)."""
+    if experience is None:
+        return pl.DataFrame()
+    return experience.table.filter(pl.col("dimension") == "age_band")
