@@ -63,12 +63,21 @@ _SUMS: tuple[tuple[str, str], ...] = (
 )
 
 
+def _factorize(keys: pl.Series) -> tuple[list[str], np.ndarray]:
+    """Distinct values (as text, in sorted order for numbers) and each row's index into them."""
+    if keys.dtype.is_numeric():
+        labels, inverse = np.unique(keys.to_numpy(), return_inverse=True)
+        return [str(v) for v in labels.tolist()], inverse
+    codes = keys.cast(pl.Categorical).to_physical().to_numpy()
+    _, first, inverse = np.unique(codes, return_index=True, return_inverse=True)
+    return [str(v) for v in keys.gather(first).to_list()], inverse
+
+
 def _grouped(
-    sums: dict[str, np.ndarray], dimension: str, keys: np.ndarray, order: dict[str, float] | None
+    sums: dict[str, np.ndarray], dimension: str, keys: pl.Series, order: dict[str, float] | None
 ) -> pl.DataFrame:
     """Sum the cell columns by ``keys`` (numpy bincount); groups sorted by ``order`` (default: the key)."""
-    labels, inverse = np.unique(keys, return_inverse=True)
-    names = [str(v) for v in labels.tolist()]
+    names, inverse = _factorize(keys)
     data: dict[str, object] = {"dimension": [dimension] * len(names), "group": names}
     for source, target in _SUMS:
         data[target] = np.bincount(inverse, weights=sums[source], minlength=len(names))
@@ -116,20 +125,20 @@ def ae_table(
     (see :mod:`valuation.experience.intervals`).
     """
     sums = {source: cells[source].to_numpy().astype(float) for source, _ in _SUMS}
-    age = cells["age"].to_numpy()
-    floor = (age // 5) * 5
-    ages = {f"{b}-{b + 4}": float(b) for b in np.unique(floor).tolist()}
-    years = cells["year"].to_numpy()
+    floor = (cells["age"] // 5) * 5
+    ages = {f"{b}-{b + 4}": float(b) for b in floor.unique().to_list()}
     parts = [
-        _grouped(sums, "overall", np.zeros(cells.height, dtype=np.int64), None),
-        _grouped(sums, "sex", cells["sex"].to_numpy().astype(str), {"M": 0, "F": 1}),
-        _grouped(sums, "status", cells["group"].to_numpy().astype(str), _STATUS_ORDER),
-        _grouped(
-            sums, "age_band", np.char.add(np.char.add(floor.astype(str), "-"), (floor + 4).astype(str)), ages
-        ),
-        _grouped(sums, "pension_band", cells["pension_band"].to_numpy().astype(str), band_order),
-        _grouped(sums, "calendar_year", years, None),
+        _grouped(sums, "overall", pl.Series(np.zeros(cells.height, dtype=np.int64)), None),
+        _grouped(sums, "sex", cells["sex"], {"M": 0, "F": 1}),
+        _grouped(sums, "status", cells["group"], _STATUS_ORDER),
+        _grouped(sums, "age_band", floor, None),
+        _grouped(sums, "pension_band", cells["pension_band"], band_order),
+        _grouped(sums, "calendar_year", cells["year"], None),
     ]
+    # age bands are labelled after grouping (numeric keys sort numerically)
+    parts[3] = parts[3].with_columns(
+        pl.col("group").replace_strict({str(int(v)): k for k, v in ages.items()})
+    )
     table = pl.concat(parts, how="vertical")
     table = table.with_columns(
         pl.when(pl.col("dimension") == "overall")

@@ -44,9 +44,21 @@ def _v(col: str) -> pl.Expr:
 
 
 def _money(e: pl.Expr) -> pl.Expr:
-    """An amount as text, rounded to cents (cast to text before ``pl.format``: formatting a float column
-    directly inside ``pl.format`` after a filter crashed polars 2.1 here)."""
+    """An amount as text, rounded to cents."""
     return e.round(2).cast(pl.String)
+
+
+def _fmt(template: str, *args: pl.Expr) -> pl.Expr:
+    """``template`` with each ``{}`` replaced by an expression's text.
+
+    Built with ``pl.concat_str`` (``pl.format`` panicked on large filtered frames under polars 2.1).
+    """
+    pieces = template.split("{}")
+    assert len(pieces) == len(args) + 1
+    parts: list[pl.Expr] = [pl.lit(pieces[0])]
+    for arg, text in zip(args, pieces[1:], strict=True):
+        parts += [arg.cast(pl.String), pl.lit(text)]
+    return pl.concat_str(parts)
 
 
 def _bad_number(col: str) -> pl.Expr:
@@ -84,7 +96,7 @@ def build_checks(
         Check("member_id", pl.col("member_id").is_null(), "member_id is missing (expected a unique reference)"),
         Check(
             "member_id", pl.col("_dup_n") > 1,
-            pl.format("member_id appears {} times (rows {}); every copy is excluded: ask the administrator "
+            _fmt("member_id appears {} times (rows {}); every copy is excluded: ask the administrator "
                       "which record is right", pl.col("_dup_n"), pl.col("_dup_rows")),
         ),
         Check("status", pl.col("status").is_null(), "status is missing"),
@@ -98,20 +110,20 @@ def build_checks(
         Check("date_of_birth", _v("date_of_birth") > pl.lit(valuation_date),
               f"date of birth is after the valuation date {valuation_date.isoformat()}"),
         Check("date_of_birth", pl.col("_age") > pl.col("_closing"),
-              pl.format("age {} is beyond the mortality table's closing age {} for this status and sex",
+              _fmt("age {} is beyond the mortality table's closing age {} for this status and sex",
                         pl.col("_age").cast(pl.Int64), pl.col("_closing"))),
         *_number_checks("pension", "a pension amount [currency p.a.]"),
         *(c for t in tranche_cols for c in _number_checks(t, "a pension amount [currency p.a.]")),
         Check(
             "pension",
             pl.col("_tr_given") & pension.is_not_null() & ((pl.col("_tr_sum") - pension).abs() > TOLERANCE + 1e-9),
-            pl.format("tranches sum to {} but pension is {} (expected equal within 0.01)",
+            _fmt("tranches sum to {} but pension is {} (expected equal within 0.01)",
                       _money(pl.col("_tr_sum")), _money(pension)),
             value=pl.col("pension"),
         ),
         Check("pension", status.is_in(PAID_STATUSES) & (pl.col("_pension").fill_null(0.0) == 0)
               & ~_bad_number("pension"),
-              pl.format("{} with no pension (expected a pension above 0)", status)),
+              _fmt("{} with no pension (expected a pension above 0)", status)),
         *_number_checks("salary", "a salary [currency p.a.]"),
         Check("salary", (status == "active") & (salary.is_null() | (salary == 0)) & ~_bad_number("salary"),
               "active member with no salary (expected a salary above 0)"),
@@ -125,7 +137,7 @@ def build_checks(
         Check("spouse_date_of_birth", _v("spouse_date_of_birth") > pl.lit(valuation_date),
               f"spouse's date of birth is after the valuation date {valuation_date.isoformat()}"),
         Check("spouse_date_of_birth", pl.col("_sp_age") > pl.col("_sp_closing"),
-              pl.format("spouse's age {} is beyond the spouse mortality table's closing age {}",
+              _fmt("spouse's age {} is beyond the spouse mortality table's closing age {}",
                         pl.col("_sp_age").cast(pl.Int64), pl.col("_sp_closing"))),
         *_date_checks("guarantee_end", fmt_text),
         Check("pension", pl.col("_pension") > large, f"unusually large pension (above {large:,.2f}): please confirm",
@@ -133,7 +145,7 @@ def build_checks(
         Check("pension", (pl.col("_pension") > 0) & (pl.col("_pension") < tiny), f"tiny pension (below {tiny:,.2f}): please confirm",
               "warning"),
         Check("date_of_birth", pl.col("_exact_age") > old,
-              pl.format(f"member aged {{}} is over {old:g}: please confirm the date of birth",
+              _fmt(f"member aged {{}} is over {old:g}: please confirm the date of birth",
                         pl.col("_exact_age").floor().cast(pl.Int64)), "warning"),
     ]
     return checks

@@ -120,9 +120,10 @@ def _prepare(df: pl.DataFrame, basis: Basis, path: Path, tranche_cols: list[str]
         _tr_given=given,
         _tr_sum=pl.sum_horizontal(tr) if tr else pl.lit(0.0),
         _dup_n=pl.len().over("member_id").cast(pl.Int64),
-        _dup_rows=pl.col("row").cast(pl.String).implode().over("member_id").list.join(", "),
+        _dup_rows=pl.col("row").cast(pl.String).implode().over("member_id").list.head(10).list.join(", "),
     ).with_columns(
         _dup_n=pl.when(pl.col("member_id").is_null()).then(1).otherwise(pl.col("_dup_n")),
+        _dup_rows=pl.when(pl.col("_dup_n") > 10).then(pl.col("_dup_rows") + pl.lit(", ...")).otherwise(pl.col("_dup_rows")),
         _pension=pl.when(pl.col(parsed("pension")).is_null() & pl.col("_tr_given"))
         .then(pl.col("_tr_sum")).otherwise(pl.col(parsed("pension"))),
     )
