@@ -188,6 +188,12 @@ def test_reversionary_identity_and_direct_sum() -> None:
     tp_x, tp_y = tpx(Q, rows, x0, t), tpx(Q, rows, y0, t)
     direct = life_annuity_from_survival(tp_y * (1 - tp_x), t, 1.05**-t, frequency=12)
     np.testing.assert_allclose(rev, direct, rtol=1e-12)
+    # deferred 5 years: payments from t = 5 on, whenever x has died by t (before or after 5)
+    deferred = reversionary_annuity_factor(Q, rows, x0, Q, rows, y0, FIVE, frequency=12, deferral=5.0)
+    late = t >= 5.0
+    direct_deferred = life_annuity_from_survival((tp_y * (1 - tp_x))[:, late], t[late], 1.05 ** -t[late],
+                                                 frequency=12)
+    np.testing.assert_allclose(deferred, direct_deferred, rtol=1e-12)
     with pytest.raises(ValueError, match="guarantee"):
         reversionary_annuity_factor(Q, rows, x0, Q, rows, y0, FIVE, guarantee=5.0)
 

@@ -18,6 +18,8 @@ from valuation.experience.settings import ExperienceSettings
 
 FORMULA_PROBES = ["=1+1", "+44", "-3", "@SUM(A1)"]
 SCRIPT_PROBE = "<script>alert(1)</script>"
+#: Runs script in a browser if it ever reaches the page as markup: it would mark the <body>.
+IMG_PROBE = "<img src=x onerror=\"document.body.setAttribute('data-pwned','1')\">"
 
 
 def make_result(n_members: int = 6) -> ValuationResult:
@@ -35,14 +37,15 @@ def make_result(n_members: int = 6) -> ValuationResult:
         "q_next_year": [0.01] * n_members,
     })
     exceptions = pl.DataFrame({
-        "file": ["members.csv"] * 6,
-        "row": [2, 3, 4, 5, 6, 7],
-        "member_id": FORMULA_PROBES + [SCRIPT_PROBE, "X9"],
-        "column": ["date_of_birth", "pension", "sex", "status", "member_id", "pension"],
-        "value": ["=HYPERLINK(\"x\")", "+1", "-", "@", SCRIPT_PROBE, "70000"],
+        "file": ["members.csv"] * 7,
+        "row": [2, 3, 4, 5, 6, 7, 8],
+        "member_id": FORMULA_PROBES + [SCRIPT_PROBE, "X9", IMG_PROBE],
+        "column": ["date_of_birth", "pension", "sex", "status", "member_id", "pension", "sex"],
+        "value": ["=HYPERLINK(\"x\")", "+1", "-", "@", SCRIPT_PROBE, "70000", IMG_PROBE],
         "reason": ["date of birth is not a date", "pension is negative", "sex code unknown",
-                   "status code unknown", "duplicate member id " + SCRIPT_PROBE, "pension above the large-pension threshold"],
-        "severity": ["excluded"] * 5 + ["warning"],
+                   "status code unknown", "duplicate member id " + SCRIPT_PROBE,
+                   "pension above the large-pension threshold", "sex code unknown: " + IMG_PROBE],
+        "severity": ["excluded"] * 5 + ["warning", "excluded"],
     })
     liabilities = pl.DataFrame({
         "status": ["pensioner", "pensioner", "deferred", "active"],
@@ -71,10 +74,10 @@ def make_result(n_members: int = 6) -> ValuationResult:
     summary = {
         "valuation_date": "2025-03-31",
         "basis_name": "Test basis " + SCRIPT_PROBE,
-        "records": {"read": 11, "valued": 6, "excluded": 5,
+        "records": {"read": 12, "valued": 6, "excluded": 6,
                     "by_status": {"pensioner": {"read": 4, "valued": 2, "excluded": 2},
                                   "deferred": {"read": 4, "valued": 2, "excluded": 2},
-                                  "active": {"read": 3, "valued": 2, "excluded": 1}}},
+                                  "active": {"read": 4, "valued": 2, "excluded": 2}}},
         "liability": {"total": total,
                       "by_status": {"pensioner": 410000.0, "dependant": 0.0, "deferred": 68000.0, "active": 30000.0},
                       "by_sex": {"M": 330000.0, "F": 178000.0},

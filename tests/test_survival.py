@@ -198,6 +198,9 @@ def test_tpx_edges() -> None:
     got = tpx(SULT_Q, [0, 0], [65.0, 120.0], [0.0, 56.0, 200.0])
     assert got[0, 0] == 1.0 and got[0, 2] == 0.0 and got[0, 1] == 0.0
     assert got[1, 1] == 0.0 and got[1, 2] == 0.0
+    # a missing age (NaN, e.g. from a missing date of birth) gives NaN, not a wrong table lookup
+    lx = cohort_lx(SULT_Q)
+    assert np.isnan(lx_at(lx, SULT_Q, [0, 0], [np.nan, 65.0])).tolist() == [True, False]
 
 
 def test_tpx_rows_select_their_cohort() -> None:

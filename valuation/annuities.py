@@ -31,7 +31,7 @@ Timing = Literal["advance", "arrears"]
 _TIMINGS: tuple[str, ...] = ("advance", "arrears")
 
 #: Largest number of (life x payment) cells evaluated at once; lives are processed in chunks below it.
-_CHUNK_CELLS = 4_000_000
+_CHUNK_CELLS = 250_000
 _EPS = 1e-9
 
 
@@ -178,32 +178,51 @@ def _value_on_grid(
     # payments beyond the last possible survival date only count while guaranteed
     horizon = np.minimum(np.maximum(max_remaining - d, guar), span)
     horizon = float(min(max_term, np.max(horizon, initial=0.0)))
-    n_grid = int(np.ceil(horizon * m - _EPS)) + 1
+    n_max = np.floor(max_term * m + _EPS)  # payments within max_term years of the start of payment
+    n_grid = int(min(np.ceil(horizon * m - _EPS) + 1, n_max))
     k = np.arange(n_grid, dtype=np.float64)
     offsets = (k if timing == "advance" else k + 1.0) / m
     n_pay = np.floor(span * m + _EPS)  # number of payments of a temporary annuity
-    n_guar = np.floor(guar * m + _EPS)
-    n_max = np.floor(max_term * m + _EPS)
+    n_guar = np.floor(guar * m + _EPS)  # number of guaranteed payments
+    # with one deferral and one escalation for all lives, discounting and amounts are one row
+    shared = n > 0 and bool(np.all(d == d[0]) and np.all(g == g[0]))
+    weight_1d = _weights(d[0] + offsets, curve, g[0], index_path)[None, :] if shared else None
+    limited = bool(np.any(n_pay < n_grid))
+    guaranteed = bool(np.any(n_guar > 0))
 
     out = np.empty(n)
-    chunk = max(1, _CHUNK_CELLS // n_grid)
+    chunk = max(1, _CHUNK_CELLS // max(n_grid, 1))
     for start in range(0, n, chunk):
         sl = slice(start, min(n, start + chunk))
         times = d[sl, None] + offsets[None, :]
-        paid = (k[None, :] < n_pay[sl, None]) & (k[None, :] < n_max)
-        certain = k[None, :] < n_guar[sl, None]
-        p_pay = survival(sl, times)
-        p_start = survival(sl, d[sl, None])
-        prob = np.where(certain, p_start, p_pay)
-        amount = np.exp(times * np.log1p(g[sl, None]))
-        if index_path is not None:
-            amount = amount * np.asarray(index_path(times), dtype=np.float64)
-        cells = np.where(paid, prob * curve.discount_factors(times) * amount, 0.0)
-        out[sl] = cells.sum(axis=1) / m
+        prob = survival(sl, times)
+        if guaranteed:
+            prob = np.where(k[None, :] < n_guar[sl, None], survival(sl, d[sl, None]), prob)
+        if limited:
+            prob = np.where(k[None, :] < n_pay[sl, None], prob, 0.0)
+        weight = weight_1d if weight_1d is not None else _weights(times, curve, g[sl, None], index_path)
+        out[sl] = np.einsum("ij,ij->i", prob, np.broadcast_to(weight, prob.shape)) / m
     return out
 
 
-def _lives(q_rows: ArrayLike, rows: ArrayLike, x0: ArrayLike):
+def _weights(
+    times: NDArray[np.float64],
+    curve: RateCurve,
+    g: float | NDArray[np.float64],
+    index_path: Callable[[NDArray[np.float64]], NDArray[np.float64]] | None,
+) -> NDArray[np.float64]:
+    """Discount factor x amount at payment times [currency per 1 p.a.]."""
+    w = curve.discount_factors(times)
+    if np.any(g != 0):
+        w = w * np.exp(times * np.log1p(g))
+    if index_path is not None:
+        w = w * np.asarray(index_path(times), dtype=np.float64)
+    return w
+
+
+def _lives(
+    q_rows: ArrayLike, rows: ArrayLike, x0: ArrayLike
+) -> tuple[NDArray[np.float64], NDArray[np.float64], NDArray[np.intp], NDArray[np.float64]]:
     q = _as_q_rows(q_rows)
     lx = cohort_lx(q)
     r, x = np.broadcast_arrays(
@@ -351,8 +370,9 @@ def reversionary_annuity_factor(
     """Reversionary annuity a_{x|y} = a_y - a_xy [currency]: paid to y after x's death.
 
     Both terms are valued on the same payment grid with the same keyword options as
-    :func:`annuity_factor` (``deferral`` then means: paid from time n to y while alive if x has died
-    by then; deaths of x before n are not covered). A guarantee has no meaning here and is refused.
+    :func:`annuity_factor`, so each payment at time t is made if y is alive and x has died by t:
+    sum (1/m) v(t) a(t) tp_y (1 - tp_x). With a ``deferral`` n this covers deaths of x before n as well
+    as after. A guarantee has no meaning here and is refused.
 
     References
     ----------

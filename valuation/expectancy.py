@@ -21,10 +21,10 @@ from valuation.survival import FractionalAge, _as_q_rows, _check_option, cohort_
 
 _FRACTIONAL: tuple[str, ...] = ("udd", "constant_force")
 #: Largest number of (life x age) cells evaluated at once.
-_CHUNK_CELLS = 4_000_000
+_CHUNK_CELLS = 250_000
 
 
-def _start(q_rows: ArrayLike, rows: ArrayLike, x0: ArrayLike):
+def _start(q_rows: ArrayLike, rows: ArrayLike, x0: ArrayLike) -> tuple[np.ndarray, ...]:
     q = _as_q_rows(q_rows)
     lx = cohort_lx(q)
     r, x = np.broadcast_arrays(

@@ -213,7 +213,7 @@ def lx_at(
     - UDD: l(j + s) = l_j (1 - s q_j), linear in l [DHW section 3.3.1; BGHJN section 3.6].
     - constant force: l(j + s) = l_j (p_j)^s, linear in log l [DHW section 3.3.2; BGHJN section 3.6].
 
-    Beyond the closing age l = 0; ages below 0 are treated as 0.
+    Beyond the closing age l = 0; ages below 0 are treated as 0; a missing (NaN) age gives NaN.
 
     Parameters
     ----------
@@ -243,18 +243,24 @@ def lx_at(
     if q.ndim == 1:
         q = q[None, :]
     n_ages = q.shape[1]
+    l_flat = np.ascontiguousarray(lx).reshape(-1)
     r = np.asarray(rows, dtype=np.intp)
-    y = np.maximum(np.asarray(ages, dtype=np.float64), 0.0)
-    j = np.minimum(np.floor(y), n_ages - 1).astype(np.intp)
-    s = np.minimum(y - j, 1.0)  # s = 1 past the closing age, where l_j p_j = 0
-    l_j = lx[r, j]
-    q_j = q[r, j]
+    # clamp to [0, n_ages]: at n_ages (and beyond) j = n_ages - 1 and s = 1, where l_j p_j = 0
+    y = np.clip(np.asarray(ages, dtype=np.float64), 0.0, float(n_ages))
+    missing = np.isnan(y)
+    if missing.any():
+        y = np.where(missing, 0.0, y)
+    j = np.minimum(y.astype(np.intp), n_ages - 1)  # floor, as y >= 0
+    s = y - j
+    at = r * (n_ages + 1) + j  # flat index into lx
+    l_j = l_flat[at]
     if fractional == "udd":
-        return l_j * (1.0 - s * q_j)
-    p_j = 1.0 - q_j
-    with np.errstate(divide="ignore"):
-        # p^s with 0^0 = 1 and 0^s = 0 for s > 0 (numpy's power already does this)
-        return l_j * np.power(p_j, s)
+        out = l_j + s * (l_flat[at + 1] - l_j)  # l_j (1 - s q_j) = l_j - s d_j
+    else:
+        p_j = 1.0 - np.ascontiguousarray(q).reshape(-1)[r * n_ages + j]
+        # p^s with 0^0 = 1 and 0^s = 0 for s > 0 (numpy's power does this)
+        out = l_j * np.power(p_j, s)
+    return np.where(missing, np.nan, out) if missing.any() else out
 
 
 def _survival(

@@ -124,11 +124,19 @@ def analyse_records(
         **checked.counts,
     }
     counts["deaths"]["in_cells"] = int(cells["deaths"].sum())
+    counts["deaths"]["no_amounts_weight"] = int(
+        cells.filter((pl.col("deaths") > 0) & (pl.col("actual_amounts") == 0)).height
+    )
     counts["deaths"]["left_out_at_closing_age"] = counts["deaths"]["counted"] - counts["deaths"]["in_cells"]
     public = table.select(TABLE_COLUMNS)
     summary: dict[str, Any] = {
         "settings": settings.as_dict(),
         "pension_band_edges": list(edges),
+        "amounts_weight": (
+            "each life weighted by its pension [currency p.a.]: actual deaths by the pension at death when "
+            "given, else the record's pension; lives with no pension in the start data (e.g. actives) have "
+            "no weight in actual or expected amounts"
+        ),
         "records": counts,
         "overall": public.filter(pl.col("dimension") == "overall").to_dicts()[0] if overall.height else None,
         "by_group": {

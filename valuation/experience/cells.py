@@ -77,7 +77,8 @@ def build_cells(
         One row a member: ``row, member_id, group, sex, date_of_birth, pension`` [currency p.a.],
         ``pension_band``.
     deaths
-        Counted deaths: ``member_id, date, pension_at_death`` (null = use the record's pension).
+        Counted deaths: ``member_id, date, pension_at_death`` (null = use the record's pension). A member
+        whose record pension is 0 (an active) weighs 0 in actual amounts as in expected amounts.
     exits
         Applied exits: ``member_id, date``.
     lookup
@@ -125,7 +126,12 @@ def build_cells(
     late = m["_death"].to_numpy().astype("datetime64[D]")[idx] > np.datetime64(cutoff, "D")
     factor = np.where(death_cell, 1.0 + np.where(late, settings.late_uplift, 0.0), 0.0)
     pension = m["pension"].fill_null(0.0).to_numpy()
-    at_death = m["pension_at_death"].fill_null(m["pension"]).fill_null(0.0).to_numpy()
+    # Amounts weight: the pension at death when given, else the record's pension. A life with no pension
+    # in the start data (an active member) has no weight in expected amounts, so it has none in actual
+    # amounts either: A and E are weighted alike.
+    at_death = np.where(
+        pension > 0, m["pension_at_death"].fill_null(m["pension"]).fill_null(0.0).to_numpy(), 0.0
+    )
 
     cells = pl.DataFrame(
         {

@@ -32,7 +32,7 @@ def _read_text_frame(path: Path) -> pl.DataFrame:
     suffix = path.suffix.lower()
     try:
         if suffix in (".csv", ".txt"):
-            return pl.read_csv(path, infer_schema=False, missing_utf8_is_empty_string=False)
+            return pl.read_csv(path, infer_schema=False)
         if suffix == ".parquet":
             df = pl.read_parquet(path)
         elif suffix in (".xlsx", ".xlsm"):

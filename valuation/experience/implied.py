@@ -54,12 +54,12 @@ def implied_percentages(
     """
     by_table = []
     for group, sex in groups:
-        current = float(getattr(lookup(group, sex), "percentage", 1.0))
+        current = round(float(getattr(lookup(group, sex), "percentage", 1.0)), 12)
         by_table.append(
             {
                 "group": group,
                 "sex": sex,
-                "current_percentage": 100.0 * current,
+                "current_percentage": round(100.0 * current, 10),
                 "implied_percentage": _pct(current * ae_amounts),
                 "lower": _pct(current * lower),
                 "upper": _pct(current * upper),
@@ -122,7 +122,7 @@ def liability_effect(
     from valuation.members import read_members
 
     data = read_members(valuation_members_path, basis)
-    before = value_members(data, basis, q_multiplier=1.0).total_liability
-    after = value_members(data, basis, q_multiplier=float(multiplier)).total_liability
+    before = value_members(data, basis, q_multiplier=1.0, sensitivities=False).total_liability
+    after = value_members(data, basis, q_multiplier=float(multiplier), sensitivities=False).total_liability
     change = 100.0 * (after / before - 1.0) if before else None
     return {"liability_before": before, "liability_after": after, "change_pct": change, "reason": None}

@@ -95,8 +95,9 @@ def _ages(d: pl.Series, basis: Basis) -> tuple[np.ndarray, np.ndarray]:
     dob = d.to_numpy().astype("datetime64[D]")
     with np.errstate(invalid="ignore"):
         exact = age_at(dob, basis.valuation_date, "exact")
-        conv = np.floor(age_at(dob, basis.valuation_date, basis.age_convention))
-    return conv, exact
+        if basis.age_convention in ("exact", "last_birthday"):
+            return np.floor(exact), exact
+        return np.floor(age_at(dob, basis.valuation_date, basis.age_convention)), exact
 
 
 def _prepare(df: pl.DataFrame, basis: Basis, path: Path, tranche_cols: list[str]) -> pl.DataFrame:
@@ -119,13 +120,19 @@ def _prepare(df: pl.DataFrame, basis: Basis, path: Path, tranche_cols: list[str]
     df = df.with_columns(
         _tr_given=given,
         _tr_sum=pl.sum_horizontal(tr) if tr else pl.lit(0.0),
-        _dup_n=pl.len().over("member_id").cast(pl.Int64),
-        _dup_rows=pl.col("row").cast(pl.String).implode().over("member_id").list.head(10).list.join(", "),
+        _dup=pl.col("member_id").is_duplicated() & pl.col("member_id").is_not_null(),
     ).with_columns(
-        _dup_n=pl.when(pl.col("member_id").is_null()).then(1).otherwise(pl.col("_dup_n")),
-        _dup_rows=pl.when(pl.col("_dup_n") > 10).then(pl.col("_dup_rows") + pl.lit(", ...")).otherwise(pl.col("_dup_rows")),
         _pension=pl.when(pl.col(parsed("pension")).is_null() & pl.col("_tr_given"))
         .then(pl.col("_tr_sum")).otherwise(pl.col(parsed("pension"))),
+    )
+    dups = (
+        df.filter(pl.col("_dup")).group_by("member_id")
+        .agg(_dup_n=pl.len().cast(pl.Int64), _dup_rows=pl.col("row").sort().head(10).cast(pl.String).str.join(", "))
+        .with_columns(_dup_rows=pl.when(pl.col("_dup_n") > 10).then(pl.col("_dup_rows") + ", ...")
+                      .otherwise(pl.col("_dup_rows")))
+    )
+    df = df.join(dups, on="member_id", how="left", maintain_order="left").with_columns(
+        pl.col("_dup_n").fill_null(1)
     )
     conv, exact = _ages(df.get_column(parsed("date_of_birth")), basis)
     sp_conv, _ = _ages(df.get_column(parsed("spouse_date_of_birth")), basis)

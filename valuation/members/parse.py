@@ -48,15 +48,28 @@ def parse_code(col: str, table: dict[str, str]) -> pl.Expr:
     )
 
 
-def parse_date(col: str, fmt: str | None) -> pl.Expr:
-    """Parse a date: the mapping's format, then ISO ``YYYY-MM-DD``, then ``YYYY-MM-DD HH:MM:SS`` (the
-    text of an Excel date cell). Anything else, or a date outside 1850-2200, gives null."""
-    tries = [pl.col(col).str.strptime(pl.Date, f, strict=False) for f in (fmt, "%Y-%m-%d") if f]
+def _date_tries(col: str, fmt: str | None) -> list[pl.Expr]:
+    tries = [pl.col(col).str.strptime(pl.Date, f, strict=False) for f in dict.fromkeys((fmt, "%Y-%m-%d")) if f]
     tries.append(pl.col(col).str.strptime(pl.Datetime, "%Y-%m-%d %H:%M:%S", strict=False).dt.date())
-    value = pl.coalesce(tries)
-    return (
-        pl.when(value.is_between(pl.lit(EARLIEST), pl.lit(LATEST))).then(value).otherwise(None).alias(parsed(col))
-    )
+    return tries
+
+
+def parse_dates(df: pl.DataFrame, cols: list[str], fmt: str | None) -> pl.DataFrame:
+    """Parse date columns: the mapping's format, then ISO ``YYYY-MM-DD``, then ``YYYY-MM-DD HH:MM:SS``
+    (the text of an Excel date cell). Anything else, or a date outside 1850-2200, gives null.
+
+    Later formats are only tried for a column where the first one left values unparsed.
+    """
+    out = []
+    for c in cols:
+        tries = _date_tries(c, fmt)
+        first = df.select(tries[0].alias("d"), pl.col(c).is_not_null().alias("given"))
+        if first.filter(pl.col("given") & pl.col("d").is_null()).height == 0:
+            tries = tries[:1]
+        value = pl.coalesce(tries) if len(tries) > 1 else tries[0]
+        out.append(pl.when(value.is_between(pl.lit(EARLIEST), pl.lit(LATEST))).then(value).otherwise(None)
+                   .alias(parsed(c)))
+    return df.with_columns(out)
 
 
 def parse_number(col: str) -> pl.Expr:
@@ -69,10 +82,10 @@ def parse_all(
     df: pl.DataFrame, mapping: ColumnMapping, date_cols: list[str], num_cols: list[str]
 ) -> pl.DataFrame:
     """Add the parsed twin of every column of ours (``member_id`` stays text, trimmed)."""
-    return df.with_columns(
+    df = df.with_columns(
         pl.col("member_id").alias(parsed("member_id")),
         parse_code("status", code_lookup(mapping.status_codes, STATUSES)),
         parse_code("sex", code_lookup(mapping.sex_codes, SEXES)),
-        *(parse_date(c, mapping.date_format) for c in date_cols),
         *(parse_number(c) for c in num_cols),
     )
+    return parse_dates(df, date_cols, mapping.date_format)

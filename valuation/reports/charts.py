@@ -18,7 +18,7 @@ import matplotlib.pyplot as plt  # noqa: E402
 import numpy as np  # noqa: E402
 import polars as pl  # noqa: E402
 from matplotlib.figure import Figure  # noqa: E402
-from matplotlib.ticker import FuncFormatter  # noqa: E402
+from matplotlib.ticker import FuncFormatter, MaxNLocator  # noqa: E402
 
 from valuation.engine.results import STATUSES  # noqa: E402
 from valuation.reports.content import STATUS_LABELS  # noqa: E402
@@ -36,6 +36,10 @@ _RC = {
     "font.size": 10, "axes.edgecolor": GRID, "axes.labelcolor": INK, "xtick.color": INK, "ytick.color": INK,
     "axes.spines.top": False, "axes.spines.right": False,
 }
+#: Age bands with fewer expected deaths than this are left out of the A/E chart [lives].
+MIN_EXPECTED = 1.0
+#: Top of the A/E chart's axis [%].
+AE_AXIS_MAX = 400.0
 _BAND = re.compile(r"^\s*(\d{1,3})\s*-\s*(\d{1,3})\s*$")
 
 
@@ -92,7 +96,8 @@ def payments_profile(cashflows: pl.DataFrame) -> str:
         ax.grid(axis="y", color=GRID, linewidth=0.8)
         ax.set_axisbelow(True)
         if ax.get_legend_handles_labels()[0]:
-            ax.legend(frameon=False, ncol=4, loc="upper right")
+            ax.legend(frameon=False, ncol=4, loc="lower left", bbox_to_anchor=(0.0, 1.0))
+        ax.xaxis.set_major_locator(MaxNLocator(integer=True))
         return to_svg(fig, "payments")
 
 
@@ -105,8 +110,18 @@ def band_labels(groups: list[str]) -> list[str]:
     return out
 
 
+def chart_bands(bands: pl.DataFrame) -> pl.DataFrame:
+    """The age bands worth charting: at least :data:`MIN_EXPECTED` expected deaths (others have intervals
+    too wide to read; they stay in the tables)."""
+    return bands.filter(pl.col("expected_lives") >= MIN_EXPECTED)
+
+
 def ae_by_age(bands: pl.DataFrame) -> str:
-    """A/E by lives for each age band with its interval as an error bar, against the 100 % line."""
+    """A/E by lives for each age band with its interval as an error bar, against the 100 % line.
+
+    Only bands from :func:`chart_bands` are drawn; the axis stops at :data:`AE_AXIS_MAX` [%].
+    """
+    bands = chart_bands(bands)
     labels = band_labels(bands["group"].to_list())
     ae = bands["ae_lives"].fill_null(float("nan")).to_numpy().astype(float)
     lo = bands["ae_lives_lower"].fill_null(float("nan")).to_numpy().astype(float)
@@ -119,9 +134,12 @@ def ae_by_age(bands: pl.DataFrame) -> str:
         ax.errorbar(x, ae * 100.0, yerr=err, fmt="o", color=PALETTE["pensioner"], ecolor="#7a9a95",
                     elinewidth=2, capsize=4, label="Actual / expected (lives), with interval")
         ax.set_xticks(x, labels)
+        ax.set_xlim(-0.6, len(labels) - 0.4)
         ax.set_xlabel("Age band [years]")
         ax.set_ylabel("A/E [%]")
         ax.grid(axis="y", color=GRID, linewidth=0.8)
         ax.set_axisbelow(True)
-        ax.legend(frameon=False, loc="upper left")
+        top = np.nanmax(np.append(hi[np.isfinite(hi)] * 100.0, 120.0))
+        ax.set_ylim(0.0, min(top * 1.05, AE_AXIS_MAX))
+        ax.legend(frameon=False, ncol=2, loc="lower left", bbox_to_anchor=(0.0, 1.0))
         return to_svg(fig, "ae-age")

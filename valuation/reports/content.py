@@ -10,7 +10,7 @@ from typing import Any
 
 import polars as pl
 
-from valuation.engine.results import STATUSES, ValuationResult
+from valuation.engine.results import STATUSES
 from valuation.reports import format as fmt
 
 #: Plain-words names of the member statuses (the engine's codes are the keys).

@@ -1,0 +1,193 @@
+"""The assumptions basis: loading, defaults, paths relative to the TOML file, readable error messages.
+
+Sources: the TOML layout and allowed values are the package's own (valuation/basis/model.py); the SULT
+survival check uses [DHW] Dickson, Hardy & Waters, *Actuarial Mathematics for Life Contingent Risks*,
+Appendix D (Standard Ultimate Life Table: l_60 = 96,634.1, l_65 = 94,579.7).
+"""
+
+from __future__ import annotations
+
+import json
+from datetime import date
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from valuation.basis import load_basis
+from valuation.errors import BasisError
+
+ROOT = Path(__file__).resolve().parents[1]
+DEMO = ROOT / "assumptions" / "demo_basis.toml"
+SULT = ROOT / "assumptions" / "sult_basis.toml"
+
+MINIMAL = """
+name = "t"
+valuation_date = 2025-03-31
+[discount]
+rate = 0.05
+[inflation]
+rate = 0.02
+[mortality.default.M]
+table = "SULT"
+[mortality.default.F]
+table = "SULT"
+"""
+
+
+def write(tmp_path: Path, text: str, name: str = "basis.toml") -> Path:
+    p = tmp_path / name
+    p.parent.mkdir(parents=True, exist_ok=True)
+    p.write_text(text, encoding="utf-8")
+    return p
+
+
+def error_of(tmp_path: Path, text: str) -> str:
+    with pytest.raises(BasisError) as info:
+        load_basis(write(tmp_path, text))
+    return str(info.value)
+
+
+def test_demo_basis_uses_every_feature() -> None:
+    b = load_basis(DEMO)
+    assert b.valuation_date == date(2025, 3, 31)
+    assert set(b.tranches) == {"pre2005", "post2005"} and b.default_tranche == "post2005"
+    pre = b.tranches["pre2005"]
+    assert (pre.increase.kind, pre.increase.floor, pre.increase.cap) == ("inflation", 0.0, 0.05)
+    assert (pre.revaluation.kind, pre.revaluation.cap) == ("inflation", 0.05)
+    assert b.accrual_rate == 1 / 60  # "1/60" in the file
+    assert b.payment.frequency == 12 and b.payment.timing == "advance"
+    assert b.withdrawal is not None and b.withdrawal[0] == (18.0, 0.10)
+    assert b.commutation.proportion == 0.2 and b.commutation.factor == 18.0
+    assert {s.kind for s in b.sensitivities} == {
+        "discount_rate", "inflation", "salary_growth", "life_expectancy", "long_term_improvement"}
+    assert b.mapping.status_codes["X"] == "dependant" and b.mapping.sex_codes["1"] == "M"
+    assert b.spouse.proportion_married == {"M": 0.8, "F": 0.7} and b.spouse.fraction == 0.5
+    assert float(b.discount_curve().spot(10.0)) == pytest.approx(0.048, abs=1e-12)
+    assert float(b.inflation_curve().spot(10.0)) == pytest.approx(0.030, abs=1e-12)
+    json.dumps(b.as_dict())  # JSON-serialisable manifest
+    assert b.as_dict()["mortality"]["pensioner"]["M"]["age_rating"] == 1
+
+
+def test_mortality_fallback_rule() -> None:
+    """Stated rule: own entry, else (spouse) the dependant entry, else default; shared entries are cached."""
+    b = load_basis(DEMO)
+    assert b.mortality_key("spouse", "F") == "mortality.dependant.F"
+    assert b.mortality_key("spouse", "M") == "mortality.default.M"
+    assert b.mortality_key("pensioner", "F") == "mortality.default.F"
+    assert b.mortality("spouse", "F") is b.mortality("dependant", "F")
+    assert b.mortality("active", "M") is b.mortality("deferred", "M")
+    assert b.mortality("pensioner", "M").age_rating == 1 and b.mortality("pensioner", "M").percentage == 1.05
+    # closing age: bundled demo tables close at 120 (q_120 = 1); a +1 rating reaches it a year earlier
+    assert b.closing_age("pensioner", "M") == 119 and b.closing_age("active", "F") == 120
+
+
+def test_sult_basis_reproduces_published_survival() -> None:
+    """[DHW] Appendix D: 5p_60 = l_65 / l_60 = 94,579.7 / 96,634.1 (printed to 0.1 of a life)."""
+    b = load_basis(SULT)
+    q = b.mortality("pensioner", "M").q(np.arange(60, 65), np.full(5, 2030))
+    expected = 94_579.7 / 96_634.1
+    assert float(np.prod(1 - q)) == pytest.approx(expected, abs=0.1 / 96_634.1 * 2)
+    assert b.tranches["main"].increase.kind == "none" and b.payment.frequency == 1
+    assert float(b.discount_curve().spot(7.0)) == pytest.approx(0.05, abs=1e-12)
+
+
+def test_defaults_for_optional_sections(tmp_path: Path) -> None:
+    b = load_basis(write(tmp_path, MINIMAL))
+    assert list(b.tranches) == ["main"] and b.default_tranche == "main"
+    assert b.retirement_age == 65.0 and b.withdrawal is None and b.sensitivities == []
+    assert b.payment.frequency == 12 and b.fractional_age == "udd" and b.age_convention == "exact"
+    assert b.spouse.fraction == 0.0 and b.thresholds.old_age == 100.0
+
+
+def test_curve_file_is_relative_to_the_toml_file(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    curve = tmp_path / "cfg" / "curves" / "spot.csv"
+    curve.parent.mkdir(parents=True)
+    curve.write_text("term,rate\n1,0.03\n10,0.04\n20,0.045\n", encoding="utf-8")
+    text = MINIMAL.replace('[discount]\nrate = 0.05', '[discount]\ncurve = "curves/spot.csv"')
+    path = write(tmp_path, text, "cfg/basis.toml")
+    monkeypatch.chdir(tmp_path)  # a different working directory must not matter
+    b = load_basis(path)
+    assert float(b.discount_curve().spot(10.0)) == pytest.approx(0.04, abs=1e-12)
+    # linear interpolation in the spot rate between given terms (discounting module's stated rule)
+    assert float(b.discount_curve().spot(15.0)) == pytest.approx(0.0425, abs=1e-12)
+
+
+def test_demo_curve_file_loads(tmp_path: Path) -> None:
+    """The shipped curve file (assumptions/discount_curve.csv) gives 4.90 % at 20 years."""
+    text = DEMO.read_text(encoding="utf-8").replace("rate = 0.048", 'curve = "discount_curve.csv"', 1)
+    (tmp_path / "discount_curve.csv").write_bytes((DEMO.parent / "discount_curve.csv").read_bytes())
+    b = load_basis(write(tmp_path, text))
+    assert float(b.discount_curve().spot(20.0)) == pytest.approx(0.049, abs=1e-12)
+
+
+@pytest.mark.parametrize(
+    ("change", "expected"),
+    [
+        (("[payment]\nfrequency = 3", ""), ["payment.frequency", "1, 2, 4 or 12", "got 3"]),
+        (("[payment]\nfrequncy = 12", ""), ["unknown key 'payment.frequncy'", "allowed keys here: frequency, timing"]),
+        (("[benefits]\ndesign = \"average\"", ""), ["benefits.design", "'final_salary' or 'career_average'"]),
+        (("[tranches.main]\nincrease = { kind = \"rpi\" }", ""), ["tranches.main.increase.kind", "'none', 'fixed' or 'inflation'"]),
+        (("[conventions]\nage_convention = \"nearest\"", ""), ["conventions.age_convention", "'last_birthday'"]),
+        (("[mapping.status_codes]\nR = \"retired\"", ""), ["mapping.status_codes", "active, deferred, pensioner, dependant", "retired"]),
+        (("[benefits]\naccrual_rate = \"1/0\"", ""), ["benefits.accrual_rate", "1/60"]),
+        (("[spouse]\nproportion_married = { M = 0.8 }", ""), ["spouse.proportion_married", "missing: F"]),
+        (("[[sensitivities]]\nname = \"x\"\nkind = \"longevity\"\nshift = 1", ""), ["sensitivities[0].kind", "'life_expectancy'"]),
+        (("[mapping.columns]\nRef = \"member_number\"", ""), ["member_number", "allowed:", "member_id"]),
+        (("[withdrawal]\nrates = [[30, 0.1], [20, 0.1]]", ""), ["withdrawal.rates", "must increase"]),
+    ],
+)
+def test_messages_name_the_key_and_allowed_values(tmp_path: Path, change: tuple[str, str], expected: list[str]) -> None:
+    msg = error_of(tmp_path, MINIMAL + "\n" + change[0] + "\n")
+    assert "basis.toml" in msg
+    for part in expected:
+        assert part in msg, msg
+
+
+def test_improvement_messages(tmp_path: Path) -> None:
+    bad_kind = MINIMAL.replace('[mortality.default.F]\ntable = "SULT"',
+                               '[mortality.default.F]\ntable = "DEMO_F"\nimprovement = { kind = "cubic" }')
+    msg = error_of(tmp_path, bad_kind)
+    assert "mortality.default.F.improvement" in msg and "'convergence'" in msg and "'by_age'" in msg
+    bad_param = MINIMAL.replace(
+        '[mortality.default.F]\ntable = "SULT"',
+        '[mortality.default.F]\ntable = "DEMO_F"\nimprovement = { kind = "convergence", initial_ages = [60, 80], '
+        'initial_rates = [0.02], long_term_rate = 0.015, start_year = 2021, convergence_years = 10 }')
+    msg = error_of(tmp_path, bad_param)
+    assert "mortality.default.F.improvement" in msg and "initial_rates" in msg
+    typo = MINIMAL.replace('[mortality.default.F]\ntable = "SULT"',
+                           '[mortality.default.F]\ntable = "DEMO_F"\nimprovement = { kind = "constant", rat = 0.01 }')
+    msg = error_of(tmp_path, typo)
+    assert "unknown key 'mortality.default.F.improvement.rat'" in msg and "rate" in msg
+
+
+def test_cross_section_messages(tmp_path: Path) -> None:
+    two = MINIMAL + "[tranches.a]\n[tranches.b]\n"
+    assert "benefits.default_tranche is required" in error_of(tmp_path, two)
+    assert "allowed: a, b" in error_of(tmp_path, two + "[benefits]\ndefault_tranche = \"c\"\n")
+    no_f = MINIMAL.replace('[mortality.default.F]\ntable = "SULT"', "")
+    assert "[mortality.default.F]" in error_of(tmp_path, no_f)
+    both = MINIMAL.replace("[discount]\nrate = 0.05", '[discount]\nrate = 0.05\ncurve = "x.csv"')
+    assert "exactly one of 'rate'" in error_of(tmp_path, both)
+    assert "key 'valuation_date' is required" in error_of(tmp_path, MINIMAL.replace("valuation_date = 2025-03-31", ""))
+    assert "tranche name 'Pre'" in error_of(tmp_path, MINIMAL + "[tranches.Pre]\n")
+
+
+def test_file_level_errors(tmp_path: Path) -> None:
+    with pytest.raises(BasisError, match="basis file not found"):
+        load_basis(tmp_path / "nope.toml")
+    assert "not valid TOML" in error_of(tmp_path, "name = \n")
+    missing_curve = MINIMAL.replace("[discount]\nrate = 0.05", '[discount]\ncurve = "nowhere.csv"')
+    assert "discount.curve" in error_of(tmp_path, missing_curve)
+    missing_table = MINIMAL.replace('table = "SULT"', 'table = "tables/none.csv"', 1)
+    msg = error_of(tmp_path, missing_table)
+    assert "mortality.default.M" in msg and "none.csv" in msg
+
+
+def test_curve_file_content_errors(tmp_path: Path) -> None:
+    (tmp_path / "c.csv").write_text("term,rate\n1,0.03\n5,abc\n", encoding="utf-8")
+    msg = error_of(tmp_path, MINIMAL.replace("[discount]\nrate = 0.05", '[discount]\ncurve = "c.csv"'))
+    assert "row 3" in msg and "column 'rate'" in msg and "'abc' is not a number" in msg
+    (tmp_path / "d.csv").write_text("term,rate\n5,0.03\n2,0.04\n", encoding="utf-8")
+    msg = error_of(tmp_path, MINIMAL.replace("[discount]\nrate = 0.05", '[discount]\ncurve = "d.csv"'))
+    assert "row 3" in msg and "column 'term'" in msg

@@ -1,0 +1,61 @@
+"""The HTML summary rendered by a real headless browser (Chromium from the OS packages).
+
+Checks that the page paints (the screenshot is not blank) and that hostile member text stays inert when
+a browser runs the page: the fixture's ``<img onerror=...>`` probe would mark ``<body>`` if it were ever
+parsed as markup (OWASP XSS Filter Evasion Cheat Sheet, the classic img/onerror vector). Skipped only
+when no Chromium is installed (CI installs it through .ci/run).
+"""
+
+from __future__ import annotations
+
+import re
+import shutil
+import subprocess
+from pathlib import Path
+
+import numpy as np
+import pytest
+from matplotlib.image import imread
+
+from tests.test_reports_fixture import make_experience, make_result
+from valuation.reports import write_html
+
+CHROMIUM = shutil.which("chromium") or shutil.which("chromium-browser") or (
+    "/usr/bin/chromium" if Path("/usr/bin/chromium").exists() else None)
+FLAGS = ["--headless", "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
+         "--disable-background-networking", "--disable-component-update", "--disable-sync"]
+
+pytestmark = pytest.mark.skipif(CHROMIUM is None, reason="chromium is not installed (apt-get install chromium)")
+
+
+def _run(tmp: Path, *args: str) -> subprocess.CompletedProcess:
+    profile = tmp / "profile"
+    profile.mkdir(exist_ok=True)
+    return subprocess.run([CHROMIUM, *FLAGS, f"--user-data-dir={profile}", *args], capture_output=True,
+                          text=True, timeout=90, check=False)
+
+
+@pytest.fixture(scope="module")
+def page(tmp_path_factory: pytest.TempPathFactory) -> Path:
+    return write_html(make_result(), tmp_path_factory.mktemp("browser") / "summary.html", make_experience())
+
+
+def test_screenshot_is_not_blank(page: Path, tmp_path: Path) -> None:
+    png = tmp_path / "shot.png"
+    proc = _run(tmp_path, f"--screenshot={png}", "--window-size=1200,1600", page.as_uri())
+    assert png.exists(), proc.stderr[-2000:]
+    img = imread(png)[..., :3]
+    assert img.shape[:2] == (1600, 1200)
+    grey = img.mean(axis=2)
+    background = np.median(grey)
+    assert grey.std() > 0.03  # a blank page has no variance
+    assert (np.abs(grey - background) > 0.1).mean() > 0.02  # text, cards and charts cover part of it
+
+
+def test_hostile_text_stays_inert_in_a_browser(page: Path, tmp_path: Path) -> None:
+    proc = _run(tmp_path, "--dump-dom", page.as_uri())
+    dom = proc.stdout
+    assert "headline" in dom, proc.stderr[-2000:]
+    assert re.search(r"<body[^>]*data-pwned", dom) is None
+    assert re.search(r"<img\b", dom) is None
+    assert "&lt;script&gt;alert(1)&lt;/script&gt;" in dom

@@ -1,0 +1,161 @@
+"""The actuary's workbook, opened back with openpyxl.
+
+Sources: the results contract (valuation.engine.results.ValuationResult and summary.json, written by
+valuation.manifest.dump_json); ECMA-376 Part 1 (Office Open XML SpreadsheetML): a cell formula is stored
+in an ``<f>`` element and an inline string cell has ``t="inlineStr"`` (from memory: section 18.3.1.40 for
+``f``, 18.18.11 for the cell types); OWASP "CSV Injection" for the formula probes (=, +, -, @).
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import zipfile
+from pathlib import Path
+
+import polars as pl
+import pytest
+from openpyxl import load_workbook
+
+from tests.test_reports_fixture import FORMULA_PROBES, make_experience, make_result
+from valuation.engine import write as engine_write
+from valuation.manifest import dump_json
+from valuation.reports import excel_sheets, write_workbook
+from valuation.reports.excel import SHEETS
+
+
+@pytest.fixture(scope="module")
+def book(tmp_path_factory: pytest.TempPathFactory) -> tuple[Path, object]:
+    result = make_result()
+    path = write_workbook(result, tmp_path_factory.mktemp("xlsx") / "run" / "valuation.xlsx", make_experience())
+    return path, result
+
+
+def _find(ws, label: str):
+    for row in ws.iter_rows(min_col=1, max_col=2):
+        if row[0].value == label:
+            return row[1]
+    raise AssertionError(f"{label!r} not on sheet {ws.title}")
+
+
+def test_all_sheets_present_in_order(book) -> None:
+    path, _ = book
+    assert load_workbook(path).sheetnames == list(SHEETS)
+
+
+def test_experience_sheet_only_when_analysis_run(tmp_path: Path) -> None:
+    path = write_workbook(make_result(), tmp_path / "v.xlsx")
+    assert load_workbook(path).sheetnames == [s for s in SHEETS if s != "Experience"]
+
+
+def test_headline_equals_summary_json(book, tmp_path: Path) -> None:
+    """The total liability in the workbook is the number in summary.json (exact: openpyxl writes repr)."""
+    path, result = book
+    dump_json(result.summary, tmp_path / "summary.json")
+    summary = json.loads((tmp_path / "summary.json").read_text(encoding="utf-8"))
+    wb = load_workbook(path)
+    cell = _find(wb["Summary"], "Total liability [currency]")
+    assert cell.value == summary["liability"]["total"]
+    assert cell.number_format == "#,##0"
+    dest = next(iter(wb.defined_names["TotalLiability"].destinations))
+    assert wb[dest[0]][dest[1].replace("$", "")].value == summary["liability"]["total"]
+    assert _find(wb["Summary"], "Records excluded").value == summary["records"]["excluded"]
+    sedr = _find(wb["Summary"], "Single equivalent discount rate [p.a.]")
+    assert sedr.value == summary["single_equivalent_discount_rate"] and sedr.number_format == "0.00%"
+
+
+@pytest.mark.parametrize("sheet", ["Members", "Exceptions"])
+def test_formula_like_member_text_stays_literal(book, sheet: str) -> None:
+    """OWASP CSV-injection probes in member ids come back as the same literal strings, not formulas."""
+    path, _ = book
+    ws = load_workbook(path)[sheet]
+    header = [c.value for c in ws[excel_sheets.HEAD]]
+    col = header.index("member_id") + 1
+    found = {}
+    for row in range(excel_sheets.HEAD + 1, ws.max_row + 1):
+        cell = ws.cell(row=row, column=col)
+        if cell.value in FORMULA_PROBES:
+            found[cell.value] = cell
+    assert set(found) == set(FORMULA_PROBES)
+    for value, cell in found.items():
+        assert cell.data_type == "s" and cell.data_type != "f", value
+        assert cell.quotePrefix, value
+
+
+def test_no_formula_element_anywhere(book) -> None:
+    """ECMA-376: formulas are <f> elements; the workbook holds none, and the probes are inline strings."""
+    path, _ = book
+    with zipfile.ZipFile(path) as z:
+        sheets = [n for n in z.namelist() if n.startswith("xl/worksheets/sheet")]
+        xml = "".join(z.read(n).decode("utf-8") for n in sheets)
+    assert "<f>" not in xml and "<f " not in xml
+    assert 't="inlineStr"><is><t>=1+1</t></is>' in xml
+
+
+def test_basis_sheet_keeps_formula_like_basis_text(book) -> None:
+    path, result = book
+    ws = load_workbook(path)["Basis"]
+    cell = _find(ws, "name")
+    assert cell.value == result.summary["manifest"]["basis"]["name"] and cell.data_type == "s"
+    assert _find(ws, "discount.rate").value == 0.048
+    assert _find(ws, "mortality.default.M.percentage").value == 0.95
+    assert _find(ws, "sensitivities[0].name").value == "+0.5%"
+
+
+def test_lists_are_tables_with_frozen_headers_and_formats(book) -> None:
+    path, result = book
+    wb = load_workbook(path)
+    for sheet, table in [("Liabilities", "LiabilityCells"), ("Cash flows", "CashFlows"),
+                         ("Sensitivities", "Sensitivities"), ("Exceptions", "Exceptions"), ("Members", "Members")]:
+        ws = wb[sheet]
+        assert ws.freeze_panes == "A4", sheet
+        assert table in ws.tables, sheet
+    ws = wb["Members"]
+    header = [c.value for c in ws[excel_sheets.HEAD]]
+    row = excel_sheets.HEAD + 1
+    assert ws.cell(row=row, column=header.index("liability") + 1).number_format == "#,##0"
+    assert ws.cell(row=row, column=header.index("annuity_factor") + 1).number_format == "0.0000"
+    assert ws.cell(row=row, column=header.index("liability") + 1).value == result.members["liability"][0]
+    assert ws.column_dimensions["A"].width >= 8
+
+
+def test_sensitivity_change_is_a_fraction_shown_as_percent(book) -> None:
+    """change_pct in the summary is in percent; the sheet stores the fraction with a % format."""
+    path, result = book
+    ws = load_workbook(path)["Sensitivities"]
+    header = [c.value for c in ws[excel_sheets.HEAD]]
+    cell = ws.cell(row=excel_sheets.HEAD + 1, column=header.index("change in liability") + 1)
+    assert cell.value == pytest.approx(result.sensitivities["change_pct"][0] / 100.0, rel=1e-12)
+    assert cell.number_format == "0.0%"
+
+
+def test_charts_on_cashflow_and_experience_sheets(book) -> None:
+    path, _ = book
+    wb = load_workbook(path)
+    assert len(wb["Cash flows"]._charts) == 1
+    assert len(wb["Experience"]._charts) == 1
+
+
+def test_large_scheme_points_to_parquet(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    """Above the engine's SMALL_SCHEME the per-member sheet only points to members.parquet."""
+    assert excel_sheets.SMALL_SCHEME == engine_write.SMALL_SCHEME
+    monkeypatch.setattr(excel_sheets, "SMALL_SCHEME", 3)
+    ws = load_workbook(write_workbook(make_result(), tmp_path / "big.xlsx"))["Members"]
+    texts = [c.value for row in ws.iter_rows() for c in row if isinstance(c.value, str)]
+    assert any("members.parquet" in t for t in texts)
+    assert ws.max_row <= 3
+
+
+def test_awkward_values_do_not_break_the_file(tmp_path: Path) -> None:
+    """Control characters (not allowed in XML 1.0) and NaN/inf are written as safe values."""
+    result = make_result()
+    result.members = result.members.with_columns(
+        pl.Series("member_id", ["bell\x07", "tab\tok", "M3", "M4", "M5", "M6"]),
+        pl.Series("annuity_factor", [math.nan, math.inf, 1.0, 2.0, 3.0, 4.0]),
+    )
+    ws = load_workbook(write_workbook(result, tmp_path / "odd.xlsx"))["Members"]
+    row = excel_sheets.HEAD + 1
+    header = [c.value for c in ws[excel_sheets.HEAD]]
+    assert ws.cell(row=row, column=1).value == "bell\ufffd"
+    assert ws.cell(row=row + 1, column=1).value == "tab\tok"
+    assert ws.cell(row=row, column=header.index("annuity_factor") + 1).value is None

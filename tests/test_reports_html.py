@@ -1,0 +1,157 @@
+"""The trustees' HTML summary, parsed back with the standard library's html.parser.
+
+Sources: the results contract (summary.json); WHATWG HTML Living Standard, section 13.1.2 "Elements"
+(void elements need no end tag; every other element we write is closed in order) and 13.1.2.6 on
+escaping: text ``<`` must appear as ``&lt;`` (from memory); OWASP XSS Prevention Cheat Sheet, rule #1
+(HTML-escape untrusted data in element content and attribute values); CSS Paged Media Level 3
+(``@page { size: A4 }``).
+"""
+
+from __future__ import annotations
+
+from html.parser import HTMLParser
+
+import pytest
+
+from tests.test_reports_fixture import IMG_PROBE, SCRIPT_PROBE, make_experience, make_result
+from valuation.reports import write_html
+from valuation.reports.html import render_html
+
+VOID = {"area", "base", "br", "col", "embed", "hr", "img", "input", "link", "meta", "source", "track", "wbr"}
+
+
+class Page(HTMLParser):
+    """Collects tags, attributes, text and the value spans; checks that elements nest and close."""
+
+    def __init__(self) -> None:
+        super().__init__(convert_charrefs=True)
+        self.stack: list[str] = []
+        self.errors: list[str] = []
+        self.tags: list[tuple[str, dict[str, str | None]]] = []
+        self.text: list[str] = []
+        self.values: dict[str, str] = {}
+        self._key: str | None = None
+        self.styles: list[str] = []
+        self._in_style = False
+
+    def handle_starttag(self, tag: str, attrs: list[tuple[str, str | None]]) -> None:
+        a = dict(attrs)
+        self.tags.append((tag, a))
+        if tag not in VOID:
+            self.stack.append(tag)
+        if tag == "span" and a.get("data-key"):
+            self._key = a["data-key"]
+            self.values[self._key] = ""
+        self._in_style = tag == "style"
+
+    def handle_startendtag(self, tag: str, attrs: list[tuple[str, str | None]]) -> None:
+        self.tags.append((tag, dict(attrs)))
+
+    def handle_endtag(self, tag: str) -> None:
+        if not self.stack or self.stack[-1] != tag:
+            self.errors.append(f"</{tag}> closes {self.stack[-1:] or 'nothing'}")
+        else:
+            self.stack.pop()
+        if tag == "span":
+            self._key = None
+        self._in_style = False
+
+    def handle_data(self, data: str) -> None:
+        self.text.append(data)
+        if self._key:
+            self.values[self._key] += data
+        if self._in_style:
+            self.styles.append(data)
+
+
+def parse(text: str) -> Page:
+    page = Page()
+    page.feed(text)
+    page.close()
+    return page
+
+
+@pytest.fixture(scope="module")
+def page_text(tmp_path_factory: pytest.TempPathFactory) -> str:
+    path = write_html(make_result(), tmp_path_factory.mktemp("html") / "out" / "summary.html", make_experience())
+    return path.read_text(encoding="utf-8")
+
+
+def test_parses_and_every_element_is_closed(page_text: str) -> None:
+    page = parse(page_text)
+    assert page.errors == []
+    assert page.stack == []
+    assert page_text.startswith("<!DOCTYPE html>")
+
+
+def test_headline_figures_equal_the_summary(page_text: str) -> None:
+    """Each headline is the summary's number, formatted here independently of the library."""
+    s = make_result().summary
+    values = parse(page_text).values
+    assert values["total_liability"] == f"{round(s['liability']['total']):,}"
+    assert values["duration"] == f"{s['duration']['macaulay']:.1f} years"
+    assert values["sedr"] == f"{100 * s['single_equivalent_discount_rate']:.2f}%"
+    assert values["members_valued"] == f"{s['records']['valued']:,}"
+    assert values["service_cost"] == f"{round(s['active_measures']['current_service_cost']):,}"
+
+
+def test_member_and_basis_text_is_escaped(page_text: str) -> None:
+    """OWASP rule #1: the probes appear as text (&lt;script&gt;), never as live elements."""
+    page = parse(page_text)
+    assert "script" not in {t for t, _ in page.tags}
+    assert "img" not in {t for t, _ in page.tags}
+    assert not any(k.startswith("on") for _, a in page.tags for k in a)
+    text = "".join(page.text)
+    assert SCRIPT_PROBE in text and IMG_PROBE.split(" ")[0] in text
+    assert "&lt;script&gt;alert(1)&lt;/script&gt;" in page_text
+    assert SCRIPT_PROBE not in page_text
+
+
+def test_no_external_urls(page_text: str) -> None:
+    """Self-contained: no src/href to the network, no stylesheet links, no remote CSS."""
+    page = parse(page_text)
+    for tag, attrs in page.tags:
+        for name in ("src", "href", "xlink:href", "action", "data"):
+            value = (attrs.get(name) or "").strip().lower()
+            assert not value.startswith(("http", "//", "ftp")), (tag, name, value)
+            if value and tag in ("use",):
+                assert value.startswith("#")
+        assert tag not in ("link", "script", "iframe", "object")
+    css = "".join(page.styles).lower()
+    assert "http" not in css and "@import" not in css and "url(" not in css
+
+
+def test_print_stylesheet_for_a4(page_text: str) -> None:
+    """CSS Paged Media: an @page rule with size A4, and print-only rules."""
+    css = "".join(parse(page_text).styles)
+    assert "@page" in css and "size: A4" in css
+    assert "@media print" in css
+
+
+def test_sections_charts_and_cautions(page_text: str) -> None:
+    page = parse(page_text)
+    ids = {a.get("id") for t, a in page.tags if t == "section"}
+    assert {"headline", "by-group", "payments", "assumptions", "sensitivities", "life-expectancy", "experience",
+            "data", "cautions"} <= ids
+    assert sum(1 for t, _ in page.tags if t == "svg") == 3
+    text = " ".join("".join(page.text).split())
+    assert "not advice" in text and "qualified actuary" in text and "depend on the assumptions" in text
+    assert "4.80% a year" in text  # discount rate 0.048 in words
+    assert "-7.5%" in text  # sensitivity change_pct -7.48 to one decimal
+    assert "21.4 years" in text  # life expectancy of the fixture
+
+
+def test_data_section_counts_reasons_from_exceptions(page_text: str) -> None:
+    """Each reason is counted from result.exceptions (fixture: one record each)."""
+    result = make_result()
+    page = parse(page_text)
+    text = " ".join("".join(page.text).split())
+    for reason in result.exceptions["reason"].to_list():
+        assert " ".join(reason.split()) in text
+    assert f"{result.summary['records']['read']} records were read" in text
+
+
+def test_without_experience_no_experience_section() -> None:
+    page = parse(render_html(make_result()))
+    assert "experience" not in {a.get("id") for t, a in page.tags if t == "section"}
+    assert sum(1 for t, _ in page.tags if t == "svg") == 2
