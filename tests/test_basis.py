@@ -191,3 +191,11 @@ def test_curve_file_content_errors(tmp_path: Path) -> None:
     (tmp_path / "d.csv").write_text("term,rate\n5,0.03\n2,0.04\n", encoding="utf-8")
     msg = error_of(tmp_path, MINIMAL.replace("[discount]\nrate = 0.05", '[discount]\ncurve = "d.csv"'))
     assert "row 3" in msg and "column 'term'" in msg
+
+
+def test_model_copy_variant_does_not_reuse_cached_objects() -> None:
+    b = load_basis(DEMO)
+    assert float(b.discount_curve().spot(5.0)) == pytest.approx(0.048, abs=1e-12)
+    shifted = b.model_copy(update={"discount": b.discount.model_copy(update={"rate": 0.053})})
+    assert float(shifted.discount_curve().spot(5.0)) == pytest.approx(0.053, abs=1e-12)
+    assert float(b.discount_curve().spot(5.0)) == pytest.approx(0.048, abs=1e-12)

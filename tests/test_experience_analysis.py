@@ -274,3 +274,79 @@ def test_table_dimensions_reconcile_to_overall() -> None:
         "2023",
         "2024",
     ]
+
+
+class ClosingAt100(LawRates):
+    """SULT law q, with q = 1 from age 100 (a table closing at 100)."""
+
+    def q(self, ages, years):  # noqa: ANN001, ANN201
+        q = super().q(ages, years)
+        return np.where(np.asarray(ages) >= 100, 1.0, q)
+
+    def mu(self, ages, years):  # noqa: ANN001, ANN201
+        with np.errstate(divide="ignore"):
+            return -np.log1p(-self.q(ages, years))
+
+
+def test_cells_at_the_closing_age_are_left_out_with_a_warning() -> None:
+    """mu = -ln(1 - q) is infinite where q = 1 (the closing age), so that exposure cannot carry expected
+    deaths: it is left out and listed, never silently dropped."""
+    recs = records(["1922-01-01", "1950-01-01"])  # the first turns 100 on 1 Jan 2022
+    deaths = deaths_frame([("M00000", "2022-06-01", None)])
+    res = analyse_records(
+        recs,
+        deaths,
+        None,
+        lookup_for(ClosingAt100()),
+        ExperienceSettings(**PERIOD),
+        files={"members": "s.csv"},
+    )
+    warn = res.exceptions.filter(pl.col("severity") == "warning").to_dicts()
+    assert len(warn) == 1 and warn[0]["member_id"] == "M00000" and warn[0]["file"] == "s.csv"
+    # 1 Jan-1 Jun 2022 = 31+28+31+30+31+1 = 152 days at age 100, with the one death
+    assert warn[0]["reason"] == (
+        "member reaches age 100, where the pensioner M mortality has q = 1 (closing age), in the period: "
+        f"{round(152 / 365.25, 3)} years of exposure and 1 death(s) from that age are left out of the analysis"
+    )
+    counts = res.summary["records"]["deaths"]
+    assert counts["counted"] == 1 and counts["in_cells"] == 0 and counts["left_out_at_closing_age"] == 1
+    assert np.isfinite(res.overall()["expected_lives"])
+
+
+@pytest.mark.parametrize(
+    ("kwargs", "text"),
+    [
+        (
+            {"period_end": date(2021, 3, 31)},
+            "experience setting period_end = datetime.date(2021, 3, 31): expected a date after",
+        ),
+        ({"exposure": "mid"}, "experience setting exposure = 'mid': expected 'central' or 'initial'"),
+        ({"confidence": 95}, "expected a number strictly between 0 and 1"),
+        ({"late_uplift": -0.1}, "late_uplift = -0.1: expected a proportion >= 0"),
+        ({"pension_band_edges": (5000.0, 1000.0)}, "expected increasing amounts > 0"),
+    ],
+)
+def test_settings_errors_name_the_setting(kwargs: dict, text: str) -> None:
+    from valuation.errors import BasisError
+
+    with pytest.raises(BasisError) as info:
+        ExperienceSettings(**{**PERIOD, **kwargs})
+    assert text in str(info.value)
+    assert info.value.column == next(iter(kwargs))
+
+
+def test_pension_band_labels_with_given_edges() -> None:
+    from valuation.experience.tables import pension_band_labels
+
+    labels, order = pension_band_labels(
+        pl.Series([0.0, 500.0, 1000.0, 4999.99, 5000.0, None]), (1000.0, 5000.0)
+    )
+    assert labels.to_list() == [
+        "nil",
+        "under 1,000",
+        "1,000 to 5,000",
+        "1,000 to 5,000",
+        "5,000 and over",
+        "nil",
+    ]
+    assert list(order) == ["nil", "under 1,000", "1,000 to 5,000", "5,000 and over"]

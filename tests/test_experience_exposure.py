@@ -24,7 +24,9 @@ def _d(*s: str) -> np.ndarray:
 
 def _cells(out: dict, member: int) -> list[tuple[int, int, int]]:
     sel = out["member"] == member
-    return list(zip(out["age"][sel].tolist(), out["year"][sel].tolist(), out["days"][sel].tolist(), strict=True))
+    return list(
+        zip(out["age"][sel].tolist(), out["year"][sel].tolist(), out["days"][sel].tolist(), strict=True)
+    )
 
 
 def test_hand_worked_exposure_death_exit_and_late_entry() -> None:
@@ -40,7 +42,13 @@ def test_hand_worked_exposure_death_exit_and_late_entry() -> None:
     # Member 1, born 29 Feb 1948 (birthday 1 Mar in 2021-2023), exits 30 Jun 2023:
     #   1 Apr-31 Dec 2021 age 73: 275; Jan-Feb 2022 age 73: 59; 1 Mar-31 Dec 2022 age 74: 306;
     #   Jan-Feb 2023 age 74: 59; 1 Mar-30 Jun 2023 age 75: 31+30+31+30 = 122.
-    assert _cells(out, 1) == [(73, 2021, 275), (73, 2022, 59), (74, 2022, 306), (74, 2023, 59), (75, 2023, 122)]
+    assert _cells(out, 1) == [
+        (73, 2021, 275),
+        (73, 2022, 59),
+        (74, 2022, 306),
+        (74, 2023, 59),
+        (75, 2023, 122),
+    ]
     # Member 2, born 1 Jan 1970, observed from 1 Jan 2023 to 31 Mar 2024 (2024 a leap year):
     assert _cells(out, 2) == [(53, 2023, 365), (54, 2024, 31 + 29 + 31)]
     # Totals equal the calendar differences end - entry, and exposure is days / 365.25.

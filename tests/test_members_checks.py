@@ -2,8 +2,8 @@
 
 The rules checked are the package's stated rules (valuation/members/checks.py): duplicate ids exclude every
 copy (common practice: ask the administrator); tranches must sum to the pension within a cent; a life is
-beyond its table past the table's closing age less the age rating. The SULT closes at age 120 ([DHW]
-Dickson, Hardy & Waters, AMLCR, Appendix D table ends at 120 in the bundled version; q_120 = 1).
+beyond its table past the table's closing age less the age rating. The bundled SULT closes at age 120
+(closing rule q_120 = 1, stated in valuation/mortality/bundled.py).
 """
 
 from __future__ import annotations

@@ -1,6 +1,7 @@
 """The actuary's workbook, opened back with openpyxl.
 
-Sources: the results contract (valuation.engine.results.ValuationResult and summary.json, written by
+Most checks use a real run of the demo scheme (tests.test_reports_fixture.real_run) written through the
+engine's own run-folder writer, so the workbook and summary.json come from the same run. Sources: the results contract (valuation.engine.results.ValuationResult and summary.json, written by
 valuation.manifest.dump_json); ECMA-376 Part 1 (Office Open XML SpreadsheetML): a cell formula is stored
 in an ``<f>`` element and an inline string cell has ``t="inlineStr"`` (from memory: section 18.3.1.40 for
 ``f``, 18.18.11 for the cell types); OWASP "CSV Injection" for the formula probes (=, +, -, @).
@@ -17,18 +18,25 @@ import polars as pl
 import pytest
 from openpyxl import load_workbook
 
-from tests.test_reports_fixture import FORMULA_PROBES, make_experience, make_result
+from tests.test_reports_fixture import FORMULA_PROBES, make_result, real_run
 from valuation.engine import write as engine_write
-from valuation.manifest import dump_json
 from valuation.reports import excel_sheets, write_workbook
 from valuation.reports.excel import SHEETS
 
 
 @pytest.fixture(scope="module")
-def book(tmp_path_factory: pytest.TempPathFactory) -> tuple[Path, object]:
-    result = make_result()
-    path = write_workbook(result, tmp_path_factory.mktemp("xlsx") / "run" / "valuation.xlsx", make_experience())
-    return path, result
+def run_folder(tmp_path_factory: pytest.TempPathFactory) -> Path:
+    result, experience = real_run()
+
+    def workbook(res, folder: Path) -> None:
+        write_workbook(res, folder / "valuation.xlsx", experience=experience)
+
+    return engine_write.write_run(result, tmp_path_factory.mktemp("xlsx") / "run", extra=[workbook])
+
+
+@pytest.fixture(scope="module")
+def book(run_folder: Path) -> tuple[Path, object]:
+    return run_folder / "valuation.xlsx", real_run()[0]
 
 
 def _find(ws, label: str):
@@ -48,11 +56,10 @@ def test_experience_sheet_only_when_analysis_run(tmp_path: Path) -> None:
     assert load_workbook(path).sheetnames == [s for s in SHEETS if s != "Experience"]
 
 
-def test_headline_equals_summary_json(book, tmp_path: Path) -> None:
-    """The total liability in the workbook is the number in summary.json (exact: openpyxl writes repr)."""
-    path, result = book
-    dump_json(result.summary, tmp_path / "summary.json")
-    summary = json.loads((tmp_path / "summary.json").read_text(encoding="utf-8"))
+def test_headline_equals_summary_json(book, run_folder: Path) -> None:
+    """The total liability in the workbook is the number in the run's summary.json (exact: both keep repr)."""
+    path, _ = book
+    summary = json.loads((run_folder / "summary.json").read_text(encoding="utf-8"))
     wb = load_workbook(path)
     cell = _find(wb["Summary"], "Total liability [currency]")
     assert cell.value == summary["liability"]["total"]
@@ -64,19 +71,24 @@ def test_headline_equals_summary_json(book, tmp_path: Path) -> None:
     assert sedr.value == summary["single_equivalent_discount_rate"] and sedr.number_format == "0.00%"
 
 
-@pytest.mark.parametrize("sheet", ["Members", "Exceptions"])
-def test_formula_like_member_text_stays_literal(book, sheet: str) -> None:
-    """OWASP CSV-injection probes in member ids come back as the same literal strings, not formulas."""
+# members_dirty.csv holds =1+1 as a member id and these values in rows the checks reject.
+DIRTY_VALUES = ['=HYPERLINK("x")', "-250.00", "-1"]
+
+
+@pytest.mark.parametrize(("sheet", "column", "probes"),
+                         [("Members", "member_id", FORMULA_PROBES), ("Exceptions", "value", DIRTY_VALUES)])
+def test_formula_like_member_text_stays_literal(book, sheet: str, column: str, probes: list[str]) -> None:
+    """OWASP CSV-injection probes from member data come back as the same literal strings, not formulas."""
     path, _ = book
     ws = load_workbook(path)[sheet]
     header = [c.value for c in ws[excel_sheets.HEAD]]
-    col = header.index("member_id") + 1
+    col = header.index(column) + 1
     found = {}
     for row in range(excel_sheets.HEAD + 1, ws.max_row + 1):
         cell = ws.cell(row=row, column=col)
-        if cell.value in FORMULA_PROBES:
+        if cell.value in probes:
             found[cell.value] = cell
-    assert set(found) == set(FORMULA_PROBES)
+    assert set(found) == set(probes)
     for value, cell in found.items():
         assert cell.data_type == "s" and cell.data_type != "f", value
         assert cell.quotePrefix, value
@@ -92,13 +104,22 @@ def test_no_formula_element_anywhere(book) -> None:
     assert 't="inlineStr"><is><t>=1+1</t></is>' in xml
 
 
-def test_basis_sheet_keeps_formula_like_basis_text(book) -> None:
-    path, result = book
+def test_basis_sheet_is_the_basis_as_loaded(book) -> None:
+    """Values of assumptions/demo_basis.toml, flattened to dotted keys."""
+    path, _ = book
     ws = load_workbook(path)["Basis"]
+    assert _find(ws, "discount.rate").value == 0.048
+    assert _find(ws, "mortality.pensioner.M.percentage").value == 1.05
+    assert _find(ws, "mortality.default.M.improvement.initial_ages").value == "40, 60, 80, 100"
+    assert _find(ws, "sensitivities[0].name").value == "Discount rate +0.5% p.a."
+    assert _find(ws, "mapping.columns.Ref No").value == "member_id"
+
+
+def test_basis_sheet_keeps_formula_like_basis_text(tmp_path: Path) -> None:
+    result = make_result()
+    ws = load_workbook(write_workbook(result, tmp_path / "b.xlsx"))["Basis"]
     cell = _find(ws, "name")
     assert cell.value == result.summary["manifest"]["basis"]["name"] and cell.data_type == "s"
-    assert _find(ws, "discount.rate").value == 0.048
-    assert _find(ws, "mortality.default.M.percentage").value == 0.95
     assert _find(ws, "sensitivities[0].name").value == "+0.5%"
 
 

@@ -1,18 +1,25 @@
-"""A small hand-made valuation result for the report tests, with hostile text in member fields.
+"""Valuation results for the report tests: a real run of the demo scheme, and a small hand-made one.
 
-The figures are invented (not the output of a valuation) and only need to be internally consistent:
-the reports must show what the result holds, whatever it holds. The hostile strings are the classic
-spreadsheet formula-injection probes (OWASP, "CSV Injection") and an HTML script probe (OWASP XSS
-filter evasion cheat sheet).
+``real_run`` values the demo's deliberately broken member file (members_dirty.csv, 40 records, one with
+member id ``=1+1`` and a status of ``<script>alert(1)</script>``) on the demo basis, runs the demo
+experience analysis, and adds the remaining probes to the member ids and the exceptions. ``make_result``
+holds invented figures that need only be internally consistent (the reports must show what a result
+holds, whatever it holds) and puts probes in the basis and sensitivity names too. The probes are the
+classic spreadsheet formula-injection strings (OWASP, "CSV Injection") and HTML script probes (OWASP XSS
+Filter Evasion Cheat Sheet).
 """
 
 from __future__ import annotations
 
 from datetime import date
+from functools import lru_cache
+from pathlib import Path
 
 import polars as pl
 
 from valuation.engine.results import ValuationResult
+from valuation.engine.run import value_scheme
+from valuation.experience.analyse import analyse_experience
 from valuation.experience.result import TABLE_COLUMNS, ExperienceResult
 from valuation.experience.settings import ExperienceSettings
 
@@ -20,6 +27,34 @@ FORMULA_PROBES = ["=1+1", "+44", "-3", "@SUM(A1)"]
 SCRIPT_PROBE = "<script>alert(1)</script>"
 #: Runs script in a browser if it ever reaches the page as markup: it would mark the <body>.
 IMG_PROBE = "<img src=x onerror=\"document.body.setAttribute('data-pwned','1')\">"
+
+
+ROOT = Path(__file__).resolve().parents[1]
+DEMO = ROOT / "member_data_demo"
+BASIS = ROOT / "assumptions" / "demo_basis.toml"
+
+
+@lru_cache(maxsize=1)
+def real_run() -> tuple[ValuationResult, ExperienceResult]:
+    """The demo valuation of members_dirty.csv and the demo experience analysis 2022-2025, with probes."""
+    result = value_scheme(DEMO / "members_dirty.csv", BASIS)
+    ids = result.members["member_id"].to_list()
+    others = [i for i, m in enumerate(ids) if m not in FORMULA_PROBES][: len(FORMULA_PROBES)]
+    for i, probe in zip(others, FORMULA_PROBES, strict=False):
+        if probe not in ids:
+            ids[i] = probe
+    result.members = result.members.with_columns(pl.Series("member_id", ids, dtype=pl.String))
+    extra = pl.DataFrame({
+        "file": ["members_dirty.csv"] * 2, "row": [41, 42], "member_id": [SCRIPT_PROBE, IMG_PROBE],
+        "column": ["member_id", "sex"], "value": [SCRIPT_PROBE, IMG_PROBE],
+        "reason": ["test probe in a reason: " + SCRIPT_PROBE, "test probe in a reason: " + IMG_PROBE],
+        "severity": ["warning", "warning"],
+    }).cast(result.exceptions.schema)
+    result.exceptions = pl.concat([result.exceptions, extra], how="vertical")
+    settings = ExperienceSettings(period_start=date(2022, 3, 31), period_end=date(2025, 3, 31))
+    experience = analyse_experience(DEMO / "members_start.csv", DEMO / "deaths.csv", BASIS, settings,
+                                    exits_path=DEMO / "exits.csv")
+    return result, experience
 
 
 def make_result(n_members: int = 6) -> ValuationResult:

@@ -114,7 +114,8 @@ class WithdrawalSpec(BaseModel):
 class Basis(BaseModel):
     """A validated assumptions basis (see the module docstring for the TOML layout).
 
-    Build it with :func:`valuation.basis.load_basis`. Curves and mortality bases are built once and cached.
+    Build it with :func:`valuation.basis.load_basis`. Curves and mortality bases are built once and cached
+    (keyed on the entries they come from, so ``model_copy(update=...)`` variants stay correct).
     """
 
     model_config = ConfigDict(extra="forbid", frozen=True, arbitrary_types_allowed=True)
@@ -240,15 +241,17 @@ class Basis(BaseModel):
 
     def discount_curve(self) -> Any:
         """The discount :class:`~valuation.discounting.RateCurve` (flat rate or spot curve file)."""
-        if "discount" not in self._cache:
-            self._cache["discount"] = build_curve(self.discount, self.base_dir, "discount")
-        return self._cache["discount"]
+        key = ("discount", self.discount, self.base_dir)
+        if key not in self._cache:
+            self._cache[key] = build_curve(self.discount, self.base_dir, "discount")
+        return self._cache[key]
 
     def inflation_curve(self) -> Any:
         """The price-inflation :class:`~valuation.discounting.RateCurve` (flat rate or curve file)."""
-        if "inflation" not in self._cache:
-            self._cache["inflation"] = build_curve(self.inflation, self.base_dir, "inflation")
-        return self._cache["inflation"]
+        key = ("inflation", self.inflation, self.base_dir)
+        if key not in self._cache:
+            self._cache[key] = build_curve(self.inflation, self.base_dir, "inflation")
+        return self._cache[key]
 
     def mortality_key(self, group: Group, sex: Literal["M", "F"]) -> str:
         """Dotted key of the entry a member group and sex use, e.g. ``"mortality.default.M"``.
@@ -271,12 +274,15 @@ class Basis(BaseModel):
         to ``dependant``. Groups sharing an entry share one object.
         """
         key = self.mortality_key(group, sex)
-        if key not in self._cache:
+        _, g, s = key.split(".")
+        entry = self.mortality_entries[g][s]  # type: ignore[index]
+        # keyed on the entry object too, so a model_copy with other entries (which shares this cache
+        # dict) never sees a stale table
+        cache_key = (key, id(entry), self.base_dir)
+        if cache_key not in self._cache:
             from valuation.mortality.basis import MortalityBasis
             from valuation.mortality.bundled import resolve_table
 
-            _, g, s = key.split(".")
-            entry = self.mortality_entries[g][s]  # type: ignore[index]
             try:
                 table = resolve_table(entry.table, self.base_dir, entry.table_name)
                 improvement = build_improvement(entry.improvement, self.base_dir)
@@ -292,8 +298,8 @@ class Basis(BaseModel):
                     "give a bundled table name (SULT, DEMO_M, DEMO_F) or a table file path relative to the "
                     "basis file, and a valid improvement")
                 raise BasisError(f"key '{key}': {exc}", file=self.source_path, fix=fix) from exc
-            self._cache[key] = mb
-        return self._cache[key]
+            self._cache[cache_key] = (entry, mb)  # holding the entry keeps its id unique
+        return self._cache[cache_key][1]
 
     def closing_age(self, group: Group, sex: Literal["M", "F"]) -> int:
         """Oldest integer age [years] the group's table can value after its age rating.

@@ -35,7 +35,7 @@ from numpy.typing import NDArray
 from valuation.engine.context import MAX_AGE, Context, MortalityRows, increase_index, revaluation_index
 from valuation.engine.legs import dedupe, sum_by_key, value_leg
 from valuation.engine.results import STATUSES
-from valuation.engine.scenario import GROUPS, SEXES, Scenario, curves, mortality_for
+from valuation.engine.scenario import BASE, GROUPS, SEXES, Scenario, curves, mortality_for
 from valuation.survival import age_at, lx_at
 
 
@@ -64,7 +64,7 @@ def _days(d: Any) -> NDArray[np.datetime64]:
 class Valuer:
     """Builds the context for one scenario and values frames of member records under it."""
 
-    def __init__(self, basis: Any, scenario: Scenario = Scenario(), base_multiplier: float = 1.0) -> None:
+    def __init__(self, basis: Any, scenario: Scenario = BASE, base_multiplier: float = 1.0) -> None:
         self.basis = basis
         self.scenario = scenario
         vd: date = basis.valuation_date

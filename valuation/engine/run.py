@@ -26,6 +26,7 @@ from valuation.discounting import present_value, single_equivalent_rate
 from valuation.engine.project import Projection, Valuer
 from valuation.engine.results import STATUSES, ValuationResult
 from valuation.engine.scenario import (
+    BASE,
     SEXES,
     Scenario,
     cohort_expectancy_at,
@@ -49,7 +50,7 @@ def _chunks(records: pl.DataFrame, size: int) -> Iterable[pl.DataFrame]:
 
 
 def project_records(
-    records: pl.DataFrame, basis: Any, scenario: Scenario = Scenario(), *, base_multiplier: float = 1.0,
+    records: pl.DataFrame, basis: Any, scenario: Scenario = BASE, *, base_multiplier: float = 1.0,
     chunk_size: int = DEFAULT_CHUNK,
 ) -> Projection:
     """Value ``records`` under one scenario, chunk by chunk, and join the per-member values."""
@@ -71,7 +72,7 @@ def project_records(
     )
 
 
-def total_liability(records: pl.DataFrame, basis: Any, scenario: Scenario = Scenario(), *,
+def total_liability(records: pl.DataFrame, basis: Any, scenario: Scenario = BASE, *,
                     base_multiplier: float = 1.0, chunk_size: int = DEFAULT_CHUNK) -> float:
     """Total liability [currency] of ``records`` under one scenario (no per-member results kept)."""
     valuer = Valuer(basis, scenario, base_multiplier)

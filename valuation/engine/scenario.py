@@ -44,6 +44,10 @@ class Scenario:
         return dict(self.q_multiplier).get(sex, 1.0)
 
 
+#: The base scenario: the basis as it stands.
+BASE = Scenario()
+
+
 def _long_term_rate(scale: Any) -> float:
     for attr in ("long_term_rate", "rate"):
         if hasattr(scale, attr):

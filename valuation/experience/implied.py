@@ -109,6 +109,12 @@ def liability_effect(
     dict
         ``liability_before``, ``liability_after`` [currency], ``change_pct`` [%], ``reason`` (None when
         calculated, else why not).
+
+    References
+    ----------
+    Common practice: the effect of a mortality assumption is measured by re-valuing on the changed basis
+    (here ``valuation.engine.run.value_members`` with ``q_multiplier``), as for the life expectancy
+    sensitivity of IAS 19 para. 145.
     """
     skipped = {"liability_before": None, "liability_after": None, "change_pct": None}
     if valuation_members_path is None:

@@ -10,18 +10,14 @@ from __future__ import annotations
 import io
 import re
 
-import matplotlib
+import numpy as np
+import polars as pl
+from matplotlib import rc_context
+from matplotlib.figure import Figure
+from matplotlib.ticker import FuncFormatter, MaxNLocator
 
-matplotlib.use("Agg")
-
-import matplotlib.pyplot as plt  # noqa: E402
-import numpy as np  # noqa: E402
-import polars as pl  # noqa: E402
-from matplotlib.figure import Figure  # noqa: E402
-from matplotlib.ticker import FuncFormatter, MaxNLocator  # noqa: E402
-
-from valuation.engine.results import STATUSES  # noqa: E402
-from valuation.reports.content import STATUS_LABELS  # noqa: E402
+from valuation.engine.results import STATUSES
+from valuation.reports.content import AE_AXIS_MAX, STATUS_LABELS, chart_bands
 
 #: Colours, one a status, in reporting order; then the accent and the grid colour.
 PALETTE: dict[str, str] = {
@@ -36,10 +32,6 @@ _RC = {
     "font.size": 10, "axes.edgecolor": GRID, "axes.labelcolor": INK, "xtick.color": INK, "ytick.color": INK,
     "axes.spines.top": False, "axes.spines.right": False,
 }
-#: Age bands with fewer expected deaths than this are left out of the A/E chart [lives].
-MIN_EXPECTED = 1.0
-#: Top of the A/E chart's axis [%].
-AE_AXIS_MAX = 400.0
 _BAND = re.compile(r"^\s*(\d{1,3})\s*-\s*(\d{1,3})\s*$")
 
 
@@ -52,7 +44,6 @@ def to_svg(fig: Figure, prefix: str) -> str:
     id prefixed with ``prefix`` so several charts can share one page."""
     buf = io.StringIO()
     fig.savefig(buf, format="svg", bbox_inches="tight", metadata={"Date": None, "Creator": None})
-    plt.close(fig)
     svg = buf.getvalue()
     svg = svg[svg.index("<svg"):]
     svg = re.sub(r"<metadata>.*?</metadata>", "", svg, flags=re.S)
@@ -65,8 +56,9 @@ def liability_by_group(by_status: dict[str, float]) -> str:
     """Horizontal bars of the liability [currency] of each member group."""
     keys = [s for s in STATUSES if by_status.get(s)]
     values = np.array([float(by_status[s]) for s in keys])
-    with plt.rc_context(_RC):
-        fig, ax = plt.subplots(figsize=(7.0, 0.55 * max(len(keys), 1) + 1.0))
+    with rc_context(_RC):
+        fig = Figure(figsize=(7.0, 0.55 * max(len(keys), 1) + 1.0))
+        ax = fig.subplots()
         ax.barh([STATUS_LABELS[s] for s in keys], values, color=[PALETTE[s] for s in keys])
         ax.invert_yaxis()
         ax.xaxis.set_major_formatter(FuncFormatter(_thousands))
@@ -79,8 +71,9 @@ def liability_by_group(by_status: dict[str, float]) -> str:
 def payments_profile(cashflows: pl.DataFrame) -> str:
     """Stacked columns of the expected payments [currency] by year, one colour a member group."""
     years = cashflows["year"].to_numpy() if cashflows.height else np.array([1])
-    with plt.rc_context(_RC):
-        fig, ax = plt.subplots(figsize=(8.0, 3.4))
+    with rc_context(_RC):
+        fig = Figure(figsize=(8.0, 3.4))
+        ax = fig.subplots()
         bottom = np.zeros(len(years))
         for s in STATUSES:
             if s not in cashflows.columns or not cashflows.height:
@@ -110,12 +103,6 @@ def band_labels(groups: list[str]) -> list[str]:
     return out
 
 
-def chart_bands(bands: pl.DataFrame) -> pl.DataFrame:
-    """The age bands worth charting: at least :data:`MIN_EXPECTED` expected deaths (others have intervals
-    too wide to read; they stay in the tables)."""
-    return bands.filter(pl.col("expected_lives") >= MIN_EXPECTED)
-
-
 def ae_by_age(bands: pl.DataFrame) -> str:
     """A/E by lives for each age band with its interval as an error bar, against the 100 % line.
 
@@ -127,8 +114,9 @@ def ae_by_age(bands: pl.DataFrame) -> str:
     lo = bands["ae_lives_lower"].fill_null(float("nan")).to_numpy().astype(float)
     hi = bands["ae_lives_upper"].fill_null(float("nan")).to_numpy().astype(float)
     x = np.arange(len(labels))
-    with plt.rc_context(_RC):
-        fig, ax = plt.subplots(figsize=(8.0, 3.4))
+    with rc_context(_RC):
+        fig = Figure(figsize=(8.0, 3.4))
+        ax = fig.subplots()
         ax.axhline(100.0, color=ACCENT, linewidth=1.2, linestyle="--", label="Expected (100%)")
         err = np.vstack([np.clip(ae - lo, 0, None), np.clip(hi - ae, 0, None)]) * 100.0
         ax.errorbar(x, ae * 100.0, yerr=err, fmt="o", color=PALETTE["pensioner"], ecolor="#7a9a95",

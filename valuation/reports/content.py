@@ -21,6 +21,10 @@ STATUS_LABELS: dict[str, str] = {
     "active": "Active members",
 }
 SEX_LABELS: dict[str, str] = {"M": "Men", "F": "Women"}
+#: Age bands with fewer expected deaths than this are left out of the A/E charts [lives].
+MIN_EXPECTED = 1.0
+#: Top of the A/E charts' axis [%].
+AE_AXIS_MAX = 400.0
 
 
 @dataclass(frozen=True)
@@ -184,3 +188,9 @@ def ae_by_age(experience: Any) -> pl.DataFrame:
     if experience is None:
         return pl.DataFrame()
     return experience.table.filter(pl.col("dimension") == "age_band")
+
+
+def chart_bands(bands: pl.DataFrame) -> pl.DataFrame:
+    """The age bands worth charting: at least :data:`MIN_EXPECTED` expected deaths (others have intervals
+    too wide to read; they stay in the tables)."""
+    return bands.filter(pl.col("expected_lives") >= MIN_EXPECTED) if bands.height else bands

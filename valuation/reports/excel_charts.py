@@ -26,13 +26,16 @@ def cashflow_chart(ws: Worksheet, *, header_row: int, last_row: int, first_col: 
 
 
 def ae_chart(ws: Worksheet, *, header_row: int, last_row: int, group_col: int, ae_col: int,
-             lower_col: int, upper_col: int, anchor: str, what: str = "lives") -> None:
+             lower_col: int, upper_col: int, anchor: str, what: str = "lives", y_max: float | None = None) -> None:
     """A/E by age band as columns, with the lower and upper limits of its interval as lines."""
     bars = BarChart()
     bars.type = "col"
     bars.title = f"Actual / expected deaths by age band ({what})"
     bars.y_axis.title = "A/E"
     bars.y_axis.numFmt = "0%"
+    bars.y_axis.scaling.min = 0.0
+    if y_max is not None:
+        bars.y_axis.scaling.max = y_max
     bars.x_axis.title = "Age band [years]"
     bars.add_data(Reference(ws, min_col=ae_col, min_row=header_row, max_row=last_row), titles_from_data=True)
     cats = Reference(ws, min_col=group_col, min_row=header_row + 1, max_row=last_row)

@@ -14,6 +14,7 @@ from valuation.engine.results import STATUSES, ValuationResult
 from valuation.engine.write import SMALL_SCHEME
 from valuation.reports import content
 from valuation.reports import excel_cells as xc
+from valuation.reports.content import AE_AXIS_MAX, MIN_EXPECTED, chart_bands
 from valuation.reports.excel_charts import ae_chart, cashflow_chart
 
 #: Header row of every list sheet (title in row 1, note in row 2); panes freeze below it.
@@ -177,10 +178,12 @@ def experience_sheet(ws: Worksheet, experience: Any) -> None:
                 "Ratios 1 = 100 %; intervals at the analysis's confidence level; amounts [currency p.a.].")
     imp = experience.implied or {}
     rows: list[tuple[str, Any, str | None]] = [
+        ("A/E by amounts (multiplier)", imp.get("multiplier"), xc.RATIO),
+        ("  lower", imp.get("multiplier_lower"), xc.RATIO),
+        ("  upper", imp.get("multiplier_upper"), xc.RATIO),
         ("Implied percentage of table [%]", imp.get("implied_percentage"), "0.0"),
         ("  lower [%]", imp.get("lower"), "0.0"),
         ("  upper [%]", imp.get("upper"), "0.0"),
-        ("A/E by amounts (multiplier)", imp.get("multiplier"), xc.RATIO),
         ("Liability before [currency]", imp.get("liability_before"), xc.MONEY),
         ("Liability after [currency]", imp.get("liability_after"), xc.MONEY),
         ("Change [%]", imp.get("change_pct"), "0.00"),
@@ -191,18 +194,29 @@ def experience_sheet(ws: Worksheet, experience: Any) -> None:
         rows.append(("Liability effect", imp["reason"], None))
     ws.freeze_panes = None
     top = xc.key_values(ws, HEAD, rows) + 1
-    ages = content.ae_by_age(experience).select(
+    by_table = pl.DataFrame(imp.get("by_table") or [], schema={
+        "group": pl.String, "sex": pl.String, "current_percentage": pl.Float64, "implied_percentage": pl.Float64,
+        "lower": pl.Float64, "upper": pl.Float64})
+    if by_table.height:
+        xc.put(ws, top, 1, "Implied percentage by table [%]").font = xc.TITLE_FONT
+        pct = {c: "0.0" for c in by_table.columns[2:]}
+        top = xc.write_frame(ws, by_table, top=top + 1, formats=pct, table="ImpliedByTable") + 2
+    ages = chart_bands(content.ae_by_age(experience)).select(
         "group", "exposure_years", "actual_lives", "expected_lives", "ae_lives", "ae_lives_lower", "ae_lives_upper")
-    xc.put(ws, top, 1, "By age band").font = xc.TITLE_FONT
+    xc.put(ws, top, 1, f"By age band (bands with at least {MIN_EXPECTED:g} expected death; all bands below)"
+           ).font = xc.TITLE_FONT
     last = xc.write_frame(ws, ages, top=top + 1, formats=EXPERIENCE_FORMATS, table="AEByAge",
                           labels={"group": "age band"})
     if ages.height:
+        upper = ages["ae_lives_upper"].fill_nan(None).drop_nulls()
+        y_max = min(AE_AXIS_MAX / 100.0, 1.05 * float(upper.max())) if upper.len() else None
         ae_chart(ws, header_row=top + 1, last_row=last, group_col=1, ae_col=5, lower_col=6, upper_col=7,
-                 anchor=f"I{HEAD}")
-    top = max(last + 3, top + 22)
+                 anchor=f"I{HEAD}", y_max=y_max)
+    top = max(last + 3, HEAD + 22)
     xc.put(ws, top - 1, 1, "All groups").font = xc.TITLE_FONT
     xc.write_frame(ws, experience.table, top=top, formats=EXPERIENCE_FORMATS, table="Experience")
     xc.fit_widths(ws, HEAD + len(rows) + 1)
+    ws.column_dimensions["A"].width = max(ws.column_dimensions["A"].width or 0, 34)
 
 
 def exceptions_sheet(ws: Worksheet, result: ValuationResult) -> None:

@@ -63,11 +63,16 @@ def _experience(experience: ExperienceResult | None) -> dict[str, Any] | None:
     bands = content.ae_by_age(experience)
     overall = experience.table.filter(pl.col("dimension") == "overall")
     settings = experience.settings
+    implied = experience.implied or {}
     return {
         "overall": overall.row(0, named=True) if overall.height else None,
         "bands": bands.to_dicts(),
-        "chart": Markup(charts.ae_by_age(bands)) if bands.height else None,
-        "implied": experience.implied or {},
+        "chart": Markup(charts.ae_by_age(bands)) if content.chart_bands(bands).height else None,
+        "min_expected": content.MIN_EXPECTED,
+        "implied": implied,
+        "by_table": [t | {"group_label": content.STATUS_LABELS.get(t["group"], t["group"]),
+                          "sex_label": content.SEX_LABELS.get(t["sex"], t["sex"])}
+                     for t in implied.get("by_table") or []],
         "period": f"{settings.period_start.isoformat()} to {settings.period_end.isoformat()}",
         "confidence": settings.confidence,
     }
