@@ -1,6 +1,7 @@
 """The trustees' HTML summary, parsed back with the standard library's html.parser.
 
-Sources: the results contract (summary.json); WHATWG HTML Living Standard, section 13.1.2 "Elements"
+Most checks use the real demo run (tests.test_reports_fixture.real_run); the hand-made result adds probes
+in the basis and sensitivity names. Sources: the results contract (summary.json); WHATWG HTML Living Standard, section 13.1.2 "Elements"
 (void elements need no end tag; every other element we write is closed in order) and 13.1.2.6 on
 escaping: text ``<`` must appear as ``&lt;`` (from memory); OWASP XSS Prevention Cheat Sheet, rule #1
 (HTML-escape untrusted data in element content and attribute values); CSS Paged Media Level 3
@@ -13,7 +14,7 @@ from html.parser import HTMLParser
 
 import pytest
 
-from tests.test_reports_fixture import IMG_PROBE, SCRIPT_PROBE, make_experience, make_result
+from tests.test_reports_fixture import IMG_PROBE, SCRIPT_PROBE, make_experience, make_result, real_run
 from valuation.reports import write_html
 from valuation.reports.html import render_html
 
@@ -73,8 +74,14 @@ def parse(text: str) -> Page:
 
 @pytest.fixture(scope="module")
 def page_text(tmp_path_factory: pytest.TempPathFactory) -> str:
-    path = write_html(make_result(), tmp_path_factory.mktemp("html") / "out" / "summary.html", make_experience())
+    result, experience = real_run()
+    path = write_html(result, tmp_path_factory.mktemp("html") / "out" / "summary.html", experience)
     return path.read_text(encoding="utf-8")
+
+
+@pytest.fixture(scope="module")
+def made_text() -> str:
+    return render_html(make_result(), make_experience())
 
 
 def test_parses_and_every_element_is_closed(page_text: str) -> None:
@@ -86,7 +93,7 @@ def test_parses_and_every_element_is_closed(page_text: str) -> None:
 
 def test_headline_figures_equal_the_summary(page_text: str) -> None:
     """Each headline is the summary's number, formatted here independently of the library."""
-    s = make_result().summary
+    s = real_run()[0].summary
     values = parse(page_text).values
     assert values["total_liability"] == f"{round(s['liability']['total']):,}"
     assert values["duration"] == f"{s['duration']['macaulay']:.1f} years"
@@ -95,16 +102,25 @@ def test_headline_figures_equal_the_summary(page_text: str) -> None:
     assert values["service_cost"] == f"{round(s['active_measures']['current_service_cost']):,}"
 
 
-def test_member_and_basis_text_is_escaped(page_text: str) -> None:
-    """OWASP rule #1: the probes appear as text (&lt;script&gt;), never as live elements."""
-    page = parse(page_text)
+@pytest.mark.parametrize("which", ["page_text", "made_text"])
+def test_member_and_basis_text_is_escaped(which: str, request: pytest.FixtureRequest) -> None:
+    """OWASP rule #1: the probes appear as text (&lt;script&gt;), never as live elements or handlers."""
+    text_html = request.getfixturevalue(which)
+    page = parse(text_html)
     assert "script" not in {t for t, _ in page.tags}
     assert "img" not in {t for t, _ in page.tags}
     assert not any(k.startswith("on") for _, a in page.tags for k in a)
     text = "".join(page.text)
-    assert SCRIPT_PROBE in text and IMG_PROBE.split(" ")[0] in text
-    assert "&lt;script&gt;alert(1)&lt;/script&gt;" in page_text
-    assert SCRIPT_PROBE not in page_text
+    assert SCRIPT_PROBE in text and IMG_PROBE in text
+    assert "&lt;script&gt;alert(1)&lt;/script&gt;" in text_html
+    assert SCRIPT_PROBE not in text_html and "<img" not in text_html
+
+
+def test_basis_and_sensitivity_names_are_escaped(made_text: str) -> None:
+    """The hand-made result carries the probe in the basis name, a table name and a sensitivity name."""
+    page = parse(made_text)
+    assert page.errors == []
+    assert "".join(page.text).count(SCRIPT_PROBE) >= 4
 
 
 def test_no_external_urls(page_text: str) -> None:
@@ -136,19 +152,33 @@ def test_sections_charts_and_cautions(page_text: str) -> None:
     assert sum(1 for t, _ in page.tags if t == "svg") == 3
     text = " ".join("".join(page.text).split())
     assert "not advice" in text and "qualified actuary" in text and "depend on the assumptions" in text
-    assert "4.80% a year" in text  # discount rate 0.048 in words
-    assert "-7.5%" in text  # sensitivity change_pct -7.48 to one decimal
-    assert "21.4 years" in text  # life expectancy of the fixture
+    assert "4.80% a year" in text  # discount rate 0.048 of assumptions/demo_basis.toml, in words
+    assert "95% of table DEMO_M" in text  # mortality.default.M percentage = 0.95
+
+
+def test_tables_show_the_result_figures(page_text: str) -> None:
+    """Sensitivities, life expectancies and A/E are the result's numbers, formatted independently."""
+    result, experience = real_run()
+    text = " ".join("".join(parse(page_text).text).split())
+    for r in result.sensitivities.iter_rows(named=True):
+        assert f"{r['name']} {round(r['liability']):,} {r['change_pct']:+.1f}%" in text
+    for r in result.life_expectancy.iter_rows(named=True):
+        assert f"{r['years']:.1f} years" in text
+    overall = experience.overall()
+    assert f"{100 * overall['ae_lives']:.0f}%" in text
+    assert f"{100 * overall['ae_lives_lower']:.0f}% to {100 * overall['ae_lives_upper']:.0f}%" in text
 
 
 def test_data_section_counts_reasons_from_exceptions(page_text: str) -> None:
-    """Each reason is counted from result.exceptions (fixture: one record each)."""
-    result = make_result()
+    """Each reason of result.exceptions appears with its count."""
+    result = real_run()[0]
+    counts = result.exceptions.group_by("reason").len()
     page = parse(page_text)
     text = " ".join("".join(page.text).split())
-    for reason in result.exceptions["reason"].to_list():
-        assert " ".join(reason.split()) in text
-    assert f"{result.summary['records']['read']} records were read" in text
+    for reason, n in counts.iter_rows():
+        assert f"{' '.join(reason.split())} {n}" in text
+    rec = result.summary["records"]
+    assert f"{rec['read']} records were read: {rec['valued']} were valued and {rec['excluded']} were left out" in text
 
 
 def test_without_experience_no_experience_section() -> None:

@@ -48,7 +48,7 @@ def _l(mrows: MortalityRows, rows: NDArray[np.int64], ages: NDArray[np.float64],
     return lx_at(mrows.lx, mrows.q_rows, rows, ages, fractional)  # type: ignore[arg-type]
 
 
-def value_leg(
+def value_leg_numpy(
     ctx: Context,
     mrows: MortalityRows,
     *,
@@ -157,6 +157,64 @@ def value_leg(
             w = weights[idx, jj]
             if np.any(w):
                 cashflow += np.bincount(tau.ravel(), weights=(paid * w[:, None]).ravel(), minlength=M)[:M]
+    return LegResult(unit_pv, cashflow)
+
+
+def value_leg(
+    ctx: Context,
+    mrows: MortalityRows,
+    *,
+    kind: str,
+    rows_x: NDArray[np.int64],
+    x0: NDArray[np.float64],
+    start: NDArray[np.int64],
+    weights: NDArray[np.float64],
+    at_start: NDArray[np.float64],
+    increase: NDArray[np.float64],
+    growth: NDArray[np.float64] | None = None,
+    stop: NDArray[np.int64] | None = None,
+    guarantee: NDArray[np.int64] | None = None,
+    rows_y: NDArray[np.int64] | None = None,
+    y0: NDArray[np.float64] | None = None,
+) -> LegResult:
+    """Value a leg with the compiled kernel; same parameters and results as :func:`value_leg_numpy`.
+
+    References
+    ----------
+    [DHW] eq. (5.12) and section 9.5; guaranteed annuities [DHW] section 5.6.
+    """
+    from valuation.engine.kernels import leg_kernel
+
+    K, J = weights.shape
+    M = ctx.months
+    unit_pv = np.zeros((K, J))
+    cashflow = np.zeros(M)
+    if K == 0:
+        return LegResult(unit_pv, cashflow)
+    reversion = kind == "reversion"
+    guar = np.zeros(K, dtype=np.int64) if guarantee is None else guarantee.astype(np.int64)
+    if reversion:
+        assert rows_y is not None and y0 is not None
+        first = np.full(K, ctx.offset, dtype=np.int64)
+        end = np.ceil((MAX_AGE + 1 - y0) * 12.0).astype(np.int64)
+    else:
+        first = start + ctx.offset
+        end = np.ceil((MAX_AGE + 1 - x0) * 12.0).astype(np.int64)
+        if stop is not None:
+            end = np.minimum(end, stop)
+    end = np.minimum(end, M)
+    ry = rows_y if rows_y is not None else np.zeros(K, dtype=np.int64)
+    yy = y0 if y0 is not None else np.zeros(K)
+    grow = growth if growth is not None else np.ones((J, M))
+    leg_kernel(
+        mrows.lx, mrows.q_rows, ctx.fractional == "udd", reversion, int(ctx.frequency), int(ctx.step),
+        np.ascontiguousarray(rows_x, dtype=np.int64), np.ascontiguousarray(x0, dtype=np.float64),
+        np.ascontiguousarray(ry, dtype=np.int64), np.ascontiguousarray(yy, dtype=np.float64),
+        first.astype(np.int64), end.astype(np.int64), np.ascontiguousarray(start, dtype=np.int64), guar,
+        np.ascontiguousarray(at_start, dtype=np.float64), np.ascontiguousarray(increase, dtype=np.float64),
+        np.ascontiguousarray(grow, dtype=np.float64), growth is not None,
+        ctx.v, np.ascontiguousarray(weights, dtype=np.float64), unit_pv, cashflow,
+    )
     return LegResult(unit_pv, cashflow)
 
 
