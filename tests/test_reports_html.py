@@ -65,6 +65,11 @@ class Page(HTMLParser):
             self.styles.append(data)
 
 
+def words(page: Page) -> str:
+    """The page's text, one space between text nodes and runs of whitespace collapsed."""
+    return " ".join(" ".join(page.text).split())
+
+
 def parse(text: str) -> Page:
     page = Page()
     page.feed(text)
@@ -150,7 +155,7 @@ def test_sections_charts_and_cautions(page_text: str) -> None:
     assert {"headline", "by-group", "payments", "assumptions", "sensitivities", "life-expectancy", "experience",
             "data", "cautions"} <= ids
     assert sum(1 for t, _ in page.tags if t == "svg") == 3
-    text = " ".join("".join(page.text).split())
+    text = words(page)
     assert "not advice" in text and "qualified actuary" in text and "depend on the assumptions" in text
     assert "4.80% a year" in text  # discount rate 0.048 of assumptions/demo_basis.toml, in words
     assert "95% of table DEMO_M" in text  # mortality.default.M percentage = 0.95
@@ -159,7 +164,7 @@ def test_sections_charts_and_cautions(page_text: str) -> None:
 def test_tables_show_the_result_figures(page_text: str) -> None:
     """Sensitivities, life expectancies and A/E are the result's numbers, formatted independently."""
     result, experience = real_run()
-    text = " ".join("".join(parse(page_text).text).split())
+    text = words(parse(page_text))
     for r in result.sensitivities.iter_rows(named=True):
         assert f"{r['name']} {round(r['liability']):,} {r['change_pct']:+.1f}%" in text
     for r in result.life_expectancy.iter_rows(named=True):
@@ -174,7 +179,7 @@ def test_data_section_counts_reasons_from_exceptions(page_text: str) -> None:
     result = real_run()[0]
     counts = result.exceptions.group_by("reason").len()
     page = parse(page_text)
-    text = " ".join("".join(page.text).split())
+    text = words(page)
     for reason, n in counts.iter_rows():
         assert f"{' '.join(reason.split())} {n}" in text
     rec = result.summary["records"]
