@@ -186,3 +186,30 @@ def test_active_salary_growth_without_withdrawal(tmp_path):
     proj = project_records(recs, basis)
     b = 50000.0 * 10.0 / 60.0 * 1.03**20
     assert proj.liability[0] == pytest.approx(b * _a_due(45, start=20), rel=1e-9)
+
+
+def test_discount_sensitivity_from_cash_flows_equals_full_revaluation(tmp_path):
+    """A discount-rate sensitivity taken as the PV of the (rate-independent) nominal cash flows on the
+    shifted curve equals a full re-valuation on the shifted basis (PV = sum v^t CF_t; METHODS.md
+    "Liabilities")."""
+    from tests.engine_helpers import members as mk
+    from valuation.engine.run import discounted_total
+    from valuation.engine.scenario import Scenario
+
+    extra = ('[salary]\ngrowth = 0.03\n[benefits]\nretirement_age = 65\ndeath_in_service_lump_sum = 2.0\n'
+             '[commutation]\nproportion = 0.25\nfactor = 16.0\n')
+    basis = write_basis(tmp_path, sult_toml(frequency=12, extra=extra, inflation=0.025,
+                                            increase='kind = "inflation", floor = 0.0, cap = 0.05',
+                                            spouse="proportion_married = { M = 0.8, F = 0.7 }\n"
+                                                   "age_difference = 3.0\nfraction = 0.5"))
+    recs = mk([
+        {"status": "pensioner", "sex": "M", "date_of_birth": dt.date(1950, 7, 9), "pension": 9000.0},
+        {"status": "deferred", "sex": "F", "date_of_birth": dt.date(1977, 2, 1), "pension": 2000.0},
+        {"status": "active", "sex": "M", "date_of_birth": dt.date(1985, 11, 30), "salary": 40000.0,
+         "service_years": 8.5, "pension": 0.0},
+    ])
+    base = project_records(recs, basis)
+    cash = base.cashflow.sum(axis=0)
+    assert discounted_total(cash, basis.discount_curve()) == pytest.approx(base.liability.sum(), rel=1e-10)
+    shifted = project_records(recs, basis, Scenario(discount_shift=0.005)).liability.sum()
+    assert discounted_total(cash, basis.discount_curve().shifted(0.005)) == pytest.approx(shifted, rel=1e-10)

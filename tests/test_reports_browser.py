@@ -1,7 +1,7 @@
 """The HTML summary rendered by a real headless browser (Chromium from the OS packages).
 
-Checks that the page paints (the screenshot is not blank) and that hostile member text stays inert when
-a browser runs the page: the fixture's ``<img onerror=...>`` probe would mark ``<body>`` if it were ever
+Checks that the page of the real demo run paints (the screenshot is not blank) and that hostile member
+text stays inert when a browser runs the page: the fixture's ``<img onerror=...>`` probe would mark ``<body>`` if it were ever
 parsed as markup (OWASP XSS Filter Evasion Cheat Sheet, the classic img/onerror vector). Skipped only
 when no Chromium is installed (CI installs it through .ci/run).
 """
@@ -17,7 +17,7 @@ import numpy as np
 import pytest
 from matplotlib.image import imread
 
-from tests.test_reports_fixture import make_experience, make_result
+from tests.test_reports_fixture import real_run
 from valuation.reports import write_html
 
 CHROMIUM = shutil.which("chromium") or shutil.which("chromium-browser") or (
@@ -37,7 +37,8 @@ def _run(tmp: Path, *args: str) -> subprocess.CompletedProcess:
 
 @pytest.fixture(scope="module")
 def page(tmp_path_factory: pytest.TempPathFactory) -> Path:
-    return write_html(make_result(), tmp_path_factory.mktemp("browser") / "summary.html", make_experience())
+    result, experience = real_run()
+    return write_html(result, tmp_path_factory.mktemp("browser") / "summary.html", experience)
 
 
 def test_screenshot_is_not_blank(page: Path, tmp_path: Path) -> None:

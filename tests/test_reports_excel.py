@@ -56,19 +56,31 @@ def test_experience_sheet_only_when_analysis_run(tmp_path: Path) -> None:
     assert load_workbook(path).sheetnames == [s for s in SHEETS if s != "Experience"]
 
 
+# openpyxl stores numbers with 16 significant digits (openpyxl.compat.strings.safe_string, "%.16g"); Excel
+# itself keeps 15 (Microsoft, "Excel specifications and limits": number precision 15 digits).
+STORED = 1e-15
+
+
 def test_headline_equals_summary_json(book, run_folder: Path) -> None:
-    """The total liability in the workbook is the number in the run's summary.json (exact: both keep repr)."""
+    """The headline figures in the workbook are the numbers in the same run's summary.json."""
     path, _ = book
     summary = json.loads((run_folder / "summary.json").read_text(encoding="utf-8"))
     wb = load_workbook(path)
     cell = _find(wb["Summary"], "Total liability [currency]")
-    assert cell.value == summary["liability"]["total"]
+    assert cell.value == pytest.approx(summary["liability"]["total"], rel=STORED)
     assert cell.number_format == "#,##0"
     dest = next(iter(wb.defined_names["TotalLiability"].destinations))
-    assert wb[dest[0]][dest[1].replace("$", "")].value == summary["liability"]["total"]
+    assert wb[dest[0]][dest[1].replace("$", "")].value == cell.value
+    assert _find(wb["Summary"], "Records read").value == summary["records"]["read"]
+    assert _find(wb["Summary"], "Records valued").value == summary["records"]["valued"]
     assert _find(wb["Summary"], "Records excluded").value == summary["records"]["excluded"]
     sedr = _find(wb["Summary"], "Single equivalent discount rate [p.a.]")
-    assert sedr.value == summary["single_equivalent_discount_rate"] and sedr.number_format == "0.00%"
+    assert sedr.value == pytest.approx(summary["single_equivalent_discount_rate"], rel=STORED)
+    assert sedr.number_format == "0.00%"
+    for status, value in summary["liability"]["by_status"].items():
+        label = {"pensioner": "Pensioners", "dependant": "Dependants", "deferred": "Deferred members",
+                 "active": "Active members"}[status]
+        assert _find(wb["Summary"], f"  {label}").value == pytest.approx(value, rel=STORED, abs=1e-9)
 
 
 # members_dirty.csv holds =1+1 as a member id and these values in rows the checks reject.
@@ -136,7 +148,8 @@ def test_lists_are_tables_with_frozen_headers_and_formats(book) -> None:
     row = excel_sheets.HEAD + 1
     assert ws.cell(row=row, column=header.index("liability") + 1).number_format == "#,##0"
     assert ws.cell(row=row, column=header.index("annuity_factor") + 1).number_format == "0.0000"
-    assert ws.cell(row=row, column=header.index("liability") + 1).value == result.members["liability"][0]
+    assert ws.cell(row=row, column=header.index("liability") + 1).value == pytest.approx(
+        result.members["liability"][0], rel=STORED)
     assert ws.column_dimensions["A"].width >= 8
 
 

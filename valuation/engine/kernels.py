@@ -16,7 +16,7 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from numba import njit
+from numba import njit, prange
 
 
 @njit(cache=True, inline="always")
@@ -39,7 +39,7 @@ def _l_at(lx: np.ndarray, q: np.ndarray, r: int, age: float, udd: bool) -> float
     return l_j * p_j**s
 
 
-@njit(cache=True)
+@njit(cache=True, parallel=True)
 def leg_kernel(
     lx: np.ndarray,
     q: np.ndarray,
@@ -64,41 +64,51 @@ def leg_kernel(
     unit_pv: np.ndarray,
     cashflow: np.ndarray,
 ) -> None:
-    """Fill ``unit_pv`` (K, J) and add the weighted expected payments to ``cashflow`` (M,).
+    """Fill ``unit_pv`` (K, J) and the weighted expected payments ``cashflow`` (B, M), one row a block.
 
     Own leg: payment at month tau on survival l(x0 + tau/12) / l(x0), certain before ``guar``.
     Reversion: on tp_y (1 - tp_x) from ``guar`` on [DHW section 9.5]. Amount per unit of base:
     at_start * increase[tau] / increase[start], or growth[tau] before ``start`` for a reversion.
+    Keys are split into B blocks valued in parallel, each adding to its own cash-flow row.
     """
     K, J = unit_pv.shape
-    for k in range(K):
-        rx = rows_x[k]
-        lx0 = _l_at(lx, q, rx, x0[k], udd)
-        ly0 = 1.0
-        if reversion:
-            ly0 = _l_at(lx, q, rows_y[k], y0[k], udd)
-        s_k = start[k]
-        for tau in range(first[k], end[k], step):
-            t = tau / 12.0
-            px = _l_at(lx, q, rx, x0[k] + t, udd) / lx0
+    B = cashflow.shape[0]
+    for b in prange(B):
+        lo = (K * b) // B
+        hi = (K * (b + 1)) // B
+        coef = np.empty(J)
+        for k in range(lo, hi):
+            rx = rows_x[k]
+            lx0 = _l_at(lx, q, rx, x0[k], udd)
+            ly0 = 1.0
+            ry = rows_y[k]
             if reversion:
-                if tau < guar[k]:
-                    continue
-                py = _l_at(lx, q, rows_y[k], y0[k] + t, udd) / ly0
-                surv = py * (1.0 - px)
-            else:
-                surv = 1.0 if tau < guar[k] else px
-            if surv == 0.0:
-                continue
-            surv /= frequency
-            disc = v[tau]
+                ly0 = _l_at(lx, q, ry, y0[k], udd)
+            s_k = start[k]
             for j in range(J):
-                if reversion and use_growth and tau < s_k:
-                    amount = growth[j, tau]
+                coef[j] = at_start[k, j] / increase[j, s_k]
+            for tau in range(first[k], end[k], step):
+                t = tau / 12.0
+                px = _l_at(lx, q, rx, x0[k] + t, udd) / lx0
+                if reversion:
+                    if tau < guar[k]:
+                        continue
+                    py = _l_at(lx, q, ry, y0[k] + t, udd) / ly0
+                    surv = py * (1.0 - px)
                 else:
-                    amount = at_start[k, j] * increase[j, tau] / increase[j, s_k]
-                paid = surv * amount
-                unit_pv[k, j] += paid * disc
-                w = weights[k, j]
-                if w != 0.0:
-                    cashflow[tau] += paid * w
+                    surv = 1.0 if tau < guar[k] else px
+                if surv == 0.0:
+                    continue
+                surv /= frequency
+                disc = v[tau]
+                pre = reversion and use_growth and tau < s_k
+                flow = 0.0
+                for j in range(J):
+                    if pre:
+                        amount = growth[j, tau]
+                    else:
+                        amount = coef[j] * increase[j, tau]
+                    paid = surv * amount
+                    unit_pv[k, j] += paid * disc
+                    flow += paid * weights[k, j]
+                cashflow[b, tau] += flow

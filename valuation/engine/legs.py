@@ -206,6 +206,7 @@ def value_leg(
     ry = rows_y if rows_y is not None else np.zeros(K, dtype=np.int64)
     yy = y0 if y0 is not None else np.zeros(K)
     grow = growth if growth is not None else np.ones((J, M))
+    blocks = np.zeros((max(1, min(K // 256, 16)), M))
     leg_kernel(
         mrows.lx, mrows.q_rows, ctx.fractional == "udd", reversion, int(ctx.frequency), int(ctx.step),
         np.ascontiguousarray(rows_x, dtype=np.int64), np.ascontiguousarray(x0, dtype=np.float64),
@@ -213,16 +214,29 @@ def value_leg(
         first.astype(np.int64), end.astype(np.int64), np.ascontiguousarray(start, dtype=np.int64), guar,
         np.ascontiguousarray(at_start, dtype=np.float64), np.ascontiguousarray(increase, dtype=np.float64),
         np.ascontiguousarray(grow, dtype=np.float64), growth is not None,
-        ctx.v, np.ascontiguousarray(weights, dtype=np.float64), unit_pv, cashflow,
+        ctx.v, np.ascontiguousarray(weights, dtype=np.float64), unit_pv, blocks,
     )
-    return LegResult(unit_pv, cashflow)
+    return LegResult(unit_pv, blocks.sum(axis=0))
 
 
 def dedupe(*columns: NDArray) -> tuple[NDArray[np.int64], NDArray[np.int64]]:
-    """Distinct rows of the stacked key columns: (index of each key's first member, key of each member)."""
-    stacked = np.column_stack([np.asarray(c, dtype=float) for c in columns])
-    _, first, inverse = np.unique(stacked, axis=0, return_index=True, return_inverse=True)
-    return first, inverse.ravel()
+    """Distinct rows of the stacked key columns: (index of each key's first member, key of each member).
+
+    Rows are hashed (polars) and the hashes de-duplicated; the result is verified column by column and,
+    in the unlikely event of a hash collision, recomputed with an exact row sort.
+    """
+    import polars as pl
+
+    cols = [np.asarray(c, dtype=float) for c in columns]
+    frame = pl.DataFrame({f"c{i}": c for i, c in enumerate(cols)})
+    hashes = frame.hash_rows(seed=17).to_numpy()
+    _, first, inverse = np.unique(hashes, return_index=True, return_inverse=True)
+    inverse = inverse.ravel()
+    same = all(np.array_equal(c, c[first][inverse], equal_nan=True) for c in cols)
+    if not same:  # pragma: no cover - a 64-bit hash collision
+        _, first, inverse = np.unique(np.column_stack(cols), axis=0, return_index=True, return_inverse=True)
+        inverse = inverse.ravel()
+    return first, inverse
 
 
 def sum_by_key(inverse: NDArray[np.int64], n_keys: int, values: NDArray[np.float64]) -> NDArray[np.float64]:

@@ -83,6 +83,12 @@ def _month_times(months: int) -> np.ndarray:
     return np.arange(months) / 12.0
 
 
+def discounted_total(cash: np.ndarray, curve: Any) -> float:
+    """Present value [currency] of expected payments by month (index = months after the valuation date)."""
+    t = _month_times(len(cash))
+    return float((cash * curve.discount_factors(t)).sum())
+
+
 def cashflow_measures(cash: np.ndarray, curve: Any) -> dict[str, float]:
     """PV, Macaulay, modified and effective duration and the single equivalent rate of monthly cash flows.
 
@@ -230,9 +236,16 @@ def value_members(
     per_unit = np.divide(pension_benefit, accrued, out=np.zeros(records.height), where=accrued > 0)
     service_cost = float((per_unit * next_unit)[active].sum())
 
+    curve = basis.discount_curve()
+    cash_total = proj.cashflow.sum(axis=0)
     sens_rows = []
     for k, sc in enumerate(scenarios, start=3):
-        value = total_liability(records, basis, sc, base_multiplier=q_multiplier, chunk_size=chunk_size)
+        if sc.kind == "discount_rate":
+            # Expected nominal cash flows do not depend on the discount rate, so the re-valued liability
+            # is exactly the PV of the base cash flows on the shifted curve.
+            value = discounted_total(cash_total, curve.shifted(sc.discount_shift))
+        else:
+            value = total_liability(records, basis, sc, base_multiplier=q_multiplier, chunk_size=chunk_size)
         sens_rows.append({"name": sc.name, "kind": sc.kind, "shift": sc.shift, "liability": value,
                           "change_pct": 100.0 * (value / total - 1.0) if total else 0.0})
         if progress:
@@ -240,8 +253,6 @@ def value_members(
     sens = pl.DataFrame(sens_rows, schema={"name": pl.Utf8, "kind": pl.Utf8, "shift": pl.Float64,
                                            "liability": pl.Float64, "change_pct": pl.Float64})
 
-    curve = basis.discount_curve()
-    cash_total = proj.cashflow.sum(axis=0)
     measures = cashflow_measures(cash_total, curve)
     cashflows = _yearly(proj.cashflow, curve)
     cells = _liability_cells(records, proj)
