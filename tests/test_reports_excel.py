@@ -18,7 +18,7 @@ import polars as pl
 import pytest
 from openpyxl import load_workbook
 
-from tests.test_reports_fixture import FORMULA_PROBES, make_result, real_run
+from tests.test_reports_fixture import FORMULA_PROBES, make_empty_result, make_result, real_run
 from valuation.engine import write as engine_write
 from valuation.reports import excel_sheets, write_workbook
 from valuation.reports.excel import SHEETS
@@ -193,3 +193,11 @@ def test_awkward_values_do_not_break_the_file(tmp_path: Path) -> None:
     assert ws.cell(row=row, column=1).value == "bell\ufffd"
     assert ws.cell(row=row + 1, column=1).value == "tab\tok"
     assert ws.cell(row=row, column=header.index("annuity_factor") + 1).value is None
+
+
+def test_empty_result_gives_a_valid_workbook(tmp_path: Path) -> None:
+    """Nothing valued: lists have a header and no Excel table (a table needs a data row); NaN is empty."""
+    wb = load_workbook(write_workbook(make_empty_result(), tmp_path / "empty.xlsx"))
+    assert wb["Members"].tables == {} and wb["Members"].max_row == excel_sheets.HEAD
+    assert _find(wb["Summary"], "Single equivalent discount rate [p.a.]").value is None
+    assert len(wb["Cash flows"]._charts) == 0

@@ -162,3 +162,14 @@ def make_experience() -> ExperienceResult:
     settings = ExperienceSettings(period_start=date(2022, 3, 31), period_end=date(2025, 3, 31))
     return ExperienceResult(settings=settings, table=table, implied=implied, exceptions=pl.DataFrame(),
                             summary={"overall": table.row(0, named=True)})
+
+
+def make_empty_result() -> ValuationResult:
+    """A scheme where nothing could be valued: empty frames, zero liabilities, undefined measures."""
+    r = make_result()
+    for name in ("exceptions", "sensitivities", "cashflows", "members", "expected_deaths", "liabilities"):
+        setattr(r, name, getattr(r, name).clear())
+    r.summary["liability"]["by_status"] = {k: 0.0 for k in r.summary["liability"]["by_status"]}
+    r.summary["duration"] = {"macaulay": None, "modified": None, "effective": None}
+    r.summary["single_equivalent_discount_rate"] = float("nan")
+    return r

@@ -14,7 +14,14 @@ from html.parser import HTMLParser
 
 import pytest
 
-from tests.test_reports_fixture import IMG_PROBE, SCRIPT_PROBE, make_experience, make_result, real_run
+from tests.test_reports_fixture import (
+    IMG_PROBE,
+    SCRIPT_PROBE,
+    make_empty_result,
+    make_experience,
+    make_result,
+    real_run,
+)
 from valuation.reports import write_html
 from valuation.reports.html import render_html
 
@@ -190,3 +197,11 @@ def test_without_experience_no_experience_section() -> None:
     page = parse(render_html(make_result()))
     assert "experience" not in {a.get("id") for t, a in page.tags if t == "section"}
     assert sum(1 for t, _ in page.tags if t == "svg") == 2
+
+
+def test_empty_result_renders_with_missing_figures_marked() -> None:
+    page = parse(render_html(make_empty_result()))
+    assert page.errors == [] and page.stack == []
+    assert page.values["sedr"] == "n/a" and page.values["duration"] == "n/a"
+    text = words(page)
+    assert "No sensitivities were run." in text and "None: every record was valued without a warning." in text

@@ -77,7 +77,9 @@ def leg_kernel(
         lo = (K * b) // B
         hi = (K * (b + 1)) // B
         coef = np.empty(J)
+        acc = np.empty(J)
         for k in range(lo, hi):
+            acc[:] = 0.0
             rx = rows_x[k]
             lx0 = _l_at(lx, q, rx, x0[k], udd)
             ly0 = 1.0
@@ -87,16 +89,28 @@ def leg_kernel(
             s_k = start[k]
             for j in range(J):
                 coef[j] = at_start[k, j] / increase[j, s_k]
+            inv_lx0 = 1.0 / lx0
+            inv_ly0 = 1.0 / ly0
+            xk = x0[k]
+            yk = y0[k]
+            gk = guar[k]
             for tau in range(first[k], end[k], step):
                 t = tau / 12.0
-                px = _l_at(lx, q, rx, x0[k] + t, udd) / lx0
+                px = _l_at(lx, q, rx, xk + t, udd) * inv_lx0
                 if reversion:
-                    if tau < guar[k]:
+                    if tau < gk:
                         continue
-                    py = _l_at(lx, q, ry, y0[k] + t, udd) / ly0
+                    py = _l_at(lx, q, ry, yk + t, udd) * inv_ly0
+                    if py == 0.0:
+                        break
                     surv = py * (1.0 - px)
                 else:
-                    surv = 1.0 if tau < guar[k] else px
+                    if tau < gk:
+                        surv = 1.0
+                    else:
+                        if px == 0.0:
+                            break
+                        surv = px
                 if surv == 0.0:
                     continue
                 surv /= frequency
@@ -109,6 +123,8 @@ def leg_kernel(
                     else:
                         amount = coef[j] * increase[j, tau]
                     paid = surv * amount
-                    unit_pv[k, j] += paid * disc
+                    acc[j] += paid * disc
                     flow += paid * weights[k, j]
                 cashflow[b, tau] += flow
+            for j in range(J):
+                unit_pv[k, j] = acc[j]

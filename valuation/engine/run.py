@@ -191,6 +191,196 @@ def life_expectancies(basis: Any) -> pl.DataFrame:
     return pl.DataFrame(rows)
 
 
+class RunAccumulator:
+    """Values a scheme chunk by chunk and assembles the results at the end.
+
+    Every chunk is valued under the base scenario and each sensitivity scenario (valuers are built once);
+    only sums by cell, the monthly cash flows and the per-member rows are kept, so memory grows with the
+    per-member table alone, and not even that when a ``member_sink`` takes the rows away (streaming).
+    """
+
+    def __init__(
+        self,
+        basis: Any,
+        *,
+        q_multiplier: float = 1.0,
+        sensitivities: bool = True,
+        member_sink: Callable[[pl.DataFrame], None] | None = None,
+    ) -> None:
+        self.basis = basis
+        self.q_multiplier = q_multiplier
+        self.sensitivities = sensitivities
+        self.scenarios = scenarios_from_basis(basis, basis.valuation_date.year) if sensitivities else []
+        self.base = Valuer(basis, BASE, q_multiplier)
+        self.no_growth = Valuer(basis, Scenario(no_salary_growth=True), q_multiplier)
+        # discount-rate scenarios come from the cash flows; the others are valued again
+        self.valuers = {sc.name: Valuer(basis, sc, q_multiplier) for sc in self.scenarios
+                        if sc.kind != "discount_rate"}
+        self.member_sink = member_sink
+        self.cash: np.ndarray | None = None
+        self.cells: list[pl.DataFrame] = []
+        self.deaths: list[pl.DataFrame] = []
+        self.members: list[pl.DataFrame] = []
+        self.scenario_totals = {name: 0.0 for name in self.valuers}
+        self.total = 0.0
+        self.active_total = 0.0
+        self.abo = 0.0
+        self.service_cost = 0.0
+        self.lumps = 0.0
+        self.tranches = list(basis.tranches)
+
+    def add(self, records: pl.DataFrame) -> None:
+        """Value one chunk of valid member records (the frame ``read_members`` returns)."""
+        basis = self.basis
+        proj = self.base.value(records)
+        liability = proj.liability
+        self.total += float(liability.sum())
+        self.lumps += float(proj.lump.sum())
+        self.cash = proj.cashflow if self.cash is None else self.cash + proj.cashflow
+        status = records["status"].to_numpy()
+        active = status == "active"
+        if active.any():
+            act = records.filter(pl.Series(active))
+            self.active_total += float(liability[active].sum())
+            self.abo += float(self.no_growth.value(act).liability.sum())
+            pension_benefit = (proj.own.sum(axis=1) + proj.spouse.sum(axis=1))[active]
+            if basis.benefit_design == "career_average":
+                accrued = proj.amount_now[active]
+                next_unit = float(basis.accrual_rate) * act["salary"].to_numpy().astype(float) * (
+                    1.0 + basis.salary_growth) ** 0.5
+            else:
+                accrued = act["service_years"].to_numpy().astype(float)
+                next_unit = np.ones(act.height)
+            per_unit = np.divide(pension_benefit, accrued, out=np.zeros(act.height), where=accrued > 0)
+            self.service_cost += float((per_unit * next_unit).sum())
+        for sc in self.scenarios:
+            if sc.name not in self.valuers:
+                continue
+            if sc.kind == "salary_growth":
+                # salary growth changes actives' benefits only: re-value them, keep the rest
+                part = self.valuers[sc.name].value(records.filter(pl.Series(active))).liability.sum() if active.any() else 0.0
+                self.scenario_totals[sc.name] += float(liability[~active].sum() + part)
+            else:
+                self.scenario_totals[sc.name] += float(self.valuers[sc.name].value(records).liability.sum())
+        self.cells.append(_liability_cells(records, proj))
+        self.deaths.append(
+            pl.DataFrame({"status": records["status"], "sex": records["sex"], "lives": proj.q_next,
+                          "amounts": proj.q_next * proj.amount_now})
+            .group_by(["status", "sex"]).agg(pl.col("lives").sum(), pl.col("amounts").sum())
+        )
+        ages = np.asarray(age_at(records["date_of_birth"].to_numpy().astype("datetime64[D]"),
+                                 np.datetime64(basis.valuation_date, "D"), basis.age_convention), dtype=float)
+        members = pl.DataFrame({
+            "member_id": records["member_id"], "status": records["status"], "sex": records["sex"],
+            "age": ages, "pension": proj.amount_now, "liability": liability,
+            "member_liability": proj.own.sum(axis=1), "spouse_liability": proj.spouse.sum(axis=1),
+            "lump_sum_liability": proj.lump, "annuity_factor": proj.annuity_factor,
+            "q_next_year": proj.q_next,
+        })
+        if self.member_sink is not None:
+            self.member_sink(members)
+        else:
+            self.members.append(members)
+
+    def finish(
+        self,
+        *,
+        read: int,
+        valued: int,
+        excluded: int,
+        counts: pl.DataFrame,
+        exceptions: pl.DataFrame,
+        inputs: dict[str, str],
+        started: datetime,
+        run_seconds: float,
+        settings: dict[str, Any],
+    ) -> ValuationResult:
+        """Assemble the results once every chunk has been added."""
+        basis = self.basis
+        curve = basis.discount_curve()
+        cash = self.cash if self.cash is not None else np.zeros((len(STATUSES), 12))
+        cash_total = cash.sum(axis=0)
+        total = self.total
+        sens_rows = []
+        for sc in self.scenarios:
+            if sc.kind == "discount_rate":
+                # Expected nominal cash flows do not depend on the discount rate, so the re-valued
+                # liability is exactly the PV of the base cash flows on the shifted curve.
+                value = discounted_total(cash_total, curve.shifted(sc.discount_shift))
+            else:
+                value = self.scenario_totals[sc.name]
+            sens_rows.append({"name": sc.name, "kind": sc.kind, "shift": sc.shift, "liability": value,
+                              "change_pct": 100.0 * (value / total - 1.0) if total else 0.0})
+        sens = pl.DataFrame(sens_rows, schema={"name": pl.Utf8, "kind": pl.Utf8, "shift": pl.Float64,
+                                               "liability": pl.Float64, "change_pct": pl.Float64})
+        measures = cashflow_measures(cash_total, curve) if total else {
+            "present_value": 0.0, "macaulay": 0.0, "modified": 0.0, "effective": 0.0,
+            "single_equivalent_discount_rate": float("nan")}
+        cashflows = _yearly(cash, curve)
+        cells = _sum_cells(self.cells)
+        le = life_expectancies(basis)
+        deaths = (pl.concat(self.deaths).group_by(["status", "sex"]).agg(pl.col("lives").sum(), pl.col("amounts").sum())
+                  .sort(["status", "sex"]) if self.deaths else
+                  pl.DataFrame(schema={"status": pl.Utf8, "sex": pl.Utf8, "lives": pl.Float64, "amounts": pl.Float64}))
+        members = pl.concat(self.members) if self.members else pl.DataFrame()
+        by_status_counts = {
+            r["status"]: {"read": int(r["read"]), "valued": int(r["valued"]), "excluded": int(r["excluded"])}
+            for r in counts.iter_rows(named=True) if r["status"] in STATUSES
+        }
+        summary: dict[str, Any] = {
+            "valuation_date": basis.valuation_date.isoformat(),
+            "basis_name": basis.name,
+            "records": {"read": int(read), "valued": int(valued), "excluded": int(excluded),
+                        "by_status": by_status_counts},
+            "liability": {
+                "total": total,
+                "by_status": _by(cells, "status", STATUSES),
+                "by_sex": _by(cells, "sex", SEXES),
+                "by_tranche": _by(cells.filter(pl.col("tranche") != "all"), "tranche", self.tranches)
+                | {"lump_sums": self.lumps},
+            },
+            "active_measures": {"projected_obligation": self.active_total,
+                                "accrued_benefit_obligation": self.abo, "current_service_cost": self.service_cost},
+            "duration": {k: measures[k] for k in ("macaulay", "modified", "effective")},
+            "single_equivalent_discount_rate": measures["single_equivalent_discount_rate"],
+            "cashflow_present_value": measures["present_value"],
+            "sensitivities": sens.to_dicts(),
+            "life_expectancy": le.to_dicts(),
+            "expected_deaths_next_year": {
+                "lives": float(deaths["lives"].sum()), "amounts": float(deaths["amounts"].sum()),
+                "by_group": deaths.to_dicts(),
+            },
+            "assumptions": _assumptions_summary(basis),
+            "manifest": {
+                "tool_version": __version__,
+                "inputs": inputs,
+                "basis": basis.as_dict(),
+                "settings": settings,
+                "started_at": started.isoformat(timespec="seconds"),
+                "run_seconds": round(run_seconds, 3),
+            },
+        }
+        return ValuationResult(
+            summary=summary, liabilities=cells, cashflows=cashflows, members=members, sensitivities=sens,
+            life_expectancy=le, expected_deaths=deaths, exceptions=exceptions, basis=basis,
+        )
+
+
+def _sum_cells(frames: list[pl.DataFrame]) -> pl.DataFrame:
+    if not frames:
+        return pl.DataFrame(schema={"status": pl.Utf8, "sex": pl.Utf8, "tranche": pl.Utf8, "benefit": pl.Utf8,
+                                    "liability": pl.Float64})
+    cells = pl.concat(frames).group_by(["status", "sex", "tranche", "benefit"]).agg(pl.col("liability").sum())
+    order = {s: i for i, s in enumerate(STATUSES)}
+    return cells.with_columns(pl.col("status").replace_strict(order, default=9).alias("_o")).sort(
+        ["_o", "sex", "tranche", "benefit"]).drop("_o")
+
+
+def input_hashes(paths: Iterable[str | Path | None]) -> dict[str, str]:
+    """SHA-256 of every input file, keyed by the path as given."""
+    return {str(p): file_sha256(p) for p in paths if p is not None}
+
+
 def value_members(
     member_data: Any,
     basis: Any,
@@ -209,114 +399,20 @@ def value_members(
     started = datetime.now(timezone.utc)
     t0 = time.perf_counter()
     records: pl.DataFrame = member_data.records
-    scenarios = scenarios_from_basis(basis, basis.valuation_date.year) if sensitivities else []
-    steps = 2 + len(scenarios)
-    if progress:
-        progress("valuing", 0, steps)
-    proj = project_records(records, basis, Scenario(), base_multiplier=q_multiplier, chunk_size=chunk_size)
-    liability = proj.liability
-    total = float(liability.sum())
-    if progress:
-        progress("valuing", 1, steps)
-
-    active = records["status"].to_numpy() == "active"
-    abo = total_liability(records.filter(pl.Series(active)), basis, Scenario(no_salary_growth=True),
-                          base_multiplier=q_multiplier, chunk_size=chunk_size) if active.any() else 0.0
-    if progress:
-        progress("valuing", 2, steps)
-    service = records["service_years"].fill_null(0.0).to_numpy().astype(float)
-    pension_benefit = proj.own.sum(axis=1) + proj.spouse.sum(axis=1)
-    if basis.benefit_design == "career_average":
-        accrued = proj.amount_now
-        next_unit = float(basis.accrual_rate) * records["salary"].fill_null(0.0).to_numpy().astype(float) * (
-            1.0 + basis.salary_growth) ** 0.5
-    else:
-        accrued = service
-        next_unit = np.ones(records.height)
-    per_unit = np.divide(pension_benefit, accrued, out=np.zeros(records.height), where=accrued > 0)
-    service_cost = float((per_unit * next_unit)[active].sum())
-
-    curve = basis.discount_curve()
-    cash_total = proj.cashflow.sum(axis=0)
-    sens_rows = []
-    for k, sc in enumerate(scenarios, start=3):
-        if sc.kind == "discount_rate":
-            # Expected nominal cash flows do not depend on the discount rate, so the re-valued liability
-            # is exactly the PV of the base cash flows on the shifted curve.
-            value = discounted_total(cash_total, curve.shifted(sc.discount_shift))
-        else:
-            value = total_liability(records, basis, sc, base_multiplier=q_multiplier, chunk_size=chunk_size)
-        sens_rows.append({"name": sc.name, "kind": sc.kind, "shift": sc.shift, "liability": value,
-                          "change_pct": 100.0 * (value / total - 1.0) if total else 0.0})
+    acc = RunAccumulator(basis, q_multiplier=q_multiplier, sensitivities=sensitivities)
+    n_chunks = max(1, -(-records.height // chunk_size))
+    for k, chunk in enumerate(_chunks(records, chunk_size)):
         if progress:
-            progress("sensitivities", k, steps)
-    sens = pl.DataFrame(sens_rows, schema={"name": pl.Utf8, "kind": pl.Utf8, "shift": pl.Float64,
-                                           "liability": pl.Float64, "change_pct": pl.Float64})
-
-    measures = cashflow_measures(cash_total, curve)
-    cashflows = _yearly(proj.cashflow, curve)
-    cells = _liability_cells(records, proj)
-    le = life_expectancies(basis)
-
-    deaths = pl.DataFrame({"status": records["status"], "sex": records["sex"], "lives": proj.q_next,
-                           "amounts": proj.q_next * proj.amount_now})
-    deaths = deaths.group_by(["status", "sex"]).agg(pl.col("lives").sum(), pl.col("amounts").sum()).sort(
-        ["status", "sex"])
-
-    ages = np.asarray(age_at(
-        records["date_of_birth"].to_numpy().astype("datetime64[D]"), np.datetime64(basis.valuation_date, "D"),
-        basis.age_convention), dtype=float)
-    members = pl.DataFrame({
-        "member_id": records["member_id"], "status": records["status"], "sex": records["sex"],
-        "age": ages, "pension": proj.amount_now, "liability": liability,
-        "member_liability": proj.own.sum(axis=1), "spouse_liability": proj.spouse.sum(axis=1),
-        "lump_sum_liability": proj.lump, "annuity_factor": proj.annuity_factor,
-        "q_next_year": proj.q_next,
-    })
-
-    counts = member_data.counts_by_status()
-    by_status_counts = {
-        r["status"]: {"read": int(r["read"]), "valued": int(r["valued"]), "excluded": int(r["excluded"])}
-        for r in counts.iter_rows(named=True) if r["status"] in STATUSES
-    }
-    inputs = {str(p): file_sha256(p) for p in [member_data.path, basis.source_path, *input_files] if p is not None}
-    run_seconds = time.perf_counter() - t0
-    summary: dict[str, Any] = {
-        "valuation_date": basis.valuation_date.isoformat(),
-        "basis_name": basis.name,
-        "records": {"read": int(member_data.read), "valued": int(member_data.valued),
-                    "excluded": int(member_data.excluded), "by_status": by_status_counts},
-        "liability": {
-            "total": total,
-            "by_status": _by(cells, "status", STATUSES),
-            "by_sex": _by(cells, "sex", SEXES),
-            "by_tranche": _by(cells.filter(pl.col("tranche") != "all"), "tranche", proj.tranches)
-            | {"lump_sums": float(proj.lump.sum())},
-        },
-        "active_measures": {"projected_obligation": float(liability[active].sum()),
-                            "accrued_benefit_obligation": abo, "current_service_cost": service_cost},
-        "duration": {k: measures[k] for k in ("macaulay", "modified", "effective")},
-        "single_equivalent_discount_rate": measures["single_equivalent_discount_rate"],
-        "cashflow_present_value": measures["present_value"],
-        "sensitivities": sens.to_dicts(),
-        "life_expectancy": le.to_dicts(),
-        "expected_deaths_next_year": {
-            "lives": float(deaths["lives"].sum()), "amounts": float(deaths["amounts"].sum()),
-            "by_group": deaths.to_dicts(),
-        },
-        "assumptions": _assumptions_summary(basis),
-        "manifest": {
-            "tool_version": __version__,
-            "inputs": inputs,
-            "basis": basis.as_dict(),
-            "settings": {"sensitivities": sensitivities, "q_multiplier": q_multiplier, "chunk_size": chunk_size},
-            "started_at": started.isoformat(timespec="seconds"),
-            "run_seconds": round(run_seconds, 3),
-        },
-    }
-    return ValuationResult(
-        summary=summary, liabilities=cells, cashflows=cashflows, members=members, sensitivities=sens,
-        life_expectancy=le, expected_deaths=deaths, exceptions=member_data.exceptions, basis=basis,
+            progress("valuing", k, n_chunks)
+        acc.add(chunk)
+    if progress:
+        progress("valuing", n_chunks, n_chunks)
+    return acc.finish(
+        read=member_data.read, valued=member_data.valued, excluded=member_data.excluded,
+        counts=member_data.counts_by_status(), exceptions=member_data.exceptions,
+        inputs=input_hashes([member_data.path, basis.source_path, *input_files]), started=started,
+        run_seconds=time.perf_counter() - t0,
+        settings={"sensitivities": sensitivities, "q_multiplier": q_multiplier, "chunk_size": chunk_size},
     )
 
 

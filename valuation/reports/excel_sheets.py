@@ -174,8 +174,11 @@ def deaths_sheet(ws: Worksheet, result: ValuationResult) -> None:
 
 
 def experience_sheet(ws: Worksheet, experience: Any) -> None:
-    _list_sheet(ws, "Experience analysis: actual against expected deaths",
-                "Ratios 1 = 100 %; intervals at the analysis's confidence level; amounts [currency p.a.].")
+    xc.title(ws, "Experience analysis: actual against expected deaths")
+    settings = experience.settings
+    xc.note(ws, 2, f"Period {settings.period_start.isoformat()} to {settings.period_end.isoformat()}, "
+            f"{settings.exposure} exposure. Ratios 1 = 100 %; intervals at {settings.confidence:.0%} "
+            "confidence; amounts [currency p.a.].")
     imp = experience.implied or {}
     rows: list[tuple[str, Any, str | None]] = [
         ("A/E by amounts (multiplier)", imp.get("multiplier"), xc.RATIO),
@@ -188,11 +191,11 @@ def experience_sheet(ws: Worksheet, experience: Any) -> None:
         ("Liability after [currency]", imp.get("liability_after"), xc.MONEY),
         ("Change [%]", imp.get("change_pct"), "0.00"),
     ]
+    rows = [r for r in rows if r[1] is not None]
     if imp.get("note"):
         rows.append(("Note", imp["note"], None))
     if imp.get("reason"):
         rows.append(("Liability effect", imp["reason"], None))
-    ws.freeze_panes = None
     top = xc.key_values(ws, HEAD, rows) + 1
     by_table = pl.DataFrame(imp.get("by_table") or [], schema={
         "group": pl.String, "sex": pl.String, "current_percentage": pl.Float64, "implied_percentage": pl.Float64,
