@@ -205,3 +205,10 @@ def test_empty_result_renders_with_missing_figures_marked() -> None:
     assert page.values["sedr"] == "n/a" and page.values["duration"] == "n/a"
     text = words(page)
     assert "No sensitivities were run." in text and "None: every record was valued without a warning." in text
+
+
+def test_chart_labels_are_rebuilt_from_numbers() -> None:
+    """The SVG is marked safe, so age-band labels are rebuilt from their digits; anything else is replaced."""
+    from valuation.reports.charts import band_labels
+
+    assert band_labels(["60-64", SCRIPT_PROBE, " 100-104 ", "9-"]) == ["60-64", "band 2", "100-104", "band 4"]

@@ -44,6 +44,12 @@ def headlines(summary: dict[str, Any]) -> list[Headline]:
     rec = summary["records"]
     dur = summary.get("duration", {})
     act = summary.get("active_measures", {})
+    if rec["excluded"]:
+        data_words = (f"Of the {fmt.number(rec['read'])} records in the member data, {fmt.number(rec['valued'])} "
+                      f"were valued and {fmt.number(rec['excluded'])} were left out because their data could not "
+                      "be used (see the data section).")
+    else:
+        data_words = f"All {fmt.number(rec['read'])} records in the member data were valued."
     out = [
         Headline("total_liability", "Total liability", liab["total"], fmt.money(liab["total"]),
                  "The amount that, invested today and earning the discount rate, would pay every pension and "
@@ -54,10 +60,7 @@ def headlines(summary: dict[str, Any]) -> list[Headline]:
         Headline("sedr", "Single equivalent discount rate", summary.get("single_equivalent_discount_rate"),
                  fmt.rate(summary.get("single_equivalent_discount_rate")),
                  "The one flat interest rate that gives the same liability as the discount rate basis."),
-        Headline("members_valued", "Members valued", rec["valued"], fmt.number(rec["valued"]),
-                 f"Of the {fmt.number(rec['read'])} records in the member data, {fmt.number(rec['valued'])} "
-                 f"were valued and {fmt.number(rec['excluded'])} were left out because their data could not "
-                 "be used (see the data section)."),
+        Headline("members_valued", "Members valued", rec["valued"], fmt.number(rec["valued"]), data_words),
     ]
     if act.get("projected_obligation"):
         out.append(Headline(
