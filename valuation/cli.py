@@ -9,7 +9,9 @@ place at the end.
 from __future__ import annotations
 
 import argparse
+import signal
 import sys
+import threading
 import textwrap
 from datetime import date
 from pathlib import Path
@@ -69,10 +71,8 @@ def _report_writers(experience: Any = None) -> list:
 
 def _headline(result: Any) -> str:
     s = result.summary
-    rec = s["records"]
     lines = [
         f"valuation date {s['valuation_date']}: liability {s['liability']['total']:,.0f}",
-        f"records read {rec['read']:,} = valued {rec['valued']:,} + excluded {rec['excluded']:,}",
     ]
     for st, v in s["liability"]["by_status"].items():
         lines.append(f"  {st:<10} {v:>16,.0f}")
@@ -242,9 +242,16 @@ def build_parser() -> argparse.ArgumentParser:
     return p
 
 
+def _terminate(signum: int, frame: Any) -> None:
+    """SIGTERM ends the run through the normal exception path, so temporary output is removed."""
+    raise KeyboardInterrupt
+
+
 def main(argv: list[str] | None = None) -> int:
     parser = build_parser()
     args = parser.parse_args(argv)
+    if threading.current_thread() is threading.main_thread():
+        signal.signal(signal.SIGTERM, _terminate)
     try:
         return int(args.func(args))
     except ValuationError as exc:
@@ -253,7 +260,7 @@ def main(argv: list[str] | None = None) -> int:
     except FileNotFoundError as exc:
         print(f"valuation: error: {exc.filename or exc}: file not found", file=sys.stderr)
         return EXIT_INPUT
-    except KeyboardInterrupt:  # pragma: no cover
+    except KeyboardInterrupt:
         print("valuation: interrupted; no partial output was kept", file=sys.stderr)
         return 130
 

@@ -4,6 +4,7 @@ renamed into place only when every file is complete, so an interrupted run leave
 
 from __future__ import annotations
 
+import os
 import shutil
 import tempfile
 from collections.abc import Callable
@@ -28,6 +29,9 @@ def atomic_folder(target: str | Path, *, overwrite: bool = True) -> Iterator[Pat
     target = Path(target)
     target.parent.mkdir(parents=True, exist_ok=True)
     tmp = Path(tempfile.mkdtemp(prefix=f".{target.name}.partial-", dir=target.parent))
+    umask = os.umask(0)
+    os.umask(umask)
+    os.chmod(tmp, 0o777 & ~umask)
     try:
         yield tmp
     except BaseException:

@@ -100,7 +100,25 @@ def _ages(d: pl.Series, basis: Basis) -> tuple[np.ndarray, np.ndarray]:
         return np.floor(age_at(dob, basis.valuation_date, basis.age_convention)), exact
 
 
-def _prepare(df: pl.DataFrame, basis: Basis, path: Path, tranche_cols: list[str]) -> pl.DataFrame:
+def duplicate_ids(ids: pl.DataFrame) -> pl.DataFrame:
+    """The member ids that appear more than once, from the ``row`` and trimmed ``member_id`` of a whole file.
+
+    Returns one row an id: ``member_id``, ``_dup_n`` (copies) and ``_dup_rows`` (the first ten rows, then
+    ``...``), the text the duplicate check reports. Empty ids are not duplicates (they have their own check).
+    """
+    return (
+        ids.filter(pl.col("member_id").is_duplicated() & pl.col("member_id").is_not_null())
+        .group_by("member_id")
+        .agg(_dup_n=pl.len().cast(pl.Int64), _dup_rows=pl.col("row").sort().head(10).cast(pl.String).str.join(", "))
+        .with_columns(_dup_rows=pl.when(pl.col("_dup_n") > 10).then(pl.col("_dup_rows") + ", ...")
+                      .otherwise(pl.col("_dup_rows")))
+    )
+
+
+def _prepare(
+    df: pl.DataFrame, basis: Basis, path: Path, tranche_cols: list[str], first_row: int,
+    duplicates: pl.DataFrame | None,
+) -> pl.DataFrame:
     missing = [c for c in REQUIRED if c not in df.columns]
     if missing:
         mapped = ", ".join(f"'{k}' -> {v}" for k, v in basis.mapping.columns.items()) or "none"
@@ -112,7 +130,7 @@ def _prepare(df: pl.DataFrame, basis: Basis, path: Path, tranche_cols: list[str]
         )
     wanted = [*REQUIRED, *DATE_COLUMNS[1:], *NUMERIC_COLUMNS, *tranche_cols]
     df = df.with_columns(pl.lit(None, dtype=pl.String).alias(c) for c in wanted if c not in df.columns)
-    df = df.select(wanted).with_row_index("row", offset=2).with_columns(pl.col("row").cast(pl.Int64))
+    df = df.select(wanted).with_row_index("row", offset=first_row).with_columns(pl.col("row").cast(pl.Int64))
     df = df.with_columns(clean_text(wanted))
     df = parse_all(df, basis.mapping, list(DATE_COLUMNS), [*NUMERIC_COLUMNS, *tranche_cols])
     tr = [pl.col(parsed(c)) for c in tranche_cols]
@@ -120,17 +138,11 @@ def _prepare(df: pl.DataFrame, basis: Basis, path: Path, tranche_cols: list[str]
     df = df.with_columns(
         _tr_given=given,
         _tr_sum=pl.sum_horizontal(tr) if tr else pl.lit(0.0),
-        _dup=pl.col("member_id").is_duplicated() & pl.col("member_id").is_not_null(),
     ).with_columns(
         _pension=pl.when(pl.col(parsed("pension")).is_null() & pl.col("_tr_given"))
         .then(pl.col("_tr_sum")).otherwise(pl.col(parsed("pension"))),
     )
-    dups = (
-        df.filter(pl.col("_dup")).group_by("member_id")
-        .agg(_dup_n=pl.len().cast(pl.Int64), _dup_rows=pl.col("row").sort().head(10).cast(pl.String).str.join(", "))
-        .with_columns(_dup_rows=pl.when(pl.col("_dup_n") > 10).then(pl.col("_dup_rows") + ", ...")
-                      .otherwise(pl.col("_dup_rows")))
-    )
+    dups = duplicate_ids(df.select("row", "member_id")) if duplicates is None else duplicates
     df = df.join(dups, on="member_id", how="left", maintain_order="left").with_columns(
         pl.col("_dup_n").fill_null(1)
     )
@@ -200,6 +212,80 @@ def _records(df: pl.DataFrame, basis: Basis, tranche_cols: list[str], all_tranch
     )
 
 
+@dataclass
+class CheckedFrame:
+    """One frame of member records after validation (a whole file, or one chunk of it).
+
+    ``records`` and ``exceptions`` are as in :class:`MemberData`; ``counts`` has one row a status label
+    (``status, read, valued, excluded``, in no particular order); ``ignored_columns`` lists headers that
+    are not ours.
+    """
+
+    records: pl.DataFrame
+    exceptions: pl.DataFrame
+    counts: pl.DataFrame
+    read: int
+    ignored_columns: list[str]
+
+
+def validate_frame(
+    raw: pl.DataFrame, basis: Basis, path: Path, *, first_row: int = 2, duplicates: pl.DataFrame | None = None,
+) -> CheckedFrame:
+    """Validate member records held as text under our column names (after :func:`map_headers`).
+
+    Parameters
+    ----------
+    raw : polars.DataFrame
+        Text columns, headers already mapped to ours.
+    basis : Basis
+        The assumptions basis (valuation date, tranches, closing ages, thresholds, mapping codes).
+    path : Path
+        The member file, named in exceptions and errors.
+    first_row : int
+        File row number of ``raw``'s first record (2 for a whole file: the header is row 1).
+    duplicates : polars.DataFrame, optional
+        Duplicate ids of the whole file (:func:`duplicate_ids`) when ``raw`` is one chunk of it; by
+        default duplicates are found within ``raw``.
+
+    Raises
+    ------
+    DataError
+        A required column is absent, or a ``pension_<name>`` column names a tranche the basis does not
+        declare.
+    """
+    all_tranches = [tranche_column(t) for t in basis.tranches]
+    ours = known_columns(list(basis.tranches))
+    stray = [c for c in raw.columns if c.startswith("pension_") and c not in ours]
+    if stray:
+        raise DataError(
+            f"column '{stray[0]}' names a tranche the basis does not declare (declared: "
+            f"{', '.join(basis.tranches)})", file=path, column=stray[0],
+            fix="declare the tranche under [tranches] in the basis, or rename the column",
+        )
+    tranche_cols = [c for c in all_tranches if c in raw.columns]
+    ignored = [c for c in raw.columns if c not in ours]
+    df = _prepare(raw, basis, path, tranche_cols, first_row, duplicates)
+    exceptions = _exceptions(df, basis, path, tranche_cols)
+    bad_rows = exceptions.filter(pl.col("severity") == "excluded").get_column("row").unique()
+    df = df.with_columns(_excluded=pl.col("row").is_in(bad_rows.implode()))
+    records = _records(df.filter(~pl.col("_excluded")), basis, tranche_cols, all_tranches)
+    status_label = pl.col(parsed("status")).fill_null(UNKNOWN_STATUS)
+    counts = (
+        df.group_by(status_label.alias("status"))
+        .agg(read=pl.len(), valued=(~pl.col("_excluded")).sum(), excluded=pl.col("_excluded").sum())
+        .with_columns(pl.col("read", "valued", "excluded").cast(pl.Int64))
+    )
+    return CheckedFrame(records=records, exceptions=exceptions, counts=counts, read=df.height,
+                        ignored_columns=ignored)
+
+
+def sum_counts(parts: list[pl.DataFrame]) -> pl.DataFrame:
+    """Add up ``CheckedFrame.counts`` of several chunks, one row a status in reporting order."""
+    counts = pl.concat(parts).group_by("status").agg(pl.col("read", "valued", "excluded").sum())
+    order = {s: k for k, s in enumerate([*STATUSES, UNKNOWN_STATUS])}
+    return counts.sort(pl.col("status").replace_strict(order, return_dtype=pl.Int64))
+
+
 def read_members(path: str | Path, basis: Basis) -> MemberData:
     """Read one scheme's member file (CSV, XLSX or Parquet) and validate every record.
 
@@ -229,33 +315,11 @@ def read_members(path: str | Path, basis: Basis) -> MemberData:
         ``pension_<name>`` column names a tranche the basis does not declare.
     """
     p = Path(path)
-    raw = map_headers(read_text_frame(p), basis.mapping, p)
-    all_tranches = [tranche_column(t) for t in basis.tranches]
-    stray = [c for c in raw.columns if c.startswith("pension_") and c not in known_columns(list(basis.tranches))]
-    if stray:
-        raise DataError(
-            f"column '{stray[0]}' names a tranche the basis does not declare (declared: "
-            f"{', '.join(basis.tranches)})", file=p, column=stray[0],
-            fix="declare the tranche under [tranches] in the basis, or rename the column",
-        )
-    tranche_cols = [c for c in all_tranches if c in raw.columns]
-    ignored = [c for c in raw.columns if c not in known_columns(list(basis.tranches))]
-    df = _prepare(raw, basis, p, tranche_cols)
-    exceptions = _exceptions(df, basis, p, tranche_cols)
-    bad_rows = exceptions.filter(pl.col("severity") == "excluded").get_column("row").unique()
-    df = df.with_columns(_excluded=pl.col("row").is_in(bad_rows.implode()))
-    records = _records(df.filter(~pl.col("_excluded")), basis, tranche_cols, all_tranches)
-    status_label = pl.col(parsed("status")).fill_null(UNKNOWN_STATUS)
-    counts = (
-        df.group_by(status_label.alias("status"))
-        .agg(read=pl.len(), valued=(~pl.col("_excluded")).sum(), excluded=pl.col("_excluded").sum())
-        .with_columns(pl.col("read", "valued", "excluded").cast(pl.Int64))
-    )
-    order = {s: k for k, s in enumerate([*STATUSES, UNKNOWN_STATUS])}
-    counts = counts.sort(pl.col("status").replace_strict(order, return_dtype=pl.Int64))
+    checked = validate_frame(map_headers(read_text_frame(p), basis.mapping, p), basis, p)
     return MemberData(
-        path=p, records=records, exceptions=exceptions, read=df.height, valued=records.height,
-        excluded=df.height - records.height, ignored_columns=ignored, _status_counts=counts,
+        path=p, records=checked.records, exceptions=checked.exceptions, read=checked.read,
+        valued=checked.records.height, excluded=checked.read - checked.records.height,
+        ignored_columns=checked.ignored_columns, _status_counts=sum_counts([checked.counts]),
     )
 
 

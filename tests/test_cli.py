@@ -1,0 +1,115 @@
+"""The command line: help with examples, exit codes, messages on stderr, atomic run folders.
+
+Exit codes are the tool's own documented contract (0 ok, 2 usage, 3 input error); SIGTERM handling
+follows POSIX signal semantics (a terminated run exits 130 after removing its temporary folder).
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import signal
+import subprocess
+import sys
+import time
+from pathlib import Path
+
+import pytest
+
+from valuation.cli import main
+
+ROOT = Path(__file__).resolve().parents[1]
+BASIS = ROOT / "assumptions" / "demo_basis.toml"
+MEMBERS = ROOT / "member_data_demo" / "members.csv"
+DIRTY = ROOT / "member_data_demo" / "members_dirty.csv"
+
+
+@pytest.mark.parametrize("cmd", ["run", "check", "batch", "synth", "experience"])
+def test_help_has_examples(cmd, capsys):
+    with pytest.raises(SystemExit) as exc:
+        main([cmd, "--help"])
+    assert exc.value.code == 0
+    out = capsys.readouterr().out
+    assert "example" in out and "exit codes" in out
+
+
+def test_run_writes_folder_with_reports(tmp_path, capsys):
+    out = tmp_path / "demo"
+    assert main(["run", str(BASIS), str(MEMBERS), "--out", str(out), "--no-sensitivities"]) == 0
+    for name in ("summary.json", "cashflows.csv", "exceptions.csv", "valuation.xlsx", "summary.html",
+                 "manifest.json", "members.parquet"):
+        assert (out / name).exists(), name
+    text = capsys.readouterr().out
+    assert "records read 2,869 = valued 2,869 + excluded 0" in text
+    assert not [p for p in tmp_path.iterdir() if ".partial-" in p.name]
+
+
+def test_missing_file_exits_3_with_message(tmp_path, capsys):
+    assert main(["run", str(BASIS), str(tmp_path / "nope.csv"), "--out", str(tmp_path / "x")]) == 3
+    err = capsys.readouterr().err
+    assert "nope.csv" in err
+    assert not (tmp_path / "x").exists()
+
+
+def test_invalid_basis_key_exits_3_naming_the_key(tmp_path, capsys):
+    bad = tmp_path / "bad.toml"
+    bad.write_text(BASIS.read_text().replace("[salary]\ngrowth", "[salary]\ngrowht"))
+    assert main(["check", str(bad), str(MEMBERS)]) == 3
+    err = capsys.readouterr().err
+    assert "bad.toml" in err and "growht" in err
+
+
+def test_usage_error_exits_2():
+    with pytest.raises(SystemExit) as exc:
+        main(["run"])
+    assert exc.value.code == 2
+
+
+def test_check_reports_exceptions(tmp_path, capsys):
+    exc_file = tmp_path / "exceptions.csv"
+    assert main(["check", str(BASIS), str(DIRTY), "--exceptions", str(exc_file)]) == 0
+    out = capsys.readouterr().out
+    assert "records read" in out and "excluded" in out
+    assert exc_file.exists()
+
+
+def test_synth_is_reproducible(tmp_path):
+    a, b = tmp_path / "a.csv", tmp_path / "b.csv"
+    assert main(["synth", "--members", "500", "--seed", "4", "--out", str(a), "-q"]) == 0
+    assert main(["synth", "--members", "500", "--seed", "4", "--out", str(b), "-q"]) == 0
+    assert a.read_bytes() == b.read_bytes()
+
+
+def test_experience_command(tmp_path):
+    demo = ROOT / "member_data_demo"
+    out = tmp_path / "exp"
+    code = main(["experience", str(BASIS), str(demo / "members_start.csv"), str(demo / "deaths.csv"),
+                 "--start", "2022-03-31", "--end", "2025-03-31", "--exits", str(demo / "exits.csv"),
+                 "--out", str(out), "-q"])
+    assert code == 0
+    s = json.loads((out / "experience.json").read_text())
+    assert s
+
+
+def test_terminated_run_leaves_no_partial_folder(tmp_path):
+    """SIGTERM while the run folder is being written: neither the run folder nor its temporary folder is
+    left behind."""
+    out = tmp_path / "killed"
+    env = dict(os.environ)
+    proc = subprocess.Popen(
+        [sys.executable, "-m", "valuation.cli", "run", str(BASIS), str(MEMBERS), "--out", str(out), "-q",
+         "--no-sensitivities"], env=env, stdout=subprocess.PIPE, stderr=subprocess.PIPE,
+    )
+    deadline = time.time() + 120
+    while time.time() < deadline and proc.poll() is None:
+        if any(".partial-" in p.name for p in tmp_path.iterdir()):
+            proc.send_signal(signal.SIGTERM)
+            break
+        time.sleep(0.002)
+    proc.wait(timeout=120)
+    if proc.returncode == 0:  # finished before the signal landed: the folder must then be complete
+        assert (out / "summary.json").exists() and (out / "summary.html").exists()
+    else:
+        assert proc.returncode == 130
+        assert not out.exists()
+    assert not [p for p in tmp_path.iterdir() if ".partial-" in p.name]
