@@ -110,6 +110,7 @@ def test_terminated_run_leaves_no_partial_folder(tmp_path):
     if proc.returncode == 0:  # finished before the signal landed: the folder must then be complete
         assert (out / "summary.json").exists() and (out / "summary.html").exists()
     else:
-        assert proc.returncode == 130
+        # 130 when the signal lands in Python code; 1 if it surfaces inside a library call as another error
+        assert proc.returncode in (130, 1), proc.stderr.read().decode()[-3000:]
         assert not out.exists()
     assert not [p for p in tmp_path.iterdir() if ".partial-" in p.name]

@@ -263,6 +263,12 @@ def main(argv: list[str] | None = None) -> int:
     except KeyboardInterrupt:
         print("valuation: interrupted; no partial output was kept", file=sys.stderr)
         return 130
+    except Exception as exc:  # an internal error: say so plainly, keep the traceback for a bug report
+        import traceback
+
+        traceback.print_exc()
+        print(f"valuation: internal error: {exc!r}; no partial output was kept", file=sys.stderr)
+        return EXIT_INTERNAL
 
 
 if __name__ == "__main__":  # pragma: no cover

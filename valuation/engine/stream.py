@@ -1,0 +1,219 @@
+"""Streaming valuation: read, validate and value a member file chunk by chunk, in flat memory.
+
+:func:`value_file_streaming` gives the same results as ``value_members(read_members(path, basis), basis)``
+but never holds more than one chunk of the member file: a first pass reads only the ``member_id`` column
+to find duplicated ids (the one check that needs the whole file), then each chunk of records is validated
+with the same rules and messages as :func:`valuation.members.read_members` (row numbers are the file's:
+header = row 1) and valued by a :class:`~valuation.engine.run.RunAccumulator`. Per-member results go to a
+Parquet file instead of memory.
+"""
+
+from __future__ import annotations
+
+import time
+from collections.abc import Iterator
+from datetime import datetime, timezone
+from pathlib import Path
+from typing import Any
+
+import polars as pl
+import pyarrow as pa
+import pyarrow.parquet as pq
+
+from valuation.engine.results import ValuationResult
+from valuation.engine.run import DEFAULT_CHUNK, Progress, RunAccumulator, input_hashes
+from valuation.members.data import (
+    EXCEPTION_SCHEMA,
+    CheckedFrame,
+    MemberData,
+    duplicate_ids,
+    sum_counts,
+    validate_frame,
+)
+from valuation.members.parse import clean_text
+from valuation.members.readers import (
+    file_kind,
+    header_targets,
+    iter_text_frames,
+    map_headers,
+    read_header,
+    read_text_frame,
+    scan_column,
+)
+
+#: Header row of a member file; its first record is the next row.
+FIRST_ROW = 2
+
+
+class ParquetMemberSink:
+    """Appends per-member result frames to one Parquet file (``pyarrow.parquet.ParquetWriter``).
+
+    Call the sink with each frame, then :meth:`close`. A run with no valued member writes a file with no
+    columns and no rows.
+    """
+
+    def __init__(self, path: str | Path) -> None:
+        self.path = Path(path)
+        self.rows = 0
+        self._writer: pq.ParquetWriter | None = None
+        self._schema: pa.Schema | None = None
+
+    def __call__(self, members: pl.DataFrame) -> None:
+        table = members.to_arrow()
+        if self._writer is None:
+            self._schema = table.schema
+            self._writer = pq.ParquetWriter(self.path, table.schema)
+        elif table.schema != self._schema:
+            table = table.cast(self._schema)
+        self._writer.write_table(table)
+        self.rows += members.height
+
+    def close(self) -> None:
+        if self._writer is None:
+            pq.write_table(pa.table({}), self.path)
+        else:
+            self._writer.close()
+            self._writer = None
+
+
+def _discard(members: pl.DataFrame) -> None:
+    """Member sink that keeps nothing (streaming without a per-member results file)."""
+
+
+def file_duplicates(path: Path, basis: Any) -> tuple[pl.DataFrame, int | None]:
+    """Duplicated member ids of a whole CSV or Parquet file, from its ``member_id`` column alone.
+
+    Returns the :func:`~valuation.members.data.duplicate_ids` frame and the number of records, or an
+    empty frame and ``None`` when the file has no ``member_id`` column (validating the first chunk then
+    reports the missing column).
+    """
+    targets = header_targets(read_header(path), basis.mapping, path)
+    source = next((k for k, v in targets.items() if v == "member_id"), None)
+    if source is None:
+        return duplicate_ids(pl.DataFrame(schema={"row": pl.Int64, "member_id": pl.String})), None
+    ids = (
+        scan_column(path, source)
+        .rename({source: "member_id"})
+        .with_columns(clean_text(["member_id"]))
+        .with_row_index("row", offset=FIRST_ROW)
+        .with_columns(pl.col("row").cast(pl.Int64))
+    )
+    return duplicate_ids(ids), ids.height
+
+
+def _checked_chunks(path: Path, basis: Any, chunk_rows: int, duplicates: pl.DataFrame) -> Iterator[CheckedFrame]:
+    """Validated chunks of a CSV or Parquet file, row numbers offset to the file's."""
+    first = FIRST_ROW
+    for text in iter_text_frames(path, chunk_rows):
+        checked = validate_frame(map_headers(text, basis.mapping, path), basis, path, first_row=first,
+                                 duplicates=duplicates)
+        first += text.height
+        yield checked
+    if first == FIRST_ROW:  # no records: validate the header alone (missing columns are still fatal)
+        header = pl.DataFrame(schema={c: pl.String for c in read_header(path)})
+        yield validate_frame(map_headers(header, basis.mapping, path), basis, path, duplicates=duplicates)
+
+
+def value_file_streaming(
+    members_path: str | Path,
+    basis: Any,
+    *,
+    chunk_rows: int = DEFAULT_CHUNK,
+    member_results_path: str | Path | None = None,
+    sensitivities: bool = True,
+    progress: Progress | None = None,
+) -> ValuationResult:
+    """Value a scheme's member file on ``basis`` without holding the whole file in memory.
+
+    Parameters
+    ----------
+    members_path : str or Path
+        The member file. CSV and Parquet are read ``chunk_rows`` records at a time; an XLSX file (small by
+        nature) is read whole with :func:`~valuation.members.read_members` and valued in chunks.
+    basis : Basis
+        The assumptions basis (from ``load_basis``).
+    chunk_rows : int
+        Records read, validated and valued at a time [records]. Memory grows with this, not with the file.
+    member_results_path : str or Path, optional
+        Parquet file that receives one row a valued member (the columns of ``ValuationResult.members``),
+        written chunk by chunk. Without it the per-member rows are not kept.
+    sensitivities : bool
+        Value the basis's sensitivity scenarios too.
+    progress : callable, optional
+        Called as ``progress(stage, done, total)`` with stage ``"checking ids"`` then ``"valuing"``
+        (chunks done of the expected number).
+
+    Returns
+    -------
+    ValuationResult
+        The same summary, liabilities, cash flows, sensitivities, expected deaths and exceptions as
+        ``value_members(read_members(members_path, basis), basis)``, except that ``members`` is an
+        **empty frame**: the per-member rows are in ``extra["members_path"]`` (the Parquet file, or
+        ``None`` when ``member_results_path`` was not given). Duplicated ids are found across the whole
+        file, so every copy is excluded with the same reason and row list as ``read_members`` gives.
+
+    Raises
+    ------
+    DataError
+        As :func:`~valuation.members.read_members`: a missing or unreadable file, an unknown extension, a
+        required column absent, or a ``pension_<name>`` column naming an undeclared tranche.
+
+    References
+    ----------
+    IAS 19 *Employee Benefits*, paras 67-69, 145 and 147, as in :mod:`valuation.engine.run` (streaming
+    changes how records are read, never how they are valued).
+    """
+    started = datetime.now(timezone.utc)
+    t0 = time.perf_counter()
+    p = Path(members_path)
+    kind = file_kind(p)
+    sink = ParquetMemberSink(member_results_path) if member_results_path is not None else None
+    acc = RunAccumulator(basis, sensitivities=sensitivities, member_sink=sink if sink is not None else _discard)
+    counts: list[pl.DataFrame] = []
+    exceptions: list[pl.DataFrame] = []
+    read = valued = 0
+    ignored: list[str] = []
+    try:
+        if kind == "xlsx":
+            chunks: Iterator[CheckedFrame] = iter([
+                validate_frame(map_headers(read_text_frame(p), basis.mapping, p), basis, p)])
+            n_chunks = None
+        else:
+            if progress:
+                progress("checking ids", 0, 1)
+            dups, n_records = file_duplicates(p, basis)
+            if progress:
+                progress("checking ids", 1, 1)
+            chunks = _checked_chunks(p, basis, chunk_rows, dups)
+            n_chunks = max(1, -(-n_records // chunk_rows)) if n_records is not None else None
+        done = 0
+        for checked in chunks:
+            read += checked.read
+            valued += checked.records.height
+            counts.append(checked.counts)
+            exceptions.append(checked.exceptions)
+            ignored = checked.ignored_columns
+            for off in range(0, checked.records.height, chunk_rows):
+                if progress:
+                    progress("valuing", done, max(n_chunks or 0, done + 1))
+                acc.add(checked.records.slice(off, chunk_rows))
+                done += 1
+        if progress:
+            progress("valuing", done, done)
+    finally:
+        if sink is not None:
+            sink.close()
+    data = MemberData(
+        path=p, records=pl.DataFrame(), exceptions=pl.concat(exceptions).cast(EXCEPTION_SCHEMA),  # type: ignore[arg-type]
+        read=read, valued=valued, excluded=read - valued, ignored_columns=ignored,
+        _status_counts=sum_counts(counts),
+    )
+    result = acc.finish(
+        read=data.read, valued=data.valued, excluded=data.excluded, counts=data.counts_by_status(),
+        exceptions=data.exceptions, inputs=input_hashes([p, basis.source_path]), started=started,
+        run_seconds=time.perf_counter() - t0,
+        settings={"sensitivities": sensitivities, "q_multiplier": 1.0, "chunk_size": chunk_rows,
+                  "streaming": True},
+    )
+    result.extra["members_path"] = str(sink.path) if sink is not None else None
+    return result
