@@ -18,7 +18,7 @@ from valuation.engine.project import Valuer
 def test_kernel_equals_array_version(tmp_path, fractional, frequency, timing, kind):
     text = sult_toml(frequency=frequency, timing=timing, improvement='{ kind = "constant", rate = 0.01 }',
                      increase='kind = "fixed", rate = 0.02', revaluation='kind = "fixed", rate = 0.03')
-    text = text.replace('timing = "', f'timing = "').replace("[payment]", "[conventions]\nfractional_age = "
+    text = text.replace('timing = "', 'timing = "').replace("[payment]", "[conventions]\nfractional_age = "
                                                              f'"{fractional}"\n[payment]')
     basis = write_basis(tmp_path, text)
     valuer = Valuer(basis)

@@ -11,8 +11,8 @@ from __future__ import annotations
 import argparse
 import signal
 import sys
-import threading
 import textwrap
+import threading
 from datetime import date
 from pathlib import Path
 from typing import Any

@@ -135,23 +135,39 @@ def _yearly(cash: np.ndarray, curve: Any) -> pl.DataFrame:
     return pl.DataFrame(data)
 
 
-def _liability_cells(records: pl.DataFrame, proj: Projection) -> pl.DataFrame:
-    frames = []
-    for j, tr in enumerate(proj.tranches):
-        for benefit, arr in (("member_pension", proj.own[:, j]), ("spouse_pension", proj.spouse[:, j])):
-            frames.append(pl.DataFrame({"status": records["status"], "sex": records["sex"],
-                                        "tranche": tr, "benefit": benefit, "liability": arr}))
-    frames.append(pl.DataFrame({"status": records["status"], "sex": records["sex"], "tranche": "all",
-                                "benefit": "lump_sum", "liability": proj.lump}))
-    cells = pl.concat(frames).group_by(["status", "sex", "tranche", "benefit"]).agg(pl.col("liability").sum())
-    order = {s: i for i, s in enumerate(STATUSES)}
-    return cells.with_columns(pl.col("status").replace_strict(order, default=9).alias("_o")).sort(
-        ["_o", "sex", "tranche", "benefit"]).drop("_o")
+def _group_code(records: pl.DataFrame) -> np.ndarray:
+    """Status x sex cell of each record: status index * 2 + sex index (STATUSES, SEXES order)."""
+    st = records["status"].replace_strict({s: i for i, s in enumerate(STATUSES)}, return_dtype=pl.Int64)
+    sx = records["sex"].replace_strict({s: i for i, s in enumerate(SEXES)}, return_dtype=pl.Int64)
+    return (st * len(SEXES) + sx).to_numpy()
+
+
+N_CELLS = len(STATUSES) * len(SEXES)
+
+
+def _cell_sums(code: np.ndarray, values: np.ndarray) -> np.ndarray:
+    """Sum of values by status x sex cell: deterministic (sequential) sums, so runs repeat to the bit."""
+    return np.bincount(code, weights=values, minlength=N_CELLS)[:N_CELLS]
+
+
+def _cells_frame(benefit_sums: dict[tuple[str, str], np.ndarray]) -> pl.DataFrame:
+    """Frame of liability by (status, sex, tranche, benefit) from arrays of cell sums."""
+    rows = []
+    for c in range(N_CELLS):
+        for (tranche, benefit), sums in benefit_sums.items():
+            rows.append({"status": STATUSES[c // 2], "sex": SEXES[c % 2], "tranche": tranche,
+                         "benefit": benefit, "liability": float(sums[c])})
+    return pl.DataFrame(rows, schema={"status": pl.Utf8, "sex": pl.Utf8, "tranche": pl.Utf8,
+                                      "benefit": pl.Utf8, "liability": pl.Float64})
 
 
 def _by(frame: pl.DataFrame, col: str, keys: Iterable[str]) -> dict[str, float]:
-    sums = dict(frame.group_by(col).agg(pl.col("liability").sum()).iter_rows())
-    return {k: float(sums.get(k, 0.0)) for k in keys}
+    """Sum of ``liability`` by the values of ``col``, added in the frame's (fixed) row order."""
+    out = {k: 0.0 for k in keys}
+    for key, value in zip(frame[col].to_list(), frame["liability"].to_list(), strict=True):
+        if key in out:
+            out[key] += value
+    return out
 
 
 def _assumptions_summary(basis: Any) -> dict[str, Any]:
@@ -218,8 +234,9 @@ class RunAccumulator:
                         if sc.kind != "discount_rate"}
         self.member_sink = member_sink
         self.cash: np.ndarray | None = None
-        self.cells: list[pl.DataFrame] = []
-        self.deaths: list[pl.DataFrame] = []
+        self.cell_sums: dict[tuple[str, str], np.ndarray] = {}
+        self.death_lives = np.zeros(N_CELLS)
+        self.death_amounts = np.zeros(N_CELLS)
         self.members: list[pl.DataFrame] = []
         self.scenario_totals = {name: 0.0 for name in self.valuers}
         self.total = 0.0
@@ -262,12 +279,14 @@ class RunAccumulator:
                 self.scenario_totals[sc.name] += float(liability[~active].sum() + part)
             else:
                 self.scenario_totals[sc.name] += float(self.valuers[sc.name].value(records).liability.sum())
-        self.cells.append(_liability_cells(records, proj))
-        self.deaths.append(
-            pl.DataFrame({"status": records["status"], "sex": records["sex"], "lives": proj.q_next,
-                          "amounts": proj.q_next * proj.amount_now})
-            .group_by(["status", "sex"]).agg(pl.col("lives").sum(), pl.col("amounts").sum())
-        )
+        code = _group_code(records)
+        parts = [((tr, "member_pension"), proj.own[:, j]) for j, tr in enumerate(self.tranches)]
+        parts += [((tr, "spouse_pension"), proj.spouse[:, j]) for j, tr in enumerate(self.tranches)]
+        parts.append((("all", "lump_sum"), proj.lump))
+        for key, values in parts:
+            self.cell_sums[key] = self.cell_sums.get(key, np.zeros(N_CELLS)) + _cell_sums(code, values)
+        self.death_lives += _cell_sums(code, proj.q_next)
+        self.death_amounts += _cell_sums(code, proj.q_next * proj.amount_now)
         ages = np.asarray(age_at(records["date_of_birth"].to_numpy().astype("datetime64[D]"),
                                  np.datetime64(basis.valuation_date, "D"), basis.age_convention), dtype=float)
         members = pl.DataFrame({
@@ -317,11 +336,11 @@ class RunAccumulator:
             "present_value": 0.0, "macaulay": 0.0, "modified": 0.0, "effective": 0.0,
             "single_equivalent_discount_rate": float("nan")}
         cashflows = _yearly(cash, curve)
-        cells = _sum_cells(self.cells)
+        cells = _cells_frame(self.cell_sums)
         le = life_expectancies(basis)
-        deaths = (pl.concat(self.deaths).group_by(["status", "sex"]).agg(pl.col("lives").sum(), pl.col("amounts").sum())
-                  .sort(["status", "sex"]) if self.deaths else
-                  pl.DataFrame(schema={"status": pl.Utf8, "sex": pl.Utf8, "lives": pl.Float64, "amounts": pl.Float64}))
+        deaths = pl.DataFrame({"status": [STATUSES[c // 2] for c in range(N_CELLS)],
+                               "sex": [SEXES[c % 2] for c in range(N_CELLS)],
+                               "lives": self.death_lives, "amounts": self.death_amounts})
         members = pl.concat(self.members) if self.members else pl.DataFrame()
         by_status_counts = {
             r["status"]: {"read": int(r["read"]), "valued": int(r["valued"]), "excluded": int(r["excluded"])}
@@ -364,16 +383,6 @@ class RunAccumulator:
             summary=summary, liabilities=cells, cashflows=cashflows, members=members, sensitivities=sens,
             life_expectancy=le, expected_deaths=deaths, exceptions=exceptions, basis=basis,
         )
-
-
-def _sum_cells(frames: list[pl.DataFrame]) -> pl.DataFrame:
-    if not frames:
-        return pl.DataFrame(schema={"status": pl.Utf8, "sex": pl.Utf8, "tranche": pl.Utf8, "benefit": pl.Utf8,
-                                    "liability": pl.Float64})
-    cells = pl.concat(frames).group_by(["status", "sex", "tranche", "benefit"]).agg(pl.col("liability").sum())
-    order = {s: i for i, s in enumerate(STATUSES)}
-    return cells.with_columns(pl.col("status").replace_strict(order, default=9).alias("_o")).sort(
-        ["_o", "sex", "tranche", "benefit"]).drop("_o")
 
 
 def input_hashes(paths: Iterable[str | Path | None]) -> dict[str, str]:

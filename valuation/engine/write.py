@@ -6,6 +6,7 @@ from __future__ import annotations
 
 import os
 import shutil
+import signal
 import tempfile
 from collections.abc import Callable
 from contextlib import contextmanager
@@ -28,25 +29,33 @@ def atomic_folder(target: str | Path, *, overwrite: bool = True) -> Iterator[Pat
     """Yield a temporary folder that replaces ``target`` when the block ends without an exception."""
     target = Path(target)
     target.parent.mkdir(parents=True, exist_ok=True)
+    # Hold SIGINT/SIGTERM while the folder is created, so a signal cannot land between its creation and
+    # the cleanup handler below; it is delivered as soon as the handler is in place.
+    held = {signal.SIGINT, signal.SIGTERM}
+    previous = signal.pthread_sigmask(signal.SIG_BLOCK, held)
     tmp = Path(tempfile.mkdtemp(prefix=f".{target.name}.partial-", dir=target.parent))
-    umask = os.umask(0)
-    os.umask(umask)
-    os.chmod(tmp, 0o777 & ~umask)
     try:
+        signal.pthread_sigmask(signal.SIG_SETMASK, previous)
+        umask = os.umask(0)
+        os.umask(umask)
+        os.chmod(tmp, 0o777 & ~umask)
         yield tmp
     except BaseException:
         shutil.rmtree(tmp, ignore_errors=True)
         raise
-    if target.exists():
-        if not overwrite:
-            shutil.rmtree(tmp, ignore_errors=True)
-            raise FileExistsError(f"{target} already exists")
-        old = target.with_name(f".{target.name}.old-{tmp.name.rsplit('-', 1)[-1]}")
-        target.rename(old)
+    old = target.with_name(f".{target.name}.old-{tmp.name.rsplit('-', 1)[-1]}")
+    try:
+        if target.exists():
+            if not overwrite:
+                raise FileExistsError(f"{target} already exists")
+            target.rename(old)
         tmp.rename(target)
-        shutil.rmtree(old, ignore_errors=True)
-    else:
-        tmp.rename(target)
+    except BaseException:
+        shutil.rmtree(tmp, ignore_errors=True)
+        if old.exists() and not target.exists():
+            old.rename(target)  # put the previous run back
+        raise
+    shutil.rmtree(old, ignore_errors=True)
 
 
 def write_tables(result: ValuationResult, folder: Path) -> None:
