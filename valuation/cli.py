@@ -92,14 +92,46 @@ def cmd_run(args: argparse.Namespace) -> int:
     basis = load_basis(args.basis)
     data = read_members(args.members, basis)
     _say(args, data.reconciliation_text())
+    experience = None
+    extra_inputs: list[str] = []
+    if args.deaths:
+        if not (args.start_members and args.period_start and args.period_end):
+            raise ValuationError("--deaths needs --start-members, --period-start and --period-end",
+                                 fix="give the membership at the start of the period and the period's dates")
+        experience = _experience(args, basis)
+        extra_inputs = [p for p in (args.start_members, args.deaths, args.exits) if p]
     result = value_members(data, basis, sensitivities=not args.no_sensitivities, chunk_size=args.chunk_size,
-                           progress=progress)
+                           progress=progress, input_files=extra_inputs)
     progress.close()
     out = Path(args.out) if args.out else Path("outputs") / Path(args.members).stem
-    write_run(result, out, extra=[] if args.no_reports else _report_writers())
+    writers = [] if args.no_reports else _report_writers(experience)
+    if experience is not None:
+        writers.append(lambda _res, folder: experience.write(folder))
+    write_run(result, out, extra=writers)
     _say(args, _headline(result))
+    if experience is not None:
+        _say(args, _experience_line(experience))
     _say(args, f"written to {out}/")
     return EXIT_OK
+
+
+def _experience_line(res: Any) -> str:
+    o = res.table.filter(res.table["dimension"] == "overall").row(0, named=True)
+    return (f"deaths: A/E by lives {100 * o['ae_lives']:.1f} % ({100 * o['ae_lives_lower']:.1f} % to "
+            f"{100 * o['ae_lives_upper']:.1f} %); by amounts {100 * o['ae_amounts']:.1f} % "
+            f"({100 * o['ae_amounts_lower']:.1f} % to {100 * o['ae_amounts_upper']:.1f} %)")
+
+
+def _experience(args: argparse.Namespace, basis: Any) -> Any:
+    from valuation.experience import ExperienceSettings, analyse_experience
+
+    settings = ExperienceSettings(
+        period_start=date.fromisoformat(args.period_start), period_end=date.fromisoformat(args.period_end),
+        exposure=args.exposure, confidence=args.confidence, overdispersion=args.overdispersion,
+        late_months=args.late_months, late_uplift=args.late_uplift,
+    )
+    return analyse_experience(args.start_members, args.deaths, basis, settings, exits_path=args.exits,
+                              valuation_members_path=args.members)
 
 
 def cmd_check(args: argparse.Namespace) -> int:
@@ -142,25 +174,29 @@ def cmd_batch(args: argparse.Namespace) -> int:
 
 
 def cmd_experience(args: argparse.Namespace) -> int:
+    from valuation.basis import load_basis
     from valuation.engine.write import atomic_folder
-    from valuation.experience import ExperienceSettings, analyse_experience
 
-    settings = ExperienceSettings(
-        period_start=date.fromisoformat(args.start), period_end=date.fromisoformat(args.end),
-        exposure=args.exposure, confidence=args.confidence, overdispersion=args.overdispersion,
-        late_months=args.late_months, late_uplift=args.late_uplift,
-    )
-    res = analyse_experience(args.members, args.deaths, args.basis, settings, exits_path=args.exits,
-                             valuation_members_path=args.valuation_members)
+    basis = load_basis(args.basis)
+    args.start_members, args.period_start, args.period_end = args.members, args.start, args.end
+    args.members = args.valuation_members
+    res = _experience(args, basis)
     out = Path(args.out) if args.out else Path("outputs") / "experience"
     with atomic_folder(out) as tmp:
         res.write(tmp)
-    overall = res.table.filter(res.table["dimension"] == "overall").row(0, named=True)
-    _say(args, f"A/E lives {100 * overall['ae_lives']:.1f} % "
-               f"({100 * overall['ae_lives_lower']:.1f} % to {100 * overall['ae_lives_upper']:.1f} %); "
-               f"A/E amounts {100 * overall['ae_amounts']:.1f} %")
+    _say(args, _experience_line(res))
     _say(args, f"written to {out}/")
     return EXIT_OK
+
+
+def _experience_options(sp: argparse.ArgumentParser) -> None:
+    sp.add_argument("--exits", help="other exits: member_id, exit_date, reason")
+    sp.add_argument("--exposure", choices=["central", "initial"], default="central",
+                    help="central exposed-to-risk with mu (default) or initial exposure with q")
+    sp.add_argument("--confidence", type=float, default=0.95, help="confidence level of the intervals")
+    sp.add_argument("--overdispersion", type=float, default=1.0, help="variance factor for amounts")
+    sp.add_argument("--late-months", type=int, default=0, help="final months with late-reported deaths")
+    sp.add_argument("--late-uplift", type=float, default=0.0, help="uplift to deaths in those months, e.g. 0.05")
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -181,6 +217,9 @@ def build_parser() -> argparse.ArgumentParser:
         examples:
           valuation run assumptions/demo_basis.toml member_data_demo/members.csv --out outputs/demo
           valuation run basis.toml members.parquet --no-sensitivities --quiet
+          valuation run assumptions/demo_basis.toml member_data_demo/members.csv --out outputs/demo \\
+              --deaths member_data_demo/deaths.csv --start-members member_data_demo/members_start.csv \\
+              --period-start 2022-03-31 --period-end 2025-03-31 --exits member_data_demo/exits.csv
         """) + EPILOG_EXIT)
     r.add_argument("basis", help="assumptions basis (TOML)")
     r.add_argument("members", help="member data file (CSV, XLSX or Parquet)")
@@ -188,6 +227,12 @@ def build_parser() -> argparse.ArgumentParser:
     r.add_argument("--no-sensitivities", action="store_true", help="skip the sensitivity re-valuations")
     r.add_argument("--no-reports", action="store_true", help="skip the workbook and HTML summary")
     r.add_argument("--chunk-size", type=int, default=200_000, help="members valued at a time (memory bound)")
+    g = r.add_argument_group("experience analysis (optional): deaths since the last valuation, in the reports")
+    g.add_argument("--deaths", help="deaths file: member_id, date_of_death[, pension_at_death]")
+    g.add_argument("--start-members", help="member data at the start of the period")
+    g.add_argument("--period-start", help="period start (ISO date)")
+    g.add_argument("--period-end", help="period end (ISO date), usually the valuation date")
+    _experience_options(g)  # type: ignore[arg-type]
     common(r)
     r.set_defaults(func=cmd_run)
 
@@ -229,13 +274,8 @@ def build_parser() -> argparse.ArgumentParser:
     e.add_argument("deaths", help="deaths file: member_id, date_of_death[, pension_at_death]")
     e.add_argument("--start", required=True, help="period start (ISO date)")
     e.add_argument("--end", required=True, help="period end (ISO date)")
-    e.add_argument("--exits", help="other exits: member_id, exit_date, reason")
     e.add_argument("--valuation-members", help="member data at the valuation date, to re-value at the implied table")
-    e.add_argument("--exposure", choices=["central", "initial"], default="central")
-    e.add_argument("--confidence", type=float, default=0.95)
-    e.add_argument("--overdispersion", type=float, default=1.0, help="variance factor for amounts")
-    e.add_argument("--late-months", type=int, default=0, help="final months with late-reported deaths")
-    e.add_argument("--late-uplift", type=float, default=0.0, help="uplift to deaths in those months, e.g. 0.05")
+    _experience_options(e)
     e.add_argument("--out", help="folder to write (default: outputs/experience)")
     common(e)
     e.set_defaults(func=cmd_experience)
