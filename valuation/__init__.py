@@ -1,6 +1,38 @@
 """valuation: batch valuation of defined-benefit pension schemes.
 
-The public entry points are re-exported here once they exist; see DEVELOPERS.md for the architecture.
+One call for notebook users::
+
+    from valuation import value_scheme
+    res = value_scheme("member_data_demo/members.csv", "assumptions/demo_basis.toml")
+
+See README.md for the commands and DEVELOPERS.md for the architecture.
 """
 
+from __future__ import annotations
+
+from typing import Any
+
 __version__ = "0.1.0"
+
+__all__ = ["__version__", "value_scheme", "value_members", "load_basis", "read_members", "write_run"]
+
+
+def __getattr__(name: str) -> Any:
+    # imported on first use, so `import valuation` stays light and free of import cycles
+    if name in ("value_scheme", "value_members"):
+        from valuation.engine import run
+
+        return getattr(run, name)
+    if name == "load_basis":
+        from valuation.basis import load_basis
+
+        return load_basis
+    if name == "read_members":
+        from valuation.members import read_members
+
+        return read_members
+    if name == "write_run":
+        from valuation.engine.write import write_run
+
+        return write_run
+    raise AttributeError(f"module 'valuation' has no attribute {name!r}")
