@@ -14,7 +14,8 @@ from typing import Any
 
 __version__ = "0.1.0"
 
-__all__ = ["__version__", "value_scheme", "value_members", "load_basis", "read_members", "write_run"]
+__all__ = ["__version__", "value_scheme", "value_members", "value_file_streaming", "load_basis",
+           "read_members", "write_run"]
 
 
 def __getattr__(name: str) -> Any:
@@ -23,6 +24,10 @@ def __getattr__(name: str) -> Any:
         from valuation.engine import run
 
         return getattr(run, name)
+    if name == "value_file_streaming":
+        from valuation.engine.stream import value_file_streaming
+
+        return value_file_streaming
     if name == "load_basis":
         from valuation.basis import load_basis
 

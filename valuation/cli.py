@@ -90,6 +90,8 @@ def cmd_run(args: argparse.Namespace) -> int:
 
     progress = _Progress(args.quiet)
     basis = load_basis(args.basis)
+    if args.stream:
+        return _run_streaming(args, basis, progress)
     data = read_members(args.members, basis)
     _say(args, data.reconciliation_text())
     experience = None
@@ -111,6 +113,40 @@ def cmd_run(args: argparse.Namespace) -> int:
     _say(args, _headline(result))
     if experience is not None:
         _say(args, _experience_line(experience))
+    _say(args, f"written to {out}/")
+    return EXIT_OK
+
+
+def _run_streaming(args: argparse.Namespace, basis: Any, progress: _Progress) -> int:
+    """Very large files: read, validate and value in chunks; per-member rows go straight to disk."""
+    import os
+    import shutil
+
+    from valuation.engine.stream import value_file_streaming
+    from valuation.engine.write import write_run
+
+    if args.deaths:
+        raise ValuationError("--stream does not combine with the experience analysis",
+                             fix="run `valuation experience` separately")
+    out = Path(args.out) if args.out else Path("outputs") / Path(args.members).stem
+    out.parent.mkdir(parents=True, exist_ok=True)
+    members_tmp = out.parent / f".{out.name}.members-{os.getpid()}.parquet"
+    try:
+        result = value_file_streaming(args.members, basis, chunk_rows=args.chunk_size,
+                                      member_results_path=members_tmp,
+                                      sensitivities=not args.no_sensitivities, progress=progress)
+        progress.close()
+        _say(args, f"records read {result.summary['records']['read']:,} = valued "
+                   f"{result.summary['records']['valued']:,} + excluded {result.summary['records']['excluded']:,}")
+
+        def move_members(_res: Any, folder: Path) -> None:
+            shutil.move(str(members_tmp), folder / "members.parquet")
+
+        writers = ([] if args.no_reports else _report_writers()) + [move_members]
+        write_run(result, out, extra=writers)
+    finally:
+        members_tmp.unlink(missing_ok=True)
+    _say(args, _headline(result))
     _say(args, f"written to {out}/")
     return EXIT_OK
 
@@ -227,6 +263,8 @@ def build_parser() -> argparse.ArgumentParser:
     r.add_argument("--no-sensitivities", action="store_true", help="skip the sensitivity re-valuations")
     r.add_argument("--no-reports", action="store_true", help="skip the workbook and HTML summary")
     r.add_argument("--chunk-size", type=int, default=200_000, help="members valued at a time (memory bound)")
+    r.add_argument("--stream", action="store_true",
+                   help="read, validate and value the file in chunks (flat memory for very large schemes)")
     g = r.add_argument_group("experience analysis (optional): deaths since the last valuation, in the reports")
     g.add_argument("--deaths", help="deaths file: member_id, date_of_death[, pension_at_death]")
     g.add_argument("--start-members", help="member data at the start of the period")

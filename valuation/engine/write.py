@@ -68,9 +68,10 @@ def write_tables(result: ValuationResult, folder: Path) -> None:
     result.sensitivities.write_csv(folder / "sensitivities.csv")
     result.life_expectancy.write_csv(folder / "life_expectancy.csv")
     result.expected_deaths.write_csv(folder / "expected_deaths.csv")
-    result.members.write_parquet(folder / "members.parquet")
-    if result.members.height <= SMALL_SCHEME:
-        result.members.write_csv(folder / "members.csv")
+    if result.members.width:  # streaming runs write their per-member rows elsewhere
+        result.members.write_parquet(folder / "members.parquet")
+        if result.members.height <= SMALL_SCHEME:
+            result.members.write_csv(folder / "members.csv")
 
 
 def write_run(result: ValuationResult, out_dir: str | Path, *, extra: list[ExtraWriter] | None = None) -> Path:
