@@ -29,8 +29,14 @@ def _l_at(lx: np.ndarray, q: np.ndarray, r: int, age: float, udd: bool) -> float
     s = y - j
     if s > 1.0:
         s = 1.0
-    l_j = lx[r, j]
-    q_j = q[r, j]
+    return _l_js(lx[r], q[r], j, s, udd)
+
+
+@njit(cache=True, inline="always")
+def _l_js(lxr: np.ndarray, qr: np.ndarray, j: int, s: float, udd: bool) -> float:
+    """l at age j + s on one row: l_j (1 - s q_j) for UDD, l_j p_j^s for constant force."""
+    l_j = lxr[j]
+    q_j = qr[j]
     if udd:
         return l_j * (1.0 - s * q_j)
     p_j = 1.0 - q_j
@@ -73,6 +79,7 @@ def leg_kernel(
     """
     K, J = unit_pv.shape
     B = cashflow.shape[0]
+    inv_freq = 1.0 / frequency
     for b in prange(B):
         lo = (K * b) // B
         hi = (K * (b + 1)) // B
@@ -91,16 +98,40 @@ def leg_kernel(
                 coef[j] = at_start[k, j] / increase[j, s_k]
             inv_lx0 = 1.0 / lx0
             inv_ly0 = 1.0 / ly0
-            xk = x0[k]
-            yk = y0[k]
             gk = guar[k]
+            lxr = lx[rx]
+            qxr = q[rx]
+            lyr = lx[ry]
+            qyr = q[ry]
+            last = q.shape[1] - 1
+            # ages advance by step/12 a payment: carry their integer and fractional parts along
+            ax = x0[k] + first[k] / 12.0
+            jx = min(int(math.floor(ax)), last)
+            sx = min(ax - jx, 1.0)
+            ay = y0[k] + first[k] / 12.0
+            jy = min(int(math.floor(ay)), last) if reversion else 0
+            sy = min(ay - jy, 1.0) if reversion else 0.0
+            ds = step / 12.0
             for tau in range(first[k], end[k], step):
-                t = tau / 12.0
-                px = _l_at(lx, q, rx, xk + t, udd) * inv_lx0
+                if tau > first[k]:
+                    sx += ds
+                    while sx >= 1.0 and jx < last:
+                        sx -= 1.0
+                        jx += 1
+                    if sx > 1.0:
+                        sx = 1.0
+                    if reversion:
+                        sy += ds
+                        while sy >= 1.0 and jy < last:
+                            sy -= 1.0
+                            jy += 1
+                        if sy > 1.0:
+                            sy = 1.0
+                px = _l_js(lxr, qxr, jx, sx, udd) * inv_lx0
                 if reversion:
                     if tau < gk:
                         continue
-                    py = _l_at(lx, q, ry, yk + t, udd) * inv_ly0
+                    py = _l_js(lyr, qyr, jy, sy, udd) * inv_ly0
                     if py == 0.0:
                         break
                     surv = py * (1.0 - px)
@@ -113,7 +144,7 @@ def leg_kernel(
                         surv = px
                 if surv == 0.0:
                     continue
-                surv /= frequency
+                surv *= inv_freq
                 disc = v[tau]
                 pre = reversion and use_growth and tau < s_k
                 flow = 0.0

@@ -294,9 +294,8 @@ class Valuer:
         dis_pv = np.zeros(N)
         dis_cf = np.zeros(ctx.months)
         if mult > 0 and n_int:
-            la = self._l(rows_x[:, None], x0[:, None] + yrs[None, :])
-            lb = self._l(rows_x[:, None], x0[:, None] + yrs[None, :] + 1.0)
-            deaths = (la - lb) / lx0[:, None] * stay_before * in_window
+            lk = self._l(rows_x[:, None], x0[:, None] + np.arange(n_int + 1)[None, :])
+            deaths = (lk[:, :-1] - lk[:, 1:]) / lx0[:, None] * stay_before * in_window
             amount = mult * salary[:, None] * (1.0 + g) ** mid[None, :] * deaths
             mid_m = np.clip(np.rint(mid * 12).astype(np.int64), 0, ctx.months - 1)
             dis_pv = (amount * ctx.v[mid_m][None, :]).sum(axis=1)
