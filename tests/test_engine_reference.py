@@ -213,3 +213,45 @@ def test_discount_sensitivity_from_cash_flows_equals_full_revaluation(tmp_path):
     assert discounted_total(cash, basis.discount_curve()) == pytest.approx(base.liability.sum(), rel=1e-10)
     shifted = project_records(recs, basis, Scenario(discount_shift=0.005)).liability.sum()
     assert discounted_total(cash, basis.discount_curve().shifted(0.005)) == pytest.approx(shifted, rel=1e-10)
+
+
+def test_service_cost_is_one_year_of_accrual_including_commutation(tmp_path):
+    """Projected unit credit (IAS 19 paras 67-69): with a benefit linear in service, next year's unit is
+    the obligation divided by service, commutation cash included (the cash is a share of the pension)."""
+    from tests.engine_helpers import members as mk
+    from valuation.engine.run import RunAccumulator
+
+    extra = ('[salary]\ngrowth = 0.03\n[benefits]\naccrual_rate = "1/60"\nretirement_age = 65\n'
+             '[commutation]\nproportion = 0.2\nfactor = 18.0\n')
+    basis = write_basis(tmp_path, sult_toml(extra=extra))
+    recs = mk([{"status": "active", "sex": "M", "date_of_birth": dob_for_age(VD, 45), "pension": 0.0,
+                "salary": 40000.0, "service_years": 8.0}])
+    acc = RunAccumulator(basis, sensitivities=False)
+    acc.add(recs)
+    assert acc.service_cost == pytest.approx(acc.active_total / 8.0, rel=1e-12)
+
+
+def test_death_in_service_lump_sum_attributed_to_service(tmp_path):
+    """A lump sum of k x salary on death in service, attributed straight-line from joining to the date of
+    death (IAS 19 para 70): PV = sum_i (l_{x+i} - l_{x+i+1})/l_x k S (1+g)^(i+1/2) v^(i+1/2) s/(s+i+1/2),
+    with Makeham's closed-form survival [DHW eq. 2.29]; one more year of service earns 1/(s+i+1/2)."""
+    from tests.engine_helpers import members as mk
+    from valuation.engine.run import RunAccumulator
+
+    extra = ('[salary]\ngrowth = 0.02\n[benefits]\naccrual_rate = "1/60"\nretirement_age = 60\n'
+             'death_in_service_lump_sum = 3.0\n')
+    basis = write_basis(tmp_path, sult_toml(extra=extra))
+    recs = mk([{"status": "active", "sex": "F", "date_of_birth": dob_for_age(VD, 50), "pension": 0.0,
+                "salary": 30000.0, "service_years": 5.0}])
+    proj = project_records(recs, basis)
+    i = np.arange(10)
+    mid = i + 0.5
+    p = SULT_LAW.tpx(50.0, np.arange(11).astype(float))
+    deaths = p[:-1] - p[1:]
+    full = 3.0 * 30000.0 * 1.02**mid * deaths * 1.05**-mid
+    assert proj.lump[0] == pytest.approx((full * 5.0 / (5.0 + mid)).sum(), rel=1e-9)
+    assert proj.dis_next_unit[0] == pytest.approx((full / (5.0 + mid)).sum(), rel=1e-9)
+    acc = RunAccumulator(basis, sensitivities=False)
+    acc.add(recs)
+    pension_part = proj.own.sum() + proj.spouse.sum()
+    assert acc.service_cost == pytest.approx(pension_part / 5.0 + proj.dis_next_unit[0], rel=1e-12)

@@ -46,6 +46,8 @@ class Projection:
     own: NDArray[np.float64]  # (N, J) PV of the member's own pension by tranche
     spouse: NDArray[np.float64]  # (N, J) PV of the spouse's pension by tranche
     lump: NDArray[np.float64]  # (N,) PV of lump sums (commutation cash, death-in-service)
+    lump_commutation: NDArray[np.float64]  # (N,) PV of commutation cash (part of ``lump``)
+    dis_next_unit: NDArray[np.float64]  # (N,) PV of one more year's attribution of the death-in-service sum
     annuity_factor: NDArray[np.float64]  # (N,) PV of own pension per 1 p.a. at its start
     q_next: NDArray[np.float64]  # (N,) probability of death within a year
     amount_now: NDArray[np.float64]  # (N,) pension in payment or accrued today [currency p.a.]
@@ -120,6 +122,8 @@ class Valuer:
         own = np.zeros((n, J))
         spouse = np.zeros((n, J))
         lump = np.zeros(n)
+        comm = np.zeros(n)
+        dis_unit = np.zeros(n)
         factor = np.zeros(n)
         q_next = np.zeros(n)
         amount_now = np.zeros(n)
@@ -130,10 +134,11 @@ class Valuer:
             if len(sel) == 0:
                 continue
             part = records[sel]
-            o, s, lp, f, q, a, cf = self._value_status(st, part)
+            o, s, lp, lc, du, f, q, a, cf = self._value_status(st, part)
             own[sel], spouse[sel], lump[sel], factor[sel], q_next[sel], amount_now[sel] = o, s, lp, f, q, a
+            comm[sel], dis_unit[sel] = lc, du
             cash[si] = cf
-        return Projection(own, spouse, lump, factor, q_next, amount_now, cash, self.tranches)
+        return Projection(own, spouse, lump, comm, dis_unit, factor, q_next, amount_now, cash, self.tranches)
 
     def _value_status(self, status: str, df: pl.DataFrame) -> tuple:
         basis, ctx = self.basis, self.ctx
@@ -145,6 +150,8 @@ class Valuer:
         base = np.column_stack([df[f"pension_{t}"].fill_null(0.0).to_numpy().astype(float) for t in self.tranches])
         cash = np.zeros(ctx.months)
         lump = np.zeros(N)
+        lump_comm = np.zeros(N)
+        dis_unit = np.zeros(N)
 
         # expected deaths in the next year
         lx0 = self._l(rows_x, x0)
@@ -176,7 +183,7 @@ class Valuer:
                 at_start_sp = self.revalue[:, start].T  # (N, J)
                 growth = self.revalue
             else:
-                base, at_start_sp, growth, dis_lump, dis_cf = self._active(df, x0, rows_x, lx0, start)
+                base, at_start_sp, growth, dis_lump, dis_cf, dis_unit = self._active(df, x0, rows_x, lx0, start)
                 lump += dis_lump
                 cash += dis_cf
             at_start = at_start_sp * keep
@@ -185,7 +192,8 @@ class Valuer:
                 pens_at_ret = (base * at_start_sp).sum(axis=1)
                 surv = self._l(rows_x, x0 + start / 12.0) / lx0
                 amount = comm.proportion * pens_at_ret * comm.factor * surv
-                lump += amount * ctx.v[start]
+                lump_comm = amount * ctx.v[start]
+                lump += lump_comm
                 cash += np.bincount(start, weights=amount, minlength=ctx.months)[: ctx.months]
 
         # own pension
@@ -236,7 +244,7 @@ class Valuer:
             )
             spouse = weight * res.unit_pv[inv]
             cash += res.cashflow
-        return own, spouse, lump, factor, q_next, base.sum(axis=1), cash
+        return own, spouse, lump, lump_comm, dis_unit, factor, q_next, base.sum(axis=1), cash
 
     def _active(self, df: pl.DataFrame, x0: NDArray, rows_x: NDArray, lx0: NDArray, start: NDArray) -> tuple:
         """Projected unit credit for actives.
@@ -289,16 +297,24 @@ class Valuer:
             at_ret[:, dj] = factor
             growth = np.vstack([ctx.salary_index()] * J)
 
-        # lump sum on death in service: multiple x salary projected to mid-year of death [DHW 10.8]
+        # Lump sum on death in service: multiple x salary projected to the mid-year of death [DHW 10.8].
+        # It does not grow with service, so it is attributed to service straight-line from joining to the
+        # date of death (IAS 19 para 70): the part earned to date is service / (service + t), and one more
+        # year of service earns 1 / (service + t) of it (the current service cost).
         mult = float(basis.death_in_service_lump_sum)
         dis_pv = np.zeros(N)
+        dis_unit = np.zeros(N)
         dis_cf = np.zeros(ctx.months)
         if mult > 0 and n_int:
             lk = self._l(rows_x[:, None], x0[:, None] + np.arange(n_int + 1)[None, :])
             deaths = (lk[:, :-1] - lk[:, 1:]) / lx0[:, None] * stay_before * in_window
-            amount = mult * salary[:, None] * (1.0 + g) ** mid[None, :] * deaths
+            full = mult * salary[:, None] * (1.0 + g) ** mid[None, :] * deaths
+            to_death = service[:, None] + mid[None, :]
+            amount = full * service[:, None] / to_death
             mid_m = np.clip(np.rint(mid * 12).astype(np.int64), 0, ctx.months - 1)
-            dis_pv = (amount * ctx.v[mid_m][None, :]).sum(axis=1)
+            v_mid = ctx.v[mid_m][None, :]
+            dis_pv = (amount * v_mid).sum(axis=1)
+            dis_unit = (full / to_death * v_mid).sum(axis=1)
             dis_cf = np.bincount(np.broadcast_to(mid_m, amount.shape).ravel(), weights=amount.ravel(),
                                  minlength=ctx.months)[: ctx.months]
-        return base, at_ret, growth, dis_pv, dis_cf
+        return base, at_ret, growth, dis_pv, dis_cf, dis_unit

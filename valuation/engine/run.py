@@ -64,6 +64,8 @@ def project_records(
         own=np.vstack([p.own for p in parts]),
         spouse=np.vstack([p.spouse for p in parts]),
         lump=np.concatenate([p.lump for p in parts]),
+        lump_commutation=np.concatenate([p.lump_commutation for p in parts]),
+        dis_next_unit=np.concatenate([p.dis_next_unit for p in parts]),
         annuity_factor=np.concatenate([p.annuity_factor for p in parts]),
         q_next=np.concatenate([p.q_next for p in parts]),
         amount_now=np.concatenate([p.amount_now for p in parts]),
@@ -260,7 +262,10 @@ class RunAccumulator:
             act = records.filter(pl.Series(active))
             self.active_total += float(liability[active].sum())
             self.abo += float(self.no_growth.value(act).liability.sum())
-            pension_benefit = (proj.own.sum(axis=1) + proj.spouse.sum(axis=1))[active]
+            # current service cost: the value of the benefits the coming year of service earns. Pensions
+            # (and the cash commuted from them) grow with service or with the accrued pension; the
+            # death-in-service lump sum is attributed straight-line to the date of death (project.py).
+            pension_benefit = (proj.own.sum(axis=1) + proj.spouse.sum(axis=1) + proj.lump_commutation)[active]
             if basis.benefit_design == "career_average":
                 accrued = proj.amount_now[active]
                 next_unit = float(basis.accrual_rate) * act["salary"].to_numpy().astype(float) * (
@@ -269,7 +274,7 @@ class RunAccumulator:
                 accrued = act["service_years"].to_numpy().astype(float)
                 next_unit = np.ones(act.height)
             per_unit = np.divide(pension_benefit, accrued, out=np.zeros(act.height), where=accrued > 0)
-            self.service_cost += float((per_unit * next_unit).sum())
+            self.service_cost += float((per_unit * next_unit + proj.dis_next_unit[active]).sum())
         for sc in self.scenarios:
             if sc.name not in self.valuers:
                 continue
