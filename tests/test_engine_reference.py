@@ -242,7 +242,7 @@ def test_death_in_service_lump_sum_attributed_to_service(tmp_path):
              'death_in_service_lump_sum = 3.0\n')
     basis = write_basis(tmp_path, sult_toml(extra=extra))
     recs = mk([{"status": "active", "sex": "F", "date_of_birth": dob_for_age(VD, 50), "pension": 0.0,
-                "salary": 30000.0, "service_years": 5.0}])
+                "salary": 30000.0, "service_years": 5.0, "retirement_age": 60.0}])
     proj = project_records(recs, basis)
     i = np.arange(10)
     mid = i + 0.5
