@@ -4,7 +4,7 @@ Sources:
 - [DHW] Dickson, Hardy & Waters, *Actuarial Mathematics for Life Contingent Risks*, 2nd ed. (2013),
   Appendix D (Standard Ultimate Life Table, SULT) — published a-due values at 5 %, printed to 4 decimals;
   section 9.5 (reversionary annuity a_{x|y} = a_y - a_xy); eq. (2.29) Makeham survival.
-- METHODS.md "Mortality improvement": constant improvement q(x, y) = q(x, b)(1 - r)^(y - b).
+- the SOA Mortality Improvement Scale MP-2014 report (generational projection): constant improvement q(x, y) = q(x, b)(1 - r)^(y - b).
 """
 
 from __future__ import annotations
@@ -62,7 +62,7 @@ def test_known_spouse_reversion_equals_f_p_ay_minus_axy(tmp_path):
 
 
 def test_constant_improvement_against_hand_formula(tmp_path):
-    """Constant improvement r: q(x, y) = q(x, b)(1 - r)^(y - b) (METHODS.md), valued by hand.
+    """Constant improvement r: q(x, y) = q(x, b)(1 - r)^(y - b) (SOA MP-2014 report, generational form), valued by hand.
 
     A member aged 70 in 2025 uses q(70 + k, 2025 + k) in projection year k (the cohort convention).
     """
@@ -97,7 +97,7 @@ def test_monthly_annuity_close_to_woolhouse(tmp_path):
 def test_cashflows_at_single_equivalent_rate_reproduce_curve_pv(tmp_path):
     """Discounting the expected cash flows at the single equivalent rate gives the curve's PV.
 
-    Definition of the single equivalent discount rate: METHODS.md "Liabilities" (IAS 19 para 83 context).
+    Definition of the single equivalent discount rate: IAS 19 para 83 (a single rate in place of a curve).
     """
     curve = tmp_path / "curve.csv"
     curve.write_text("term,rate\n1,0.03\n5,0.035\n10,0.04\n20,0.045\n30,0.047\n", encoding="utf-8")
@@ -190,7 +190,7 @@ def test_active_salary_growth_without_withdrawal(tmp_path):
 
 def test_discount_sensitivity_from_cash_flows_equals_full_revaluation(tmp_path):
     """A discount-rate sensitivity taken as the PV of the (rate-independent) nominal cash flows on the
-    shifted curve equals a full re-valuation on the shifted basis (PV = sum v^t CF_t; METHODS.md
+    shifted curve equals a full re-valuation on the shifted basis (PV = sum v^t CF_t; [DHW] ch. 2
     "Liabilities")."""
     from tests.engine_helpers import members as mk
     from valuation.engine.run import discounted_total

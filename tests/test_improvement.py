@@ -1,6 +1,6 @@
 """Improvement scales and generational projection factors.
 
-Sources: METHODS.md "Mortality improvement" — generational projection
+Sources: the SOA Mortality Improvement Scale MP-2014 report (generational projection) — generational projection
 q(x, y) = q(x, b) prod_{s=b+1..y} (1 - i(x, s)) from the SOA *Mortality Improvement Scale MP-2014
 Report* (2014) and US 26 CFR 1.430(h)(3)-1; with a constant rate r it is exactly q(x, b)(1 - r)^(y - b).
 Convergence shapes are the formulas stated in improvement.py (linear; cubic taper (1-u)^2(1+2u)).
@@ -31,7 +31,7 @@ DATA = Path(__file__).parent / "data" / "mortality"
 
 
 def test_constant_improvement_is_power_of_one_minus_r():
-    """METHODS.md: constant r gives F = (1 - r)^(y - b) forwards, and its inverse backwards."""
+    """Constant improvement (SOA MP-2014 report, generational form): constant r gives F = (1 - r)^(y - b) forwards, and its inverse backwards."""
     s = ConstantImprovement(0.015)
     years = np.arange(1990, 2061)
     got = s.cumulative_factor(np.full(years.shape, 65), 2020, years)

@@ -1,6 +1,6 @@
 """MortalityBasis: percentage of table, age rating, generational improvement, cohort and period rows.
 
-Sources: METHODS.md "Mortality improvement" (q(x, y) = q(x, b) prod (1 - i(x, s)); constant r gives
+Sources: the SOA Mortality Improvement Scale MP-2014 report (generational projection) (q(x, y) = q(x, b) prod (1 - i(x, s)); constant r gives
 q(x, b)(1 - r)^(y - b) exactly; SOA MP-2014 report); percentage-of-table and age rating (set forward =
 heavier) are common practice; the force over a year of age under Makeham's law,
 -ln p_x = A + B c^x (c - 1) / ln c, is [DHW] Dickson, Hardy & Waters, AMLCR 2nd ed., eq. (2.29) with t = 1.
@@ -35,7 +35,7 @@ def test_percentage_and_age_rating():
 
 
 def test_constant_improvement_matches_closed_form():
-    """METHODS.md: q(x, y) = q(x, b)(1 - r)^(y - b), forwards and backwards from b = 2020."""
+    """Constant improvement (SOA MP-2014 report, generational form): q(x, y) = q(x, b)(1 - r)^(y - b), forwards and backwards from b = 2020."""
     b = MortalityBasis(DEMO_M, improvement=ConstantImprovement(0.015))
     ages = np.arange(20, 100)[:, None]
     years = np.arange(2000, 2071)[None, :]

@@ -75,7 +75,7 @@ def test_bundled_files_match_their_laws(tmp_path):
 
 @pytest.mark.parametrize("name", BUNDLED)
 def test_life_table_identities(name):
-    """[DHW] ch. 3 / [BGHJN] ch. 3 (METHODS.md "Life table"): d_x = l_x - l_{x+1}, q_x = d_x / l_x,
+    """[DHW] ch. 3 / [BGHJN] ch. 3 : d_x = l_x - l_{x+1}, q_x = d_x / l_x,
     tp_x = l_{x+t} / l_x = prod of p, u|tq_x = (l_{x+u} - l_{x+u+t}) / l_x = up_x * tq_{x+u}."""
     t = bundled_table(name)
     lx = t.lx(100_000.0)

@@ -62,7 +62,7 @@ def test_cashflows_and_exceptions_files(demo_run):
 
 def test_sensitivity_signs_and_durations(demo_run):
     """Rates up lower the liability, inflation/salary/longevity up raise it; 0.5 % p.a. on the discount
-    rate moves a typical obligation by several per cent (METHODS.md sanity check: 25 bp ~ 2-4 %)."""
+    rate moves a typical obligation by several per cent (common practice sanity check: 25 bp ~ 2-4 %)."""
     res, _ = demo_run
     by = {s["kind"] + ("+" if s["shift"] > 0 else "-"): s["change_pct"] for s in res.summary["sensitivities"]}
     assert by["discount_rate+"] < 0 < by["discount_rate-"]

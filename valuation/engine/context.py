@@ -69,7 +69,7 @@ def revaluation_index(
 
     References
     ----------
-    Common practice; see METHODS.md "Annuities" (revaluation in deferment).
+    Common practice (revaluation in deferment, compounded over the whole period).
     """
     t = np.arange(months) / 12.0
     if kind == "none":

@@ -97,7 +97,7 @@ def cashflow_measures(cash: np.ndarray, curve: Any) -> dict[str, float]:
     References
     ----------
     Macaulay duration sum t v^t CF_t / sum v^t CF_t; modified = Macaulay / (1 + i) at the single
-    equivalent rate i; effective = (PV(-h) - PV(+h)) / (2 h PV) [DHW 2013, section 14.4; METHODS.md].
+    equivalent rate i; effective = (PV(-h) - PV(+h)) / (2 h PV) [DHW 2013, section 14.4].
     """
     t = _month_times(len(cash))
     nz = cash != 0
@@ -195,7 +195,7 @@ def _assumptions_summary(basis: Any) -> dict[str, Any]:
 def life_expectancies(basis: Any) -> pl.DataFrame:
     """Cohort expectancy at 65 for members aged 65 and 45 now, and period expectancy at 65, by sex.
 
-    Uses the pensioner mortality of each sex (common practice for disclosures; METHODS.md).
+    Uses the pensioner mortality of each sex (common practice for disclosures).
     """
     year = basis.valuation_date.year
     rows = []

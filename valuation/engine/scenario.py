@@ -98,7 +98,7 @@ def period_expectancy_at(mb: MortalityBasis, year: int, at_age: float, fractiona
 
     References
     ----------
-    Dickson, Hardy & Waters (2013), section 2.6; period versus cohort: METHODS.md "Life table".
+    Dickson, Hardy & Waters (2013), section 2.6; period versus cohort: one calendar year's rates against the cohort's own.
     """
     q_rows = np.asarray(mb.period_q(year, max_age=120), dtype=float)[None, :]
     return float(complete_expectancy(q_rows, np.array([0]), np.array([float(at_age)]), fractional)[0])  # type: ignore[arg-type]
@@ -109,7 +109,7 @@ def life_expectancy_scenario(basis: Any, valuation_year: int, years: float, name
 
     A multiplier on q is solved for each sex (scipy's brentq) so that the cohort expectancy at 65 rises by
     exactly ``years``; every mortality table of that sex is then scaled by it. IAS 19 para 145 asks for the
-    effect of a reasonably possible change; +1 year at 65 is the usual presentation (METHODS.md).
+    effect of a reasonably possible change; +1 year at 65 is the usual presentation (common practice).
     """
     mults = []
     for sex in SEXES:

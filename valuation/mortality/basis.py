@@ -82,7 +82,7 @@ class MortalityBasis:
 
         References
         ----------
-        [MP2014] section 2; METHODS.md "Mortality improvement".
+        [MP2014] section 2; the SOA Mortality Improvement Scale MP-2014 report (generational projection).
         """
         a, y = np.broadcast_arrays(as_int_ages(ages), np.asarray(years, dtype=np.int64))
         rated = a + self.age_rating
@@ -112,7 +112,7 @@ class MortalityBasis:
 
         References
         ----------
-        [DHW] section 2.6 and METHODS.md "Life table": period rates use one calendar year's q.
+        [DHW] section 2.6 : period rates use one calendar year's q.
         """
         ages = np.arange(max_age + 1, dtype=np.int64)
         q = self.q(ages, np.full_like(ages, int(year)))

@@ -108,7 +108,7 @@ class ImprovementScale(ABC):
 
         References
         ----------
-        [MP2014] section 2; METHODS.md "Mortality improvement".
+        [MP2014] section 2; the SOA Mortality Improvement Scale MP-2014 report (generational projection).
         """
         a, b, y = np.broadcast_arrays(
             as_int_ages(ages), np.asarray(from_year, dtype=np.int64), np.asarray(years, dtype=np.int64)
@@ -143,7 +143,7 @@ class ConstantImprovement(ImprovementScale):
 
     References
     ----------
-    METHODS.md "Mortality improvement" (constant improvement); [MP2014] section 2.
+    the SOA Mortality Improvement Scale MP-2014 report (generational projection) (constant improvement); [MP2014] section 2.
     """
 
     def __init__(self, rate: float) -> None:
@@ -290,7 +290,7 @@ class ConvergenceScale(ImprovementScale):
 
     References
     ----------
-    METHODS.md "Mortality improvement": convergence from initial rates to a long-term rate over a chosen
+    the SOA Mortality Improvement Scale MP-2014 report (generational projection): convergence from initial rates to a long-term rate over a chosen
     period with a chosen shape is common practice for UK schemes; the cubic taper is our stated choice.
     """
 
