@@ -190,8 +190,7 @@ def test_active_salary_growth_without_withdrawal(tmp_path):
 
 def test_discount_sensitivity_from_cash_flows_equals_full_revaluation(tmp_path):
     """A discount-rate sensitivity taken as the PV of the (rate-independent) nominal cash flows on the
-    shifted curve equals a full re-valuation on the shifted basis (PV = sum v^t CF_t; [DHW] ch. 2
-    "Liabilities")."""
+    shifted curve equals a full re-valuation on the shifted basis (PV = sum v^t CF_t; [DHW] ch. 2)."""
     from tests.engine_helpers import members as mk
     from valuation.engine.run import discounted_total
     from valuation.engine.scenario import Scenario

@@ -77,8 +77,9 @@ def _headline(result: Any) -> str:
     for st, v in s["liability"]["by_status"].items():
         lines.append(f"  {st:<10} {v:>16,.0f}")
     d = s["duration"]
-    lines.append(f"duration (Macaulay) {d['macaulay']:.2f} years; single equivalent rate "
-                 f"{100 * (s['single_equivalent_discount_rate'] or 0):.3f} %")
+    sedr = s["single_equivalent_discount_rate"]
+    sedr_text = f"{100 * sedr:.3f} %" if sedr is not None and sedr == sedr else "n/a"
+    lines.append(f"duration (Macaulay) {d['macaulay']:.2f} years; single equivalent rate {sedr_text}")
     return "\n".join(lines)
 
 
@@ -190,6 +191,11 @@ def cmd_check(args: argparse.Namespace) -> int:
 def cmd_synth(args: argparse.Namespace) -> int:
     from valuation.members.synth import synth_scheme, write_scheme
 
+    if args.members < 1:
+        raise ValuationError("--members must be a whole number of at least 1", fix="e.g. --members 10000")
+    if Path(args.out).suffix.lower() not in (".csv", ".parquet", ".xlsx"):
+        raise ValuationError("the output file must end in .csv, .parquet or .xlsx", file=args.out)
+
     vd = date.fromisoformat(args.valuation_date)
     df = synth_scheme(args.members, seed=args.seed, valuation_date=vd)
     write_scheme(df, Path(args.out))
@@ -204,8 +210,9 @@ def cmd_batch(args: argparse.Namespace) -> int:
     index = run_batch(args.batch, out_root=Path(args.out) if args.out else None, progress=progress,
                       writers=_report_writers)
     progress.close()
-    with __import__("polars").Config(tbl_rows=100, tbl_cols=12):
-        _say(args, str(index))
+    from valuation.engine.batch import index_text
+
+    _say(args, index_text(index))
     return EXIT_OK
 
 
@@ -304,7 +311,7 @@ def build_parser() -> argparse.ArgumentParser:
                        epilog=textwrap.dedent("""\
         example:
           valuation experience assumptions/demo_basis.toml member_data_demo/members_start.csv \\
-              member_data_demo/deaths.csv --start 2023-12-31 --end 2026-12-31 \\
+              member_data_demo/deaths.csv --start 2022-03-31 --end 2025-03-31 \\
               --exits member_data_demo/exits.csv --valuation-members member_data_demo/members.csv
         """) + EPILOG_EXIT)
     e.add_argument("basis")

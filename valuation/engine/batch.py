@@ -19,6 +19,7 @@ A batch file lists runs; each writes its own folder, and the batch writes ``inde
 
 from __future__ import annotations
 
+import os
 import re
 import tomllib
 from collections.abc import Callable
@@ -28,7 +29,7 @@ from typing import Any
 import polars as pl
 from pydantic import BaseModel, ConfigDict, Field, ValidationError
 
-from valuation.errors import BasisError
+from valuation.errors import BasisError, ValuationError
 from valuation.manifest import dump_json
 
 _NAME = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_.-]*$")
@@ -60,15 +61,36 @@ def load_batch(path: str | Path) -> BatchFile:
     try:
         batch = BatchFile.model_validate(raw)
     except ValidationError as exc:
-        err = exc.errors()[0]
-        key = ".".join(str(p) for p in err["loc"])
-        raise BasisError(f"key '{key}': {err['msg']}", file=path,
-                         fix="each [[run]] needs name (letters, digits, _ . -), basis and members") from None
+        problems = []
+        for err in exc.errors():
+            loc = list(err["loc"])
+            where = f"[[run]] number {loc[1] + 1}" if len(loc) > 1 and loc[0] == "run" and isinstance(loc[1], int) else "top level"
+            key = str(loc[-1]) if loc else "?"
+            if err["type"] == "extra_forbidden":
+                allowed = "name, basis, members, sensitivities" if where != "top level" else "out, run"
+                problems.append(f"{where}: unknown key '{key}' (allowed: {allowed}; misspelt?)")
+            elif err["type"] == "missing":
+                problems.append(f"{where}: key '{key}' is missing")
+            else:
+                problems.append(f"{where}: key '{key}': {err['msg']}")
+        raise BasisError("; ".join(problems), file=path,
+                         fix="each [[run]] needs name (letters, digits, _ . -), basis and members; "
+                             "sensitivities = true/false is optional") from None
     names = [r.name for r in batch.run]
     dupes = sorted({n for n in names if names.count(n) > 1})
     if dupes:
         raise BasisError(f"run names must be unique; repeated: {', '.join(dupes)}", file=path)
     return batch
+
+
+def index_text(index: pl.DataFrame) -> str:
+    """One readable line a run: name, records, liability, duration."""
+    lines = []
+    for r in index.iter_rows(named=True):
+        lines.append(f"{r['run']}: {r['valuation_date']}  records {r['records_read']:,} = {r['records_valued']:,}"
+                     f" + {r['records_excluded']:,}  liability {r['liability']:,.0f}  duration "
+                     f"{r['duration_macaulay']:.2f} years  -> {r['folder']}")
+    return "\n".join(lines)
 
 
 def run_batch(
@@ -86,13 +108,26 @@ def run_batch(
 
     path = Path(path)
     batch = load_batch(path)
-    root = out_root if out_root is not None else (path.parent / batch.out)
+    root = out_root if out_root is not None else Path(os.path.normpath(path.parent / batch.out))
+    # check every run's inputs before valuing any, so a bad run stops the batch before it writes anything
+    bases = {}
+    for run in batch.run:
+        try:
+            bases[run.name] = load_basis(path.parent / run.basis)
+            members = path.parent / run.members
+            if not members.exists():
+                raise BasisError("member file not found", file=members)
+        except BasisError as exc:
+            raise BasisError(f"run '{run.name}': {exc}", file=path) from None
     rows: list[dict[str, Any]] = []
     for k, run in enumerate(batch.run):
         if progress:
             progress(f"run {run.name}", k, len(batch.run))
-        basis = load_basis(path.parent / run.basis)
-        data = read_members(path.parent / run.members, basis)
+        basis = bases[run.name]
+        try:
+            data = read_members(path.parent / run.members, basis)
+        except ValuationError as exc:
+            raise type(exc)(f"run '{run.name}': {exc}", file=path) from None
         result = value_members(data, basis, sensitivities=run.sensitivities)
         folder = write_run(result, root / run.name, extra=writers() if writers else None)
         s = result.summary
