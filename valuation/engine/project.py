@@ -59,6 +59,26 @@ class Projection:
         return self.own.sum(axis=1) + self.spouse.sum(axis=1) + self.lump
 
 
+#: Columns a caller may add so that ages are computed once for every scenario (see :func:`with_ages`).
+AGE_COLUMN = "_age_at_valuation"
+SPOUSE_AGE_COLUMN = "_spouse_age_at_valuation"
+
+
+def with_ages(records: pl.DataFrame, basis: Any) -> pl.DataFrame:
+    """Add the member's and the known spouse's age at the valuation date [years] under the basis's
+    age convention, so that every scenario's valuer reuses them."""
+    at = np.datetime64(basis.valuation_date, "D")
+    dob = _days(records["date_of_birth"].to_numpy())
+    x0 = np.asarray(age_at(dob, at, basis.age_convention), dtype=float)
+    cols = [pl.Series(AGE_COLUMN, x0)]
+    if "spouse_date_of_birth" in records.columns:
+        sp = _days(records["spouse_date_of_birth"].to_numpy())
+        known = ~np.isnat(sp)
+        y = np.asarray(age_at(np.where(known, sp, dob), at, basis.age_convention), dtype=float)
+        cols.append(pl.Series(SPOUSE_AGE_COLUMN, np.where(known, y, np.nan)))
+    return records.with_columns(cols)
+
+
 def _days(d: Any) -> NDArray[np.datetime64]:
     return np.asarray(d, dtype="datetime64[D]")
 
@@ -145,7 +165,10 @@ class Valuer:
         N, J = df.height, len(self.tranches)
         sex = df["sex"].to_numpy().astype(str)
         dob = _days(df["date_of_birth"].to_numpy())
-        x0 = np.asarray(age_at(dob, self.valuation_date, basis.age_convention), dtype=float)
+        if AGE_COLUMN in df.columns:  # computed once a chunk by the caller (see with_ages)
+            x0 = df[AGE_COLUMN].to_numpy()
+        else:
+            x0 = np.asarray(age_at(dob, self.valuation_date, basis.age_convention), dtype=float)
         rows_x = self._rows(status, sex, x0)
         base = np.column_stack([df[f"pension_{t}"].fill_null(0.0).to_numpy().astype(float) for t in self.tranches])
         cash = np.zeros(ctx.months)
@@ -221,7 +244,11 @@ class Valuer:
             assumed = np.where(sex == "M", x0 - diff, x0 + diff)
             if sp_dob is not None:
                 known = ~np.isnat(sp_dob)
-                y_known = np.asarray(age_at(np.where(known, sp_dob, dob), self.valuation_date, basis.age_convention), dtype=float)
+                if SPOUSE_AGE_COLUMN in df.columns:
+                    y_known = np.nan_to_num(df[SPOUSE_AGE_COLUMN].to_numpy().astype(float))
+                else:
+                    y_known = np.asarray(age_at(np.where(known, sp_dob, dob), self.valuation_date,
+                                                basis.age_convention), dtype=float)
                 y0 = np.where(known, y_known, assumed)
             else:
                 known = np.zeros(N, dtype=bool)
@@ -264,22 +291,27 @@ class Valuer:
         salary = df["salary"].fill_null(0.0).to_numpy().astype(float)
         service = df["service_years"].fill_null(0.0).to_numpy().astype(float)
         g = ctx.salary_growth
-        n_years = start / 12.0
-        n_int = int(np.ceil(n_years.max())) if N else 0
+        n_int = int(np.ceil(start.max() / 12.0)) if N else 0
         yrs = np.arange(n_int)
         mid = yrs + 0.5
-        in_window = mid[None, :] < n_years[:, None]  # (N, Y)
+        mid_m = np.clip(np.rint(mid * 12).astype(np.int64), 0, ctx.months - 1)
+        # everything that depends on age, survival row and retirement date alone is done once a key
+        first, inv = dedupe(rows_x, x0, start)
+        kx, kstart, krows = x0[first], start[first], rows_x[first]
+        K = len(first)
+        n_years = kstart / 12.0
+        in_window = mid[None, :] < n_years[:, None]  # (K, Y)
         if basis.withdrawal:
             steps = sorted(basis.withdrawal)
             ages_from = np.array([a for a, _ in steps])
             rates = np.array([r for _, r in steps])
-            pos = np.searchsorted(ages_from, x0[:, None] + yrs[None, :], side="right") - 1
+            pos = np.searchsorted(ages_from, kx[:, None] + yrs[None, :], side="right") - 1
             w = np.where(pos >= 0, rates[np.clip(pos, 0, None)], 0.0) * in_window
         else:
-            w = np.zeros((N, n_int))
+            w = np.zeros((K, n_int))
         stay = np.cumprod(1.0 - w, axis=1)  # in service at the end of year i (withdrawal only)
-        stay_before = np.column_stack([np.ones(N), stay[:, :-1]]) if n_int else np.ones((N, 0))
-        stay_to_ret = stay[:, -1] if n_int else np.ones(N)
+        stay_before = np.column_stack([np.ones(K), stay[:, :-1]]) if n_int else np.ones((K, 0))
+        stay_to_ret = stay[:, -1] if n_int else np.ones(K)
 
         if basis.benefit_design == "career_average":
             base = np.column_stack([df[f"pension_{t}"].fill_null(0.0).to_numpy().astype(float) for t in self.tranches])
@@ -289,12 +321,11 @@ class Valuer:
             base = np.zeros((N, J))
             base[:, dj] = float(basis.accrual_rate) * service * salary
             rev = self.revalue[dj]
-            mid_m = np.clip(np.rint(mid * 12).astype(np.int64), 0, ctx.months - 1)
-            rev_to_ret = rev[start][:, None] / rev[mid_m][None, :]
+            rev_to_ret = rev[kstart][:, None] / rev[mid_m][None, :]
             leavers = (stay_before * w * (1.0 + g) ** mid[None, :] * rev_to_ret).sum(axis=1)
             factor = stay_to_ret * (1.0 + g) ** n_years + leavers
             at_ret = np.zeros((N, J))
-            at_ret[:, dj] = factor
+            at_ret[:, dj] = factor[inv]
             growth = np.vstack([ctx.salary_index()] * J)
 
         # Lump sum on death in service: multiple x salary projected to the mid-year of death [DHW 10.8].
@@ -306,15 +337,14 @@ class Valuer:
         dis_unit = np.zeros(N)
         dis_cf = np.zeros(ctx.months)
         if mult > 0 and n_int:
-            lk = self._l(rows_x[:, None], x0[:, None] + np.arange(n_int + 1)[None, :])
-            deaths = (lk[:, :-1] - lk[:, 1:]) / lx0[:, None] * stay_before * in_window
-            full = mult * salary[:, None] * (1.0 + g) ** mid[None, :] * deaths
-            to_death = service[:, None] + mid[None, :]
-            amount = full * service[:, None] / to_death
-            mid_m = np.clip(np.rint(mid * 12).astype(np.int64), 0, ctx.months - 1)
-            v_mid = ctx.v[mid_m][None, :]
-            dis_pv = (amount * v_mid).sum(axis=1)
-            dis_unit = (full / to_death * v_mid).sum(axis=1)
-            dis_cf = np.bincount(np.broadcast_to(mid_m, amount.shape).ravel(), weights=amount.ravel(),
-                                 minlength=ctx.months)[: ctx.months]
+            lk = self._l(krows[:, None], kx[:, None] + np.arange(n_int + 1)[None, :])
+            lk0 = lk[:, :1]
+            # expected payment per unit of salary in year i, in service and dying then (key level)
+            per_salary = mult * (lk[:, :-1] - lk[:, 1:]) / lk0 * stay_before * in_window * (1.0 + g) ** mid[None, :]
+            v_mid = ctx.v[mid_m]
+            to_death = service[:, None] + mid[None, :]  # (N, Y)
+            paid = per_salary[inv] * salary[:, None] / to_death  # full amount / (s + t)
+            dis_unit = paid @ v_mid
+            dis_pv = service * dis_unit  # the attributed part: service / (s + t) of each amount
+            np.add.at(dis_cf, mid_m, service @ paid)
         return base, at_ret, growth, dis_pv, dis_cf, dis_unit

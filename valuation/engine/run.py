@@ -23,7 +23,7 @@ import polars as pl
 
 from valuation import __version__
 from valuation.discounting import present_value, single_equivalent_rate
-from valuation.engine.project import Projection, Valuer
+from valuation.engine.project import AGE_COLUMN, Projection, Valuer, with_ages
 from valuation.engine.results import STATUSES, ValuationResult
 from valuation.engine.scenario import (
     BASE,
@@ -34,7 +34,6 @@ from valuation.engine.scenario import (
     scenarios_from_basis,
 )
 from valuation.manifest import file_sha256
-from valuation.survival import age_at
 
 #: Members are valued in chunks of this many records, which keeps memory flat for any scheme size.
 DEFAULT_CHUNK = 200_000
@@ -251,6 +250,7 @@ class RunAccumulator:
     def add(self, records: pl.DataFrame) -> None:
         """Value one chunk of valid member records (the frame ``read_members`` returns)."""
         basis = self.basis
+        records = with_ages(records, basis)
         proj = self.base.value(records)
         liability = proj.liability
         self.total += float(liability.sum())
@@ -292,8 +292,7 @@ class RunAccumulator:
             self.cell_sums[key] = self.cell_sums.get(key, np.zeros(N_CELLS)) + _cell_sums(code, values)
         self.death_lives += _cell_sums(code, proj.q_next)
         self.death_amounts += _cell_sums(code, proj.q_next * proj.amount_now)
-        ages = np.asarray(age_at(records["date_of_birth"].to_numpy().astype("datetime64[D]"),
-                                 np.datetime64(basis.valuation_date, "D"), basis.age_convention), dtype=float)
+        ages = records[AGE_COLUMN].to_numpy()
         members = pl.DataFrame({
             "member_id": records["member_id"], "status": records["status"], "sex": records["sex"],
             "age": ages, "pension": proj.amount_now, "liability": liability,
