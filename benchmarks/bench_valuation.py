@@ -4,7 +4,7 @@ Usage::
 
     .venv/bin/python benchmarks/bench_valuation.py --members 1000000            # with all sensitivities
     .venv/bin/python benchmarks/bench_valuation.py --members 1000000 --no-sensitivities
-    .venv/bin/python benchmarks/bench_valuation.py --members 10000000 --no-sensitivities --chunk-size 200000
+    .venv/bin/python benchmarks/bench_valuation.py --members 10000000 --no-sensitivities --stream
     .venv/bin/python benchmarks/bench_valuation.py --members 10000000 --no-sensitivities --stream
 
 ``--stream`` reads, validates and values the file chunk by chunk (``value_file_streaming``) and writes the
@@ -50,7 +50,7 @@ def main() -> int:
     ap.add_argument("--seed", type=int, default=2026)
     ap.add_argument("--basis", default=str(ROOT / "assumptions" / "demo_basis.toml"))
     ap.add_argument("--no-sensitivities", action="store_true")
-    ap.add_argument("--chunk-size", type=int, default=200_000)
+    ap.add_argument("--chunk-size", type=int, default=1_000_000)
     ap.add_argument("--stream", action="store_true", help="read and value chunk by chunk (flat memory)")
     args = ap.parse_args()
 

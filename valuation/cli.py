@@ -269,7 +269,8 @@ def build_parser() -> argparse.ArgumentParser:
     r.add_argument("--out", help="run folder to write (default: outputs/<member file name>)")
     r.add_argument("--no-sensitivities", action="store_true", help="skip the sensitivity re-valuations")
     r.add_argument("--no-reports", action="store_true", help="skip the workbook and HTML summary")
-    r.add_argument("--chunk-size", type=int, default=200_000, help="members valued at a time (memory bound)")
+    r.add_argument("--chunk-size", type=int, default=1_000_000,
+                   help="members valued at a time: larger chunks share more survival curves, smaller ones use less memory")
     r.add_argument("--stream", action="store_true",
                    help="read, validate and value the file in chunks (flat memory for very large schemes)")
     g = r.add_argument_group("experience analysis (optional): deaths since the last valuation, in the reports")

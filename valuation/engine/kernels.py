@@ -159,3 +159,37 @@ def leg_kernel(
                 cashflow[b, tau] += flow
             for j in range(J):
                 unit_pv[k, j] = acc[j]
+
+
+@njit(cache=True)
+def death_in_service_kernel(
+    per_salary: np.ndarray,
+    inv: np.ndarray,
+    salary: np.ndarray,
+    service: np.ndarray,
+    mid: np.ndarray,
+    v_mid: np.ndarray,
+    dis_unit: np.ndarray,
+    flows: np.ndarray,
+) -> None:
+    """Death-in-service lump sums attributed to service (see ``project.Valuer._active``).
+
+    For member n (key k = inv[n]) and year i: the full expected payment is per_salary[k, i] * salary[n];
+    one year of service earns 1 / (service[n] + mid[i]) of it (``dis_unit``, discounted), and the part
+    earned to date, service[n] / (service[n] + mid[i]), is paid out in ``flows[i]`` (not discounted).
+    """
+    N = inv.shape[0]
+    Y = mid.shape[0]
+    for n in range(N):
+        k = inv[n]
+        s = service[n]
+        sal = salary[n]
+        acc = 0.0
+        for i in range(Y):
+            p = per_salary[k, i]
+            if p == 0.0:
+                continue
+            paid = p * sal / (s + mid[i])
+            acc += paid * v_mid[i]
+            flows[i] += paid * s
+        dis_unit[n] = acc

@@ -33,6 +33,7 @@ import polars as pl
 from numpy.typing import NDArray
 
 from valuation.engine.context import MAX_AGE, Context, MortalityRows, increase_index, revaluation_index
+from valuation.engine.kernels import death_in_service_kernel
 from valuation.engine.legs import dedupe, sum_by_key, value_leg
 from valuation.engine.results import STATUSES
 from valuation.engine.scenario import BASE, GROUPS, SEXES, Scenario, curves, mortality_for
@@ -342,9 +343,9 @@ class Valuer:
             # expected payment per unit of salary in year i, in service and dying then (key level)
             per_salary = mult * (lk[:, :-1] - lk[:, 1:]) / lk0 * stay_before * in_window * (1.0 + g) ** mid[None, :]
             v_mid = ctx.v[mid_m]
-            to_death = service[:, None] + mid[None, :]  # (N, Y)
-            paid = per_salary[inv] * salary[:, None] / to_death  # full amount / (s + t)
-            dis_unit = paid @ v_mid
+            flows = np.zeros(n_int)
+            death_in_service_kernel(np.ascontiguousarray(per_salary), inv.astype(np.int64), salary, service,
+                                    mid, np.ascontiguousarray(v_mid), dis_unit, flows)
             dis_pv = service * dis_unit  # the attributed part: service / (s + t) of each amount
-            np.add.at(dis_cf, mid_m, service @ paid)
+            np.add.at(dis_cf, mid_m, flows)
         return base, at_ret, growth, dis_pv, dis_cf, dis_unit

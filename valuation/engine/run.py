@@ -36,7 +36,7 @@ from valuation.engine.scenario import (
 from valuation.manifest import file_sha256
 
 #: Members are valued in chunks of this many records, which keeps memory flat for any scheme size.
-DEFAULT_CHUNK = 200_000
+DEFAULT_CHUNK = 1_000_000
 #: Shift of the discount curve for the effective duration [per annum].
 EFFECTIVE_SHIFT = 0.001
 
