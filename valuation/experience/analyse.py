@@ -201,7 +201,8 @@ def analyse_experience(
     mapping = basis.mapping
     date_format = mapping.date_format
     column_map = dict(mapping.columns)
-    data = read_members(members_path, basis)
+    # the start membership is checked as at the period start (ages, dates of birth after that date)
+    data = read_members(members_path, basis.model_copy(update={"valuation_date": settings.period_start}))
     deaths = read_events(deaths_path, "deaths", date_format=date_format, column_map=column_map)
     exits = (
         read_events(exits_path, "exits", date_format=date_format, column_map=column_map)
