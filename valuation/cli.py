@@ -154,7 +154,10 @@ def _run_streaming(args: argparse.Namespace, basis: Any, progress: _Progress) ->
 
 def _experience_line(res: Any) -> str:
     o = res.table.filter(res.table["dimension"] == "overall").row(0, named=True)
-    return (f"deaths: A/E by lives {100 * o['ae_lives']:.1f} % ({100 * o['ae_lives_lower']:.1f} % to "
+    d = res.summary.get("records", {}).get("deaths", {})
+    counted = (f"deaths read {d['read']:,} = counted {d['counted']:,} + excluded {d['excluded']:,}\n"
+               if {"read", "counted", "excluded"} <= set(d) else "")
+    return counted + (f"deaths: A/E by lives {100 * o['ae_lives']:.1f} % ({100 * o['ae_lives_lower']:.1f} % to "
             f"{100 * o['ae_lives_upper']:.1f} %); by amounts {100 * o['ae_amounts']:.1f} % "
             f"({100 * o['ae_amounts_lower']:.1f} % to {100 * o['ae_amounts_upper']:.1f} %)")
 
