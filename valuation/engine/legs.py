@@ -48,6 +48,31 @@ def _l(mrows: MortalityRows, rows: NDArray[np.int64], ages: NDArray[np.float64],
     return lx_at(mrows.lx, mrows.q_rows, rows, ages, fractional)  # type: ignore[arg-type]
 
 
+def payment_window(
+    ctx: Context,
+    kind: str,
+    x0: NDArray[np.float64],
+    start: NDArray[np.int64],
+    stop: NDArray[np.int64] | None,
+    y0: NDArray[np.float64] | None,
+) -> tuple[NDArray[np.int64], NDArray[np.int64]]:
+    """First payment month and the first month past the last possible payment, for each key.
+
+    Own legs run from the start (plus one period in arrears) until the member passes the closing age or
+    the stop month; reversions from the valuation date until the spouse passes the closing age.
+    """
+    if kind == "own":
+        first = start + ctx.offset
+        end = np.ceil((MAX_AGE + 1 - x0) * 12.0).astype(np.int64)
+        if stop is not None:
+            end = np.minimum(end, stop)
+    else:
+        assert y0 is not None, "a reversion needs the spouse's age"
+        first = np.full(len(x0), ctx.offset, dtype=np.int64)
+        end = np.ceil((MAX_AGE + 1 - y0) * 12.0).astype(np.int64)
+    return first.astype(np.int64), np.minimum(end, ctx.months)
+
+
 def value_leg_numpy(
     ctx: Context,
     mrows: MortalityRows,
@@ -100,21 +125,13 @@ def value_leg_numpy(
     """
     K, J = weights.shape
     M = ctx.months
-    step, off = ctx.step, ctx.offset
+    step = ctx.step
     unit_pv = np.zeros((K, J))
     cashflow = np.zeros(M)
     if K == 0:
         return LegResult(unit_pv, cashflow)
     guar = np.zeros(K, dtype=np.int64) if guarantee is None else guarantee
-    if kind == "own":
-        first = start + off
-        horizon = np.ceil((MAX_AGE + 1 - x0) * 12.0).astype(np.int64)
-        end = horizon if stop is None else np.minimum(horizon, stop)
-    else:
-        assert rows_y is not None and y0 is not None
-        first = np.full(K, off, dtype=np.int64)
-        end = np.ceil((MAX_AGE + 1 - y0) * 12.0).astype(np.int64)
-    end = np.minimum(end, M)
+    first, end = payment_window(ctx, kind, x0, start, stop, y0)
     count = np.maximum(0, -(-(end - first) // step))  # ceil division
     order = np.argsort(count, kind="stable")
     lx0 = _l(mrows, rows_x, x0, ctx.fractional)
@@ -193,16 +210,7 @@ def value_leg(
         return LegResult(unit_pv, cashflow)
     reversion = kind == "reversion"
     guar = np.zeros(K, dtype=np.int64) if guarantee is None else guarantee.astype(np.int64)
-    if reversion:
-        assert rows_y is not None and y0 is not None
-        first = np.full(K, ctx.offset, dtype=np.int64)
-        end = np.ceil((MAX_AGE + 1 - y0) * 12.0).astype(np.int64)
-    else:
-        first = start + ctx.offset
-        end = np.ceil((MAX_AGE + 1 - x0) * 12.0).astype(np.int64)
-        if stop is not None:
-            end = np.minimum(end, stop)
-    end = np.minimum(end, M)
+    first, end = payment_window(ctx, kind, x0, start, stop, y0)
     ry = rows_y if rows_y is not None else np.zeros(K, dtype=np.int64)
     yy = y0 if y0 is not None else np.zeros(K)
     grow = growth if growth is not None else np.ones((J, M))
