@@ -90,6 +90,7 @@ def test_each_problem_is_reported(tmp_path: Path, record: dict[str, str], column
     hit = hits.row(0, named=True)
     assert hit["row"] == 3  # header = row 1, COMPANION = row 2
     assert hit["column"] == column and hit["severity"] == severity
+    assert hit["file_column"] == column  # the file's headers are ours: no mapping applies
     assert hit["file"].endswith("m.csv")
     raw = record.get(column)
     assert hit["value"] == raw or column == "pension"  # value as written (tranche check shows the pension)

@@ -88,6 +88,40 @@ def test_mapping_headers_codes_and_date_format(tmp_path: Path) -> None:
     assert md.ignored_columns == ["note"]
 
 
+def test_exceptions_name_the_header_as_written(tmp_path: Path) -> None:
+    """A mapped or differently spelt header is named as written; our own spelling gives no prefix."""
+    path = tmp_path / "adm.csv"
+    path.write_text("Ref No,status,Gender, dob ,Pension PA,Pensionable Salary,Notes\n"
+                    "GW1,P,2,31/02/1960,1200,,x\n", encoding="utf-8")
+    md = read_members(path, DEMO_BASIS)
+    assert md.ignored_columns == ["Notes"]
+    hit = md.exceptions.row(0, named=True)
+    assert (hit["column"], hit["file_column"], hit["value"]) == ("date_of_birth", " dob ", "31/02/1960")
+    assert hit["reason"] == ("column ' dob ': not a valid date (expected a date as %d/%m/%Y or ISO YYYY-MM-DD)")
+    path.write_text("Ref No,status,Gender,DOB\nGW1,Q,2,01/01/1960\n", encoding="utf-8")
+    hit = read_members(path, DEMO_BASIS).exceptions.row(0, named=True)
+    assert (hit["column"], hit["file_column"]) == ("status", "status")
+    assert hit["reason"].startswith("unknown status code")  # same spelling as ours: reason unchanged
+    out = tmp_path / "exceptions.csv"
+    read_members(path, DEMO_BASIS).exceptions.write_csv(out)
+    assert pl.read_csv(out, infer_schema=False).columns == [
+        "file", "row", "member_id", "column", "file_column", "value", "reason", "severity"]
+
+
+def test_missing_column_lists_the_headers_as_written(tmp_path: Path) -> None:
+    path = tmp_path / "adm.csv"
+    path.write_text("REF NO,Status ,Gender,Date Born\nGW1,P,2,01/01/1960\n", encoding="utf-8")
+    with pytest.raises(DataError) as info:
+        read_members(path, DEMO_BASIS)
+    msg = str(info.value)
+    assert "required column(s) date_of_birth not found" in msg
+    assert "headers in the file: 'REF NO', 'Status ', 'Gender', 'Date Born';" in msg
+    assert "'DOB' -> date_of_birth" in msg  # the basis's mapping is listed too
+    (tmp_path / "tr.csv").write_text("member_id,status,sex,date_of_birth,Pension_GMP\n", encoding="utf-8")
+    with pytest.raises(DataError, match=r"column 'Pension_GMP' \(read as pension_gmp\) names a tranche"):
+        read_members(tmp_path / "tr.csv", BASIS)
+
+
 def test_round_trip_through_the_administrators_layout(tmp_path: Path, scheme: pl.DataFrame) -> None:
     ours = read_members(write_scheme(scheme, tmp_path / "ours.csv"), DEMO_BASIS).records
     theirs = read_members(write_scheme(to_admin_format(scheme, DEMO_BASIS.mapping), tmp_path / "adm.csv"),
@@ -157,3 +191,19 @@ def test_demo_history_files() -> None:
     assert "GW999999" in set(deaths["member_id"]) and "GW999999" not in ids  # deliberate bad row
     assert (deaths["date_of_death"] < date(2022, 3, 31)).sum() == 1  # deliberate row before the period
     assert set(exits["member_id"]) <= ids
+
+
+def test_validate_frame_takes_the_headers_explicitly(tmp_path: Path) -> None:
+    """Without headers ``validate_frame`` names our columns; headers passed to it are named as written; a
+    count mismatch fails."""
+    from valuation.members.data import validate_frame
+    from valuation.members.readers import map_headers
+
+    raw = pl.DataFrame({"Ref No": ["A1"], "Status": ["Q"], "Gender": ["1"], "DOB": ["01/01/1960"]})
+    mapped = map_headers(raw, DEMO_BASIS.mapping, tmp_path / "m.csv")
+    assert validate_frame(mapped, DEMO_BASIS, tmp_path / "m.csv").exceptions["file_column"].to_list() == ["status"]
+    given = ["Ref No", "Code", "Gender", "DOB"]
+    hit = validate_frame(mapped, DEMO_BASIS, tmp_path / "m.csv", headers=given).exceptions.row(0, named=True)
+    assert (hit["column"], hit["file_column"]) == ("status", "Code") and hit["reason"].startswith("column 'Code': ")
+    with pytest.raises(ValueError, match="3 headers given for a frame of 4 columns"):
+        validate_frame(mapped, DEMO_BASIS, tmp_path / "m.csv", headers=given[:3])

@@ -5,20 +5,32 @@ engine's own run-folder writer, so the workbook and summary.json come from the s
 valuation.manifest.dump_json); ECMA-376 Part 1 (Office Open XML SpreadsheetML): a cell formula is stored
 in an ``<f>`` element and an inline string cell has ``t="inlineStr"`` (from memory: section 18.3.1.40 for
 ``f``, 18.18.11 for the cell types); OWASP "CSV Injection" for the formula probes (=, +, -, @).
+Number formats: ECMA-376 Part 1, 18.8.30 numFmt (from memory): a ``%`` in a format code multiplies the
+stored value by 100 for display, so a cell shown as a percentage holds a fraction; dates are stored as
+serial day numbers (18.17.4.1, 1900 date system, from memory: serial = days since 1899-12-30 for dates
+after 1900-02-28) and read as dates only through a date format code.
 """
 
 from __future__ import annotations
 
 import json
 import math
+import re
 import zipfile
+from datetime import date, datetime
 from pathlib import Path
 
 import polars as pl
 import pytest
 from openpyxl import load_workbook
 
-from tests.test_reports_fixture import FORMULA_PROBES, make_empty_result, make_result, real_run
+from tests.test_reports_fixture import (
+    FORMULA_PROBES,
+    make_empty_result,
+    make_experience,
+    make_result,
+    real_run,
+)
 from valuation.engine import write as engine_write
 from valuation.reports import excel_sheets, write_workbook
 from valuation.reports.excel import SHEETS
@@ -125,6 +137,10 @@ def test_basis_sheet_is_the_basis_as_loaded(book) -> None:
     assert _find(ws, "mortality.default.M.improvement.initial_ages").value == "40, 60, 80, 100"
     assert _find(ws, "sensitivities[0].name").value == "Discount rate +0.5% p.a."
     assert _find(ws, "mapping.columns.Ref No").value == "member_id"
+    day = _find(ws, "valuation_date")
+    assert day.is_date and day.number_format == "yyyy-mm-dd" and day.value == datetime(2025, 3, 31)
+    rate = _find(ws, "discount.rate")
+    assert rate.number_format == "0.00%"  # a rate stored as a fraction, shown as % (ECMA-376 18.8.30)
 
 
 def test_basis_sheet_keeps_formula_like_basis_text(tmp_path: Path) -> None:
@@ -153,14 +169,24 @@ def test_lists_are_tables_with_frozen_headers_and_formats(book) -> None:
     assert ws.column_dimensions["A"].width >= 8
 
 
-def test_sensitivity_change_is_a_fraction_shown_as_percent(book) -> None:
-    """change_pct in the summary is in percent; the sheet stores the fraction with a % format."""
-    path, result = book
+def test_sensitivity_change_is_a_fraction_shown_as_percent(book, run_folder: Path) -> None:
+    """summary.json holds change_pct in percent; the sheet stores change_pct / 100 with a % format (ECMA-376
+    18.8.30, from memory), under a header that says it is a percentage of the base liability. The change is
+    also liability / total - 1 (the definition of a relative change)."""
+    path, _ = book
+    summary = json.loads((run_folder / "summary.json").read_text(encoding="utf-8"))
     ws = load_workbook(path)["Sensitivities"]
     header = [c.value for c in ws[excel_sheets.HEAD]]
-    cell = ws.cell(row=excel_sheets.HEAD + 1, column=header.index("change in liability") + 1)
-    assert cell.value == pytest.approx(result.sensitivities["change_pct"][0] / 100.0, rel=1e-12)
-    assert cell.number_format == "0.0%"
+    label = next(h for h in header if h.startswith("change in liability"))
+    assert "%" in label and "base liability" in label
+    col, liab = header.index(label) + 1, header.index("liability [currency]") + 1
+    assert len(summary["sensitivities"]) > 1
+    for i, sens in enumerate(summary["sensitivities"], start=excel_sheets.HEAD + 1):
+        cell = ws.cell(row=i, column=col)
+        assert cell.value == pytest.approx(sens["change_pct"] / 100.0, rel=1e-12), sens["name"]
+        assert cell.number_format == "0.0%"
+        assert cell.value == pytest.approx(ws.cell(row=i, column=liab).value / summary["liability"]["total"] - 1,
+                                           rel=1e-9)
 
 
 def test_charts_on_cashflow_and_experience_sheets(book) -> None:
@@ -201,3 +227,102 @@ def test_empty_result_gives_a_valid_workbook(tmp_path: Path) -> None:
     assert wb["Members"].tables == {} and wb["Members"].max_row == excel_sheets.HEAD
     assert _find(wb["Summary"], "Single equivalent discount rate [p.a.]").value is None
     assert len(wb["Cash flows"]._charts) == 0
+
+
+def _serial(day: date) -> int:
+    """Excel 1900-system serial of a date after 1900-02-28 (ECMA-376 18.17.4.1, from memory)."""
+    return (day - date(1899, 12, 30)).days
+
+
+def _cell_xml(path: Path, sheet: str, ref: str) -> str:
+    wb = load_workbook(path)
+    index = wb.sheetnames.index(sheet) + 1
+    with zipfile.ZipFile(path) as z:
+        xml = z.read(f"xl/worksheets/sheet{index}.xml").decode("utf-8")
+    match = re.search(rf'<c r="{ref}"[^>]*>.*?</c>', xml)
+    assert match, ref
+    return match.group(0)
+
+
+def test_dates_are_date_cells(tmp_path: Path) -> None:
+    """The valuation date (Summary, Basis) and the experience period are numeric date serials with a date
+    format, not text (ECMA-376: a date is a number shown through a date format code)."""
+    result = make_result()
+    experience = make_experience()
+    path = write_workbook(result, tmp_path / "dates.xlsx", experience=experience)
+    wb = load_workbook(path)
+    expected = date.fromisoformat(result.summary["valuation_date"])
+    for sheet, label, day in [("Summary", "Valuation date", expected),
+                              ("Experience", "Period start", experience.settings.period_start),
+                              ("Experience", "Period end", experience.settings.period_end)]:
+        cell = _find(wb[sheet], label)
+        assert cell.is_date and cell.number_format == "yyyy-mm-dd", (sheet, label)
+        assert cell.value == datetime(day.year, day.month, day.day), (sheet, label)
+        xml = _cell_xml(path, sheet, cell.coordinate)
+        assert 't="s"' not in xml and "inlineStr" not in xml, xml
+        assert f"<v>{_serial(day)}</v>" in xml, xml
+    assert _serial(date(2025, 3, 31)) == 45747  # from memory: 2025-01-01 is serial 45658, plus 89 days
+
+
+def test_manifest_start_time_stays_text(book) -> None:
+    path, result = book
+    cell = _find(load_workbook(path)["Manifest"], "started_at")
+    assert cell.data_type == "s" and cell.value == result.summary["manifest"]["started_at"]
+
+
+def _percent_cells(ws):
+    return [c for row in ws.iter_rows() for c in row if isinstance(c.value, (int, float)) and "%" in c.number_format]
+
+
+def test_experience_percentages_are_fractions_with_one_format(tmp_path: Path) -> None:
+    """Implied percentages (in percent in the analysis) are stored / 100; A/E ratios as they are; every %
+    cell on the sheet has the same format (ECMA-376 18.8.30, from memory: % multiplies by 100)."""
+    experience = make_experience()
+    implied = experience.implied
+    ws = load_workbook(write_workbook(make_result(), tmp_path / "exp.xlsx", experience=experience))["Experience"]
+    assert _find(ws, "Implied percentage of table").value == pytest.approx(implied["implied_percentage"] / 100)
+    assert _find(ws, "A/E by amounts (weighted by pension)").value == pytest.approx(implied["multiplier"])
+    assert {c.number_format for c in _percent_cells(ws)} == {"0.0%"}
+    labels = [c.value for c in ws["A"] if isinstance(c.value, str)]
+    assert not [t for t in labels if "[%]" in t]
+    # A/E = actual / expected (Benjamin & Pollard, The Analysis of Mortality, ch. on comparing with a table).
+    header_row = next(c.row for c in ws["A"] if c.value == "grouped by")
+    header = [c.value for c in ws[header_row]]
+    row = header_row + 1
+    actual = ws.cell(row=row, column=header.index("actual deaths [lives]") + 1).value
+    expected = ws.cell(row=row, column=header.index("expected deaths [lives]") + 1).value
+    ae = ws.cell(row=row, column=header.index("A/E lives") + 1).value
+    assert ae == pytest.approx(actual / expected, abs=5e-4)  # the fixture's A/E is printed to 3 decimals
+
+
+def test_experience_change_in_liability_is_a_fraction(tmp_path: Path) -> None:
+    """The analysis gives change_pct in percent (100 x (after / before - 1)); the sheet holds the fraction."""
+    experience = make_experience()
+    before, after = 1_000_000.0, 954_000.0
+    experience.implied.update(liability_before=before, liability_after=after,
+                              change_pct=100.0 * (after / before - 1.0), reason=None)
+    ws = load_workbook(write_workbook(make_result(), tmp_path / "chg.xlsx", experience=experience))["Experience"]
+    cell = _find(ws, "Change in liability")
+    assert cell.value == pytest.approx(-0.046, rel=1e-12) and cell.number_format == "0.0%"
+    assert _find(ws, "Liability on the valuation basis [currency]").number_format == "#,##0"
+
+
+def test_experience_by_table_is_fractions_and_notes_are_plain(book) -> None:
+    """Real run (current percentages differ by group): each implied percentage by table is / 100 (the
+    analysis, like experience.json, holds percent); all % cells share one format; notes are plain words
+    with no JSON keys."""
+    path, _ = book
+    implied = real_run()[1].implied
+    ws = load_workbook(path)["Experience"]
+    assert implied["implied_percentage"] is None and implied["by_table"]
+    header_row = next(c.row for c in ws["A"] if c.value == "members")
+    header = [c.value for c in ws[header_row]]
+    first = implied["by_table"][0]
+    for key, label in [("current_percentage", "current percentage of table"),
+                       ("implied_percentage", "implied percentage of table"), ("lower", "lower"), ("upper", "upper")]:
+        value = ws.cell(row=header_row + 1, column=header.index(label) + 1).value
+        assert value == pytest.approx(first[key] / 100.0, rel=1e-12), key
+    assert {c.number_format for c in _percent_cells(ws)} == {"0.0%"}
+    texts = [c.value for row in ws.iter_rows(max_row=header_row) for c in row if isinstance(c.value, str)]
+    assert not [t for t in texts if re.search(r"[a-z]_[a-z]", t)]
+    assert any("differ by group and sex" in t for t in texts)

@@ -46,10 +46,10 @@ def real_run() -> tuple[ValuationResult, ExperienceResult]:
     result.members = result.members.with_columns(pl.Series("member_id", ids, dtype=pl.String))
     extra = pl.DataFrame({
         "file": ["members_dirty.csv"] * 2, "row": [41, 42], "member_id": [SCRIPT_PROBE, IMG_PROBE],
-        "column": ["member_id", "sex"], "value": [SCRIPT_PROBE, IMG_PROBE],
+        "column": ["member_id", "sex"], "file_column": ["member_id", "sex"], "value": [SCRIPT_PROBE, IMG_PROBE],
         "reason": ["test probe in a reason: " + SCRIPT_PROBE, "test probe in a reason: " + IMG_PROBE],
         "severity": ["warning", "warning"],
-    }).cast(result.exceptions.schema)
+    }).select(result.exceptions.columns).cast(result.exceptions.schema)
     result.exceptions = pl.concat([result.exceptions, extra], how="vertical")
     settings = ExperienceSettings(period_start=date(2022, 3, 31), period_end=date(2025, 3, 31))
     experience = analyse_experience(DEMO / "members_start.csv", DEMO / "deaths.csv", BASIS, settings,

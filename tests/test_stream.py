@@ -162,3 +162,24 @@ def test_header_only_file_and_fatal_errors_match(tmp_path: Path) -> None:
         value_file_streaming(broken, BASIS, sensitivities=False)
     assert str(streamed.value) == str(whole.value)
     assert "required column(s) date_of_birth not found" in str(streamed.value)
+    mapped = tmp_path / "mapped.csv"
+    mapped.write_text("ref no,STATUS,Gender\nA1,P,1\n", encoding="utf-8")
+    with pytest.raises(DataError) as whole:
+        read_members(mapped, BASIS)
+    with pytest.raises(DataError) as streamed:
+        value_file_streaming(mapped, BASIS, sensitivities=False)
+    assert str(streamed.value) == str(whole.value)
+    assert "headers in the file: 'ref no', 'STATUS', 'Gender';" in str(streamed.value)
+
+
+def test_streamed_exceptions_name_the_header_as_written(tmp_path: Path) -> None:
+    """Headers spelt unlike the basis's mapping (case, spaces) are named as written in every chunk."""
+    frame = to_admin_format(_scheme(300, seed=12), BASIS.mapping).rename({"DOB": "dob", "Pension pa": " PENSION PA"})
+    path = write_scheme(frame, tmp_path / "members.csv")
+    memory = read_members(path, BASIS).exceptions
+    stream = value_file_streaming(path, BASIS, chunk_rows=64, sensitivities=False).exceptions
+    assert_frame_equal(stream, memory)
+    dob = stream.filter(pl.col("column") == "date_of_birth")
+    assert dob.height > 0 and set(dob["file_column"]) == {"dob"}
+    assert dob["reason"].str.starts_with("column 'dob': ").all()
+    assert set(stream.filter(pl.col("column") == "pension")["file_column"]) == {" PENSION PA"}

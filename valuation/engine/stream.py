@@ -106,12 +106,13 @@ def _checked_chunks(path: Path, basis: Any, chunk_rows: int, duplicates: pl.Data
     first = FIRST_ROW
     for text in iter_text_frames(path, chunk_rows):
         checked = validate_frame(map_headers(text, basis.mapping, path), basis, path, first_row=first,
-                                 duplicates=duplicates)
+                                 duplicates=duplicates, headers=text.columns)
         first += text.height
         yield checked
     if first == FIRST_ROW:  # no records: validate the header alone (missing columns are still fatal)
         header = pl.DataFrame(schema={c: pl.String for c in read_header(path)})
-        yield validate_frame(map_headers(header, basis.mapping, path), basis, path, duplicates=duplicates)
+        yield validate_frame(map_headers(header, basis.mapping, path), basis, path, duplicates=duplicates,
+                             headers=header.columns)
 
 
 def value_file_streaming(
@@ -175,8 +176,9 @@ def value_file_streaming(
     ignored: list[str] = []
     try:
         if kind == "xlsx":
+            text = read_text_frame(p)
             chunks: Iterator[CheckedFrame] = iter([
-                validate_frame(map_headers(read_text_frame(p), basis.mapping, p), basis, p)])
+                validate_frame(map_headers(text, basis.mapping, p), basis, p, headers=text.columns)])
             n_chunks = None
         else:
             if progress:

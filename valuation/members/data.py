@@ -6,6 +6,7 @@ row 2 (for Parquet, which has no header row, the same numbering is used: first r
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -16,7 +17,7 @@ from valuation.basis.model import Basis
 from valuation.errors import DataError
 from valuation.members.checks import build_checks
 from valuation.members.parse import clean_text, parse_all, parsed
-from valuation.members.readers import map_headers, read_text_frame
+from valuation.members.readers import as_written, map_headers, read_text_frame
 from valuation.members.schema import (
     DATE_COLUMNS,
     GROUP_OF_STATUS,
@@ -31,7 +32,7 @@ from valuation.survival import age_at
 
 EXCEPTION_SCHEMA: dict[str, type[pl.DataType]] = {
     "file": pl.String, "row": pl.Int64, "member_id": pl.String, "column": pl.String,
-    "value": pl.String, "reason": pl.String, "severity": pl.String,
+    "file_column": pl.String, "value": pl.String, "reason": pl.String, "severity": pl.String,
 }
 UNKNOWN_STATUS = "(unknown status)"
 
@@ -41,8 +42,8 @@ class MemberData:
     """Valued member records, the exceptions found, and the reconciliation counts.
 
     ``records`` holds the valued records, typed (see :func:`read_members`); ``exceptions`` lists every
-    problem (file, row, member_id, column, value as written, reason, severity ``excluded``/``warning``)
-    sorted by row. ``read = valued + excluded`` always holds.
+    problem (file, row, member_id, column (ours), file_column (the header as written in the file), value
+    as written, reason, severity ``excluded``/``warning``) sorted by row. ``read = valued + excluded`` always holds.
     """
 
     path: Path
@@ -117,13 +118,14 @@ def duplicate_ids(ids: pl.DataFrame) -> pl.DataFrame:
 
 def _prepare(
     df: pl.DataFrame, basis: Basis, path: Path, tranche_cols: list[str], first_row: int,
-    duplicates: pl.DataFrame | None,
+    duplicates: pl.DataFrame | None, file_columns: dict[str, str],
 ) -> pl.DataFrame:
     missing = [c for c in REQUIRED if c not in df.columns]
     if missing:
         mapped = ", ".join(f"'{k}' -> {v}" for k, v in basis.mapping.columns.items()) or "none"
+        written = ", ".join(f"'{file_columns.get(c, c)}'" for c in df.columns) or "none"
         raise DataError(
-            f"required column(s) {', '.join(missing)} not found (headers: {', '.join(df.columns)}; "
+            f"required column(s) {', '.join(missing)} not found (headers in the file: {written}; "
             f"mapping in the basis: {mapped})",
             file=path, column=missing[0],
             fix="add the column, or map the administrator's header to it under [mapping.columns] in the basis",
@@ -158,7 +160,20 @@ def _prepare(
     )
 
 
-def _exceptions(df: pl.DataFrame, basis: Basis, path: Path, tranche_cols: list[str]) -> pl.DataFrame:
+def _in_file(reason: pl.Expr | str, column: str, header: str) -> pl.Expr:
+    """The reason, led by the file's own header where it is spelt differently from our column name."""
+    text = pl.lit(reason) if isinstance(reason, str) else reason
+    return text if header == column else pl.concat_str(pl.lit(f"column '{header}': "), text.cast(pl.String))
+
+
+def _exceptions(
+    df: pl.DataFrame, basis: Basis, path: Path, tranche_cols: list[str], file_columns: dict[str, str],
+) -> pl.DataFrame:
+    """Every problem found, one row each (:data:`EXCEPTION_SCHEMA`).
+
+    ``file_columns`` gives the file's header for each of our columns present in the file; a column the
+    file lacks is named by our name in ``file_column`` too.
+    """
     m = basis.mapping
     status_codes = ", ".join([*m.status_codes, *STATUSES])
     sex_codes = ", ".join([*m.sex_codes, *SEXES])
@@ -174,8 +189,9 @@ def _exceptions(df: pl.DataFrame, basis: Basis, path: Path, tranche_cols: list[s
             pl.col("row"),
             pl.col("member_id"),
             pl.lit(c.column).alias("column"),
+            pl.lit(file_columns.get(c.column, c.column)).alias("file_column"),
             (c.value if c.value is not None else pl.col(c.column)).cast(pl.String).alias("value"),
-            (pl.lit(c.reason) if isinstance(c.reason, str) else c.reason).cast(pl.String).alias("reason"),
+            _in_file(c.reason, c.column, file_columns.get(c.column, c.column)).cast(pl.String).alias("reason"),
             pl.lit(c.severity).alias("severity"),
             pl.lit(k).alias("_order"),
         )
@@ -212,13 +228,23 @@ def _records(df: pl.DataFrame, basis: Basis, tranche_cols: list[str], all_tranch
     )
 
 
+def _file_columns(raw: pl.DataFrame, headers: Sequence[str] | None) -> dict[str, str]:
+    """Our column name -> the file's header as written, for every column of ``raw``."""
+    if headers is None:
+        return {c: c for c in raw.columns}
+    written = tuple(as_written(h) for h in headers)
+    if len(written) != raw.width:
+        raise ValueError(f"{len(written)} headers given for a frame of {raw.width} columns")
+    return dict(zip(raw.columns, written, strict=True))
+
+
 @dataclass
 class CheckedFrame:
     """One frame of member records after validation (a whole file, or one chunk of it).
 
     ``records`` and ``exceptions`` are as in :class:`MemberData`; ``counts`` has one row a status label
-    (``status, read, valued, excluded``, in no particular order); ``ignored_columns`` lists headers that
-    are not ours.
+    (``status, read, valued, excluded``, in no particular order); ``ignored_columns`` lists the file's
+    headers (as written) that are not ours.
     """
 
     records: pl.DataFrame
@@ -230,6 +256,7 @@ class CheckedFrame:
 
 def validate_frame(
     raw: pl.DataFrame, basis: Basis, path: Path, *, first_row: int = 2, duplicates: pl.DataFrame | None = None,
+    headers: Sequence[str] | None = None,
 ) -> CheckedFrame:
     """Validate member records held as text under our column names (after :func:`map_headers`).
 
@@ -246,6 +273,11 @@ def validate_frame(
     duplicates : polars.DataFrame, optional
         Duplicate ids of the whole file (:func:`duplicate_ids`) when ``raw`` is one chunk of it; by
         default duplicates are found within ``raw``.
+    headers : sequence of str, optional
+        The file's headers as written, one for each column of ``raw`` in order (the columns of the
+        frame before :func:`~valuation.members.readers.map_headers`); by default ``raw``'s own names.
+        Exceptions name them in ``file_column`` (and in the reason where they differ from ours), and a
+        missing required column lists them.
 
     Raises
     ------
@@ -255,17 +287,20 @@ def validate_frame(
     """
     all_tranches = [tranche_column(t) for t in basis.tranches]
     ours = known_columns(list(basis.tranches))
+    file_columns = _file_columns(raw, headers)
     stray = [c for c in raw.columns if c.startswith("pension_") and c not in ours]
     if stray:
+        header = file_columns[stray[0]]
+        read_as = "" if header == stray[0] else f" (read as {stray[0]})"
         raise DataError(
-            f"column '{stray[0]}' names a tranche the basis does not declare (declared: "
-            f"{', '.join(basis.tranches)})", file=path, column=stray[0],
+            f"column '{header}'{read_as} names a tranche the basis does not declare (declared: "
+            f"{', '.join(basis.tranches)})", file=path, column=header,
             fix="declare the tranche under [tranches] in the basis, or rename the column",
         )
     tranche_cols = [c for c in all_tranches if c in raw.columns]
-    ignored = [c for c in raw.columns if c not in ours]
-    df = _prepare(raw, basis, path, tranche_cols, first_row, duplicates)
-    exceptions = _exceptions(df, basis, path, tranche_cols)
+    ignored = [file_columns[c] for c in raw.columns if c not in ours]
+    df = _prepare(raw, basis, path, tranche_cols, first_row, duplicates, file_columns)
+    exceptions = _exceptions(df, basis, path, tranche_cols, file_columns)
     bad_rows = exceptions.filter(pl.col("severity") == "excluded").get_column("row").unique()
     df = df.with_columns(_excluded=pl.col("row").is_in(bad_rows.implode()))
     records = _records(df.filter(~pl.col("_excluded")), basis, tranche_cols, all_tranches)
@@ -315,7 +350,8 @@ def read_members(path: str | Path, basis: Basis) -> MemberData:
         ``pension_<name>`` column names a tranche the basis does not declare.
     """
     p = Path(path)
-    checked = validate_frame(map_headers(read_text_frame(p), basis.mapping, p), basis, p)
+    text = read_text_frame(p)
+    checked = validate_frame(map_headers(text, basis.mapping, p), basis, p, headers=text.columns)
     return MemberData(
         path=p, records=checked.records, exceptions=checked.exceptions, read=checked.read,
         valued=checked.records.height, excluded=checked.read - checked.records.height,

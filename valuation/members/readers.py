@@ -162,6 +162,15 @@ def header_targets(columns: list[str], mapping: ColumnMapping, path: Path) -> di
     return renamed
 
 
+def as_written(header: str) -> str:
+    """A header exactly as the file spells it (a UTF-8 byte-order mark, which no one sees, removed)."""
+    return header.replace("\ufeff", "")
+
+
 def map_headers(df: pl.DataFrame, mapping: ColumnMapping, path: Path) -> pl.DataFrame:
-    """Rename the file's headers to ours (see :func:`header_targets`)."""
+    """Rename the file's headers to ours (see :func:`header_targets`).
+
+    Pass ``df.columns`` (the headers as written) to validation beside the result, so that messages can
+    name the administrator's own header beside ours.
+    """
     return df.rename(header_targets(df.columns, mapping, path))

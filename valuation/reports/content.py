@@ -186,6 +186,24 @@ def status_rows(summary: dict[str, Any]) -> list[dict[str, Any]]:
     return rows
 
 
+def implied_notes(implied: dict[str, Any]) -> list[str]:
+    """Plain sentences on the implied mortality level and the liability effect of an experience analysis
+    (none when there is nothing to explain)."""
+    out = []
+    if implied.get("implied_percentage") is None and implied.get("by_table"):
+        out.append("The current percentages of the table differ by group and sex, so there is no single implied "
+                   "percentage: each group's is its current percentage times the A/E by amounts (table below).")
+    reason = implied.get("reason")
+    if reason:
+        out.append(f"Liability effect not calculated: {_plain_reason(reason)}.")
+    return out
+
+
+def _plain_reason(reason: str) -> str:
+    """The analysis's reason without its trailing ``: liability effect not calculated``."""
+    return reason.split(": liability effect not calculated")[0].strip()
+
+
 def ae_by_age(experience: Any) -> pl.DataFrame:
     """The experience table's age-band rows (empty when no analysis was run)."""
     if experience is None:

@@ -20,7 +20,9 @@ from openpyxl.utils import get_column_letter
 from openpyxl.worksheet.table import Table, TableStyleInfo
 from openpyxl.worksheet.worksheet import Worksheet
 
-#: Number formats (Excel codes).
+#: Number formats (Excel format codes; ECMA-376 Part 1, 18.8.31 numFmts, from memory). Money is whole
+#: currency units with thousands separators (pensions keep pence); rates and ratios are stored as
+#: fractions (0.048, 1.07) and shown as percentages by the ``%`` code, which multiplies by 100.
 MONEY = "#,##0"
 MONEY_2DP = "#,##0.00"
 RATE = "0.00%"
@@ -30,6 +32,13 @@ FACTOR = "0.0000"
 PROBABILITY = "0.000000"
 COUNT = "#,##0"
 LIVES = "#,##0.00"
+#: ISO 8601 calendar date, the same in every locale (the built-in date format 14 follows the reader's locale).
+DATE = "yyyy-mm-dd"
+
+_ISO_DATE = re.compile(r"\d{4}-\d{2}-\d{2}")
+
+#: Header row of every list sheet (title in row 1, note in row 2); panes freeze below it.
+HEAD = 3
 
 #: Characters that make a spreadsheet take text for a formula.
 FORMULA_START = ("=", "+", "-", "@")
@@ -57,6 +66,16 @@ def clean_value(value: Any) -> Any:
     return ILLEGAL_CHARACTERS_RE.sub("\ufffd", str(value))[:MAX_TEXT]
 
 
+def as_date(value: Any) -> Any:
+    """An ISO 8601 date text (``2025-03-31``) as a :class:`datetime.date`; anything else unchanged."""
+    if isinstance(value, str) and _ISO_DATE.fullmatch(value):
+        try:
+            return date.fromisoformat(value)
+        except ValueError:
+            return value
+    return value
+
+
 def put(ws: Worksheet, row: int, column: int, value: Any, number_format: str | None = None) -> Cell:
     """Write one value; text is always literal text, never a formula."""
     cell = ws.cell(row=row, column=column)
@@ -66,6 +85,8 @@ def put(ws: Worksheet, row: int, column: int, value: Any, number_format: str | N
         cell.data_type = "s"
         if value.startswith(FORMULA_START):
             cell.quotePrefix = True
+    elif isinstance(value, (date, datetime)):
+        cell.number_format = number_format or DATE
     elif number_format and value is not None:
         cell.number_format = number_format
     return cell
@@ -135,15 +156,17 @@ def add_table(ws: Worksheet, name: str, ref: str) -> None:
 
 
 def fit_widths(ws: Worksheet, from_row: int = 1, minimum: int = 8, maximum: int = 60, sample: int = 300) -> None:
-    """Column widths from the longest text among ``sample`` rows from ``from_row`` (titles above it are
-    left to overflow)."""
+    """Column widths from the longest text among ``sample`` rows from ``from_row``; titles above it, and
+    titles and notes anywhere (written by :func:`title` and :func:`note`), are left to overflow."""
     widths: dict[int, int] = {}
     for row in ws.iter_rows(min_row=from_row, max_row=min(ws.max_row, from_row + sample)):
         for cell in row:
-            if cell.value is None:
+            if cell.value is None or _is_prose(cell):
                 continue
             v = cell.value
-            if isinstance(v, float):
+            if isinstance(v, (date, datetime)):
+                text = "0000-00-00"
+            elif isinstance(v, float):
                 text = f"{v:,.2f}"
             elif isinstance(v, int) and not isinstance(v, bool):
                 text = f"{v:,}"
@@ -152,3 +175,9 @@ def fit_widths(ws: Worksheet, from_row: int = 1, minimum: int = 8, maximum: int 
             widths[cell.column] = max(widths.get(cell.column, 0), len(text) + 2)
     for col, width in widths.items():
         ws.column_dimensions[get_column_letter(col)].width = max(minimum, min(maximum, width))
+
+
+def _is_prose(cell: Cell) -> bool:
+    """A title or note cell (known by its font)."""
+    f = cell.font
+    return bool((f.b and f.sz == TITLE_FONT.sz) or (f.i and f.color is not None and f.color.rgb == NOTE_FONT.color.rgb))

@@ -4,6 +4,8 @@ result, and lays out a title, a short note, then a list written as an Excel tabl
 
 from __future__ import annotations
 
+from collections.abc import Callable
+from datetime import date
 from typing import Any
 
 import polars as pl
@@ -14,11 +16,17 @@ from valuation.engine.results import STATUSES, ValuationResult
 from valuation.engine.write import SMALL_SCHEME
 from valuation.reports import content
 from valuation.reports import excel_cells as xc
-from valuation.reports.content import AE_AXIS_MAX, MIN_EXPECTED, chart_bands
-from valuation.reports.excel_charts import ae_chart, cashflow_chart
+from valuation.reports.excel_charts import cashflow_chart
+from valuation.reports.excel_experience import experience_sheet
+
+__all__ = [
+    "basis_sheet", "cashflows_sheet", "deaths_sheet", "exceptions_sheet", "experience_sheet",
+    "life_expectancy_sheet", "liabilities_sheet", "manifest_sheet", "members_sheet", "sensitivities_sheet",
+    "summary_sheet",
+]
 
 #: Header row of every list sheet (title in row 1, note in row 2); panes freeze below it.
-HEAD = 3
+HEAD = xc.HEAD
 #: Most exception rows written to the workbook; all of them are in exceptions.csv.
 EXCEPTION_ROWS = SMALL_SCHEME
 
@@ -27,11 +35,15 @@ MEMBER_FORMATS = {
     "spouse_liability": xc.MONEY, "lump_sum_liability": xc.MONEY, "annuity_factor": xc.FACTOR,
     "q_next_year": xc.PROBABILITY,
 }
-EXPERIENCE_FORMATS = {
-    "exposure_years": xc.LIVES, "actual_lives": xc.LIVES, "expected_lives": xc.LIVES,
-    "ae_lives": xc.RATIO, "ae_lives_lower": xc.RATIO, "ae_lives_upper": xc.RATIO,
-    "actual_amounts": xc.MONEY, "expected_amounts": xc.MONEY,
-    "ae_amounts": xc.RATIO, "ae_amounts_lower": xc.RATIO, "ae_amounts_upper": xc.RATIO,
+#: Last parts of basis keys whose numbers are rates or proportions (stored as fractions, shown as %).
+BASIS_PERCENT_KEYS = frozenset({"rate", "growth", "cap", "floor", "accrual_rate", "long_term_rate", "percentage",
+                                "fraction", "proportion"})
+#: Basis keys whose entries (one a sex) are proportions.
+BASIS_PERCENT_PARENTS = frozenset({"proportion_married"})
+#: Sensitivity columns in plain words; the change is a fraction of the base liability shown as %.
+SENSITIVITY_LABELS = {
+    "name": "sensitivity", "kind": "assumption changed", "shift": "shift [rate p.a. or years]",
+    "liability": "liability [currency]", "change": "change in liability [% of base liability]",
 }
 
 
@@ -47,7 +59,7 @@ def summary_sheet(ws: Worksheet, result: ValuationResult) -> str:
     xc.title(ws, "Valuation summary")
     rec = s["records"]
     rows: list[tuple[str, Any, str | None]] = [
-        ("Valuation date", s.get("valuation_date"), None),
+        ("Valuation date", xc.as_date(s.get("valuation_date")), xc.DATE),
         ("Basis", s.get("basis_name"), None),
         ("Total liability [currency]", s["liability"]["total"], xc.MONEY),
     ]
@@ -85,20 +97,31 @@ def summary_sheet(ws: Worksheet, result: ValuationResult) -> str:
 def basis_sheet(ws: Worksheet, result: ValuationResult) -> None:
     basis = result.summary.get("manifest", {}).get("basis") or {}
     _list_sheet(ws, "Basis as loaded", "Every setting of the assumptions basis used for this run.")
-    _write_pairs(ws, content.flatten(basis), "Basis")
+    _write_pairs(ws, content.flatten(basis), "Basis", _basis_format)
     xc.fit_widths(ws, HEAD)
 
 
+def _basis_format(key: str) -> str | None:
+    """Rates and proportions of the basis are fractions: shown as %. Other numbers as they are."""
+    parts = key.replace("[", ".").split(".")
+    if parts[-1] in BASIS_PERCENT_KEYS or (len(parts) > 1 and parts[-2] in BASIS_PERCENT_PARENTS):
+        return xc.RATE
+    return None
+
+
 def _scalar_text(value: Any) -> Any:
-    return value if isinstance(value, (int, float, str)) or value is None else str(value)
+    """Numbers and text as they are, ISO dates as dates, anything else as text."""
+    value = xc.as_date(value)
+    return value if isinstance(value, (int, float, str, date)) or value is None else str(value)
 
 
-def _write_pairs(ws: Worksheet, rows: list[tuple[str, Any]], table: str) -> None:
-    """Key/value rows whose values mix numbers and text (each kept as it is)."""
+def _write_pairs(ws: Worksheet, rows: list[tuple[str, Any]], table: str,
+                 number_format: Callable[[str], str | None] = lambda key: None) -> None:
+    """Key/value rows whose values mix numbers, dates and text (each kept as its own type)."""
     xc.header(ws, HEAD, 1, ["Key", "Value"])
     for i, (k, v) in enumerate(rows, start=HEAD + 1):
         xc.put(ws, i, 1, k)
-        xc.put(ws, i, 2, _scalar_text(v))
+        xc.put(ws, i, 2, _scalar_text(v), number_format(k))
     if rows:
         xc.add_table(ws, table, f"A{HEAD}:B{HEAD + len(rows)}")
 
@@ -143,11 +166,12 @@ def cashflows_sheet(ws: Worksheet, result: ValuationResult) -> None:
 def sensitivities_sheet(ws: Worksheet, result: ValuationResult) -> None:
     sens = result.sensitivities
     _list_sheet(ws, "Sensitivities", "Each row values the whole scheme again with one assumption changed "
-                "(IAS 19 para 145). Shifts are rates [p.a.] or years of life expectancy at 65.")
+                "(IAS 19 para 145). Shifts are rates [p.a.] or years of life expectancy at 65; the change is "
+                "against the total liability on the Summary sheet.")
     frame = sens.with_columns((pl.col("change_pct") / 100.0).alias("change")).drop("change_pct") \
         if "change_pct" in sens.columns else sens
     xc.write_frame(ws, frame, top=HEAD, formats={"liability": xc.MONEY, "change": xc.RATIO},
-                   labels={"change": "change in liability"}, table="Sensitivities")
+                   labels=SENSITIVITY_LABELS, table="Sensitivities")
     if "kind" in frame.columns and "shift" in frame.columns:
         scol = frame.columns.index("shift") + 1
         for i, kind in enumerate(frame["kind"].to_list(), start=HEAD + 1):
@@ -171,55 +195,6 @@ def deaths_sheet(ws: Worksheet, result: ValuationResult) -> None:
     xc.key_values(ws, last + 2, [("Total lives", tot.get("lives"), xc.LIVES),
                                  ("Total amounts", tot.get("amounts"), xc.MONEY)])
     xc.fit_widths(ws, HEAD)
-
-
-def experience_sheet(ws: Worksheet, experience: Any) -> None:
-    xc.title(ws, "Experience analysis: actual against expected deaths")
-    settings = experience.settings
-    xc.note(ws, 2, f"Period {settings.period_start.isoformat()} to {settings.period_end.isoformat()}, "
-            f"{settings.exposure} exposure. Ratios 1 = 100 %; intervals at {settings.confidence:.0%} "
-            "confidence; amounts [currency p.a.].")
-    imp = experience.implied or {}
-    rows: list[tuple[str, Any, str | None]] = [
-        ("A/E by amounts (multiplier)", imp.get("multiplier"), xc.RATIO),
-        ("  lower", imp.get("multiplier_lower"), xc.RATIO),
-        ("  upper", imp.get("multiplier_upper"), xc.RATIO),
-        ("Implied percentage of table [%]", imp.get("implied_percentage"), "0.0"),
-        ("  lower [%]", imp.get("lower"), "0.0"),
-        ("  upper [%]", imp.get("upper"), "0.0"),
-        ("Liability before [currency]", imp.get("liability_before"), xc.MONEY),
-        ("Liability after [currency]", imp.get("liability_after"), xc.MONEY),
-        ("Change [%]", imp.get("change_pct"), "0.00"),
-    ]
-    rows = [r for r in rows if r[1] is not None]
-    if imp.get("note"):
-        rows.append(("Note", imp["note"], None))
-    if imp.get("reason"):
-        rows.append(("Liability effect", imp["reason"], None))
-    top = xc.key_values(ws, HEAD, rows) + 1
-    by_table = pl.DataFrame(imp.get("by_table") or [], schema={
-        "group": pl.String, "sex": pl.String, "current_percentage": pl.Float64, "implied_percentage": pl.Float64,
-        "lower": pl.Float64, "upper": pl.Float64})
-    if by_table.height:
-        xc.put(ws, top, 1, "Implied percentage by table [%]").font = xc.TITLE_FONT
-        pct = {c: "0.0" for c in by_table.columns[2:]}
-        top = xc.write_frame(ws, by_table, top=top + 1, formats=pct, table="ImpliedByTable") + 2
-    ages = chart_bands(content.ae_by_age(experience)).select(
-        "group", "exposure_years", "actual_lives", "expected_lives", "ae_lives", "ae_lives_lower", "ae_lives_upper")
-    xc.put(ws, top, 1, f"By age band (bands with at least {MIN_EXPECTED:g} expected death; all bands below)"
-           ).font = xc.TITLE_FONT
-    last = xc.write_frame(ws, ages, top=top + 1, formats=EXPERIENCE_FORMATS, table="AEByAge",
-                          labels={"group": "age band"})
-    if ages.height:
-        upper = ages["ae_lives_upper"].fill_nan(None).drop_nulls()
-        y_max = min(AE_AXIS_MAX / 100.0, 1.05 * float(upper.max())) if upper.len() else None
-        ae_chart(ws, header_row=top + 1, last_row=last, group_col=1, ae_col=5, lower_col=6, upper_col=7,
-                 anchor=f"I{HEAD}", y_max=y_max)
-    top = max(last + 3, HEAD + 22)
-    xc.put(ws, top - 1, 1, "All groups").font = xc.TITLE_FONT
-    xc.write_frame(ws, experience.table, top=top, formats=EXPERIENCE_FORMATS, table="Experience")
-    xc.fit_widths(ws, HEAD + len(rows) + 1)
-    ws.column_dimensions["A"].width = max(ws.column_dimensions["A"].width or 0, 34)
 
 
 def exceptions_sheet(ws: Worksheet, result: ValuationResult) -> None:

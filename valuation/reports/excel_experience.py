@@ -1,0 +1,123 @@
+"""The Experience sheet of the actuary's workbook: actual against expected deaths over the period.
+
+Every percentage on the sheet (A/E ratios, implied percentages of the table, the change in liability) is
+stored as a fraction (1.07, not 107) with the one percent format :data:`PERCENT`, so a reader can use the
+cells in formulas without dividing by 100. The analysis itself reports implied percentages and the change
+in percent; they are divided by 100 here.
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+import polars as pl
+from openpyxl.worksheet.worksheet import Worksheet
+
+from valuation.reports import content
+from valuation.reports import excel_cells as xc
+from valuation.reports.content import AE_AXIS_MAX, MIN_EXPECTED, chart_bands
+from valuation.reports.excel_charts import ae_chart
+
+#: The sheet's one percent format (fractions shown as %).
+PERCENT = xc.RATIO
+#: Number formats of the experience table's columns.
+EXPERIENCE_FORMATS = {
+    "exposure_years": xc.LIVES, "actual_lives": xc.LIVES, "expected_lives": xc.LIVES,
+    "ae_lives": PERCENT, "ae_lives_lower": PERCENT, "ae_lives_upper": PERCENT,
+    "actual_amounts": xc.MONEY, "expected_amounts": xc.MONEY,
+    "ae_amounts": PERCENT, "ae_amounts_lower": PERCENT, "ae_amounts_upper": PERCENT,
+}
+#: The experience table's columns in plain words.
+EXPERIENCE_LABELS = {
+    "dimension": "grouped by", "group": "group", "exposure_years": "exposure [years]",
+    "actual_lives": "actual deaths [lives]", "expected_lives": "expected deaths [lives]",
+    "ae_lives": "A/E lives", "ae_lives_lower": "A/E lives lower", "ae_lives_upper": "A/E lives upper",
+    "actual_amounts": "actual deaths [pension, currency p.a.]",
+    "expected_amounts": "expected deaths [pension, currency p.a.]",
+    "ae_amounts": "A/E amounts", "ae_amounts_lower": "A/E amounts lower", "ae_amounts_upper": "A/E amounts upper",
+}
+#: The implied percentages by table, in plain words.
+BY_TABLE_LABELS = {
+    "group": "members", "sex": "sex", "current_percentage": "current percentage of table",
+    "implied_percentage": "implied percentage of table", "lower": "lower", "upper": "upper",
+}
+_BY_TABLE_SCHEMA = {"group": pl.String, "sex": pl.String, "current_percentage": pl.Float64,
+                    "implied_percentage": pl.Float64, "lower": pl.Float64, "upper": pl.Float64}
+
+
+def _fraction(percent: Any) -> float | None:
+    """A figure in percent (107.4) as a fraction (1.074); None stays None."""
+    return None if percent is None else float(percent) / 100.0
+
+
+def headline_rows(implied: dict[str, Any]) -> list[tuple[str, Any, str | None]]:
+    """The overall A/E by amounts, the implied percentage of the table and the liability effect, as
+    (label, value, number format) rows; percentages as fractions."""
+    rows: list[tuple[str, Any, str | None]] = [
+        ("A/E by amounts (weighted by pension)", implied.get("multiplier"), PERCENT),
+        ("  lower", implied.get("multiplier_lower"), PERCENT),
+        ("  upper", implied.get("multiplier_upper"), PERCENT),
+        ("Implied percentage of table", _fraction(implied.get("implied_percentage")), PERCENT),
+        ("  lower", _fraction(implied.get("lower")), PERCENT),
+        ("  upper", _fraction(implied.get("upper")), PERCENT),
+        ("Liability on the valuation basis [currency]", implied.get("liability_before"), xc.MONEY),
+        ("Liability, q scaled by A/E amounts [currency]", implied.get("liability_after"), xc.MONEY),
+        ("Change in liability", _fraction(implied.get("change_pct")), PERCENT),
+    ]
+    return [r for r in rows if r[1] is not None]
+
+
+def by_table_frame(implied: dict[str, Any]) -> pl.DataFrame:
+    """The implied percentage for each (group, sex) with plain group names; percentages as fractions."""
+    frame = pl.DataFrame(implied.get("by_table") or [], schema=_BY_TABLE_SCHEMA)
+    pct = [c for c in _BY_TABLE_SCHEMA if _BY_TABLE_SCHEMA[c] == pl.Float64]
+    return frame.with_columns(
+        pl.col("group").replace(content.STATUS_LABELS),
+        pl.col("sex").replace(content.SEX_LABELS),
+        *[(pl.col(c) / 100.0) for c in pct],
+    )
+
+
+def experience_sheet(ws: Worksheet, experience: Any) -> None:
+    """Write the experience analysis: period, headline A/E and its effect, implied percentages by table,
+    A/E by age band with a chart, and every group."""
+    head = xc.HEAD
+    settings = experience.settings
+    xc.title(ws, "Experience analysis: actual against expected deaths")
+    xc.note(ws, 2, f"A/E is actual deaths divided by those expected on the valuation basis (100% = as expected), "
+            f"using {settings.exposure} exposure; intervals at {settings.confidence:.0%} confidence; amounts are "
+            "pensions [currency p.a.].")
+    ws.freeze_panes = ws.cell(row=head, column=1)
+    implied = experience.implied or {}
+    rows: list[tuple[str, Any, str | None]] = [
+        ("Period start", settings.period_start, xc.DATE),
+        ("Period end", settings.period_end, xc.DATE),
+        *headline_rows(implied),
+    ]
+    top = xc.key_values(ws, head, rows)
+    for text in content.implied_notes(implied):
+        xc.note(ws, top, text)
+        top += 1
+    top += 1
+    by_table = by_table_frame(implied)
+    if by_table.height:
+        xc.put(ws, top, 1, "Implied percentage of the table, by group and sex").font = xc.TITLE_FONT
+        formats = dict.fromkeys(by_table.columns[2:], PERCENT)
+        top = xc.write_frame(ws, by_table, top=top + 1, formats=formats, labels=BY_TABLE_LABELS,
+                             table="ImpliedByTable") + 2
+    ages = chart_bands(content.ae_by_age(experience)).select(
+        "group", "exposure_years", "actual_lives", "expected_lives", "ae_lives", "ae_lives_lower", "ae_lives_upper")
+    xc.put(ws, top, 1, f"By age band (bands with at least {MIN_EXPECTED:g} expected death; all bands below)"
+           ).font = xc.TITLE_FONT
+    last = xc.write_frame(ws, ages, top=top + 1, formats=EXPERIENCE_FORMATS, table="AEByAge",
+                          labels=EXPERIENCE_LABELS | {"group": "age band"})
+    if ages.height:
+        upper = ages["ae_lives_upper"].fill_nan(None).drop_nulls()
+        y_max = min(AE_AXIS_MAX / 100.0, 1.05 * float(upper.max())) if upper.len() else None
+        ae_chart(ws, header_row=top + 1, last_row=last, group_col=1, ae_col=5, lower_col=6, upper_col=7,
+                 anchor=f"I{head}", y_max=y_max)
+    top = max(last + 3, head + 22)
+    xc.put(ws, top - 1, 1, "All groups").font = xc.TITLE_FONT
+    xc.write_frame(ws, experience.table, top=top, formats=EXPERIENCE_FORMATS, labels=EXPERIENCE_LABELS,
+                   table="Experience")
+    xc.fit_widths(ws, head)
