@@ -390,8 +390,18 @@ class RunAccumulator:
 
 
 def input_hashes(paths: Iterable[str | Path | None]) -> dict[str, str]:
-    """SHA-256 of every input file, keyed by the path as given."""
-    return {str(p): file_sha256(p) for p in paths if p is not None}
+    """SHA-256 of every input file, keyed by its path (relative to the working folder when inside it)."""
+    out = {}
+    for p in paths:
+        if p is None:
+            continue
+        path = Path(p)
+        try:
+            key = str(path.resolve().relative_to(Path.cwd().resolve()))
+        except ValueError:
+            key = str(path)
+        out[key] = file_sha256(path)
+    return out
 
 
 def value_members(
