@@ -8,6 +8,7 @@ import numpy as np
 import polars as pl
 
 from valuation.experience.intervals import ae_amounts_interval, ae_lives_interval
+from valuation.experience.result import TABLE_COLUMNS
 
 #: Dimensions of the A/E table, in output order.
 DIMENSIONS: tuple[str, ...] = ("overall", "sex", "status", "age_band", "pension_band", "calendar_year")
@@ -163,18 +164,6 @@ def ae_table(
         pl.Series("ae_amounts_lower", wlo),
         pl.Series("ae_amounts_upper", whi),
     ).select(
-        "dimension",
-        "group",
-        "exposure_years",
-        "actual_lives",
-        "expected_lives",
-        "ae_lives",
-        "ae_lives_lower",
-        "ae_lives_upper",
-        "actual_amounts",
-        "expected_amounts",
-        "ae_amounts",
-        "ae_amounts_lower",
-        "ae_amounts_upper",
+        *TABLE_COLUMNS,
         "var_amounts",
     )
