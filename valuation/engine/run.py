@@ -291,7 +291,10 @@ class RunAccumulator:
         for key, values in parts:
             self.cell_sums[key] = self.cell_sums.get(key, np.zeros(N_CELLS)) + _cell_sums(code, values)
         self.death_lives += _cell_sums(code, proj.q_next)
-        self.death_amounts += _cell_sums(code, proj.q_next * proj.amount_now)
+        # by amounts: each life weighted by the pension on its record (in payment, deferred, or accrued for
+        # a career-average active), the same weight the experience analysis counts actual deaths with
+        pension = records["pension"].fill_null(0.0).to_numpy().astype(float)
+        self.death_amounts += _cell_sums(code, proj.q_next * pension)
         ages = records[AGE_COLUMN].to_numpy()
         members = pl.DataFrame({
             "member_id": records["member_id"], "status": records["status"], "sex": records["sex"],
