@@ -176,8 +176,8 @@ def _value_on_grid(
     if (d < 0).any() or (guar < 0).any() or (span < 0).any():
         raise ValueError("deferral, term and guarantee must be >= 0 [years]")
     # payments beyond the last possible survival date only count while guaranteed
-    horizon = np.minimum(np.maximum(max_remaining - d, guar), span)
-    horizon = float(min(max_term, np.max(horizon, initial=0.0)))
+    horizons = np.minimum(np.maximum(max_remaining - d, guar), span)
+    horizon = float(min(max_term, np.max(horizons, initial=0.0)))
     n_max = np.floor(max_term * m + _EPS)  # payments within max_term years of the start of payment
     n_grid = int(min(np.ceil(horizon * m - _EPS) + 1, n_max))
     k = np.arange(n_grid, dtype=np.float64)

@@ -80,7 +80,7 @@ def exact_age(dob: ArrayLike, at: date | np.datetime64) -> NDArray[np.float64]:
     Common practice (the day-count rule for a fraction of a birthday-year is the tool's own stated rule).
     """
     d = np.asarray(dob, dtype="datetime64[D]")
-    a = np.datetime64(at, "D")
+    a = np.datetime64(at, "D")  # type: ignore[call-overload]  # numpy stubs omit a datetime64 input with a unit
     missing = np.isnat(d)
     d_ok = np.where(missing, a, d)
     birth_month = d_ok.astype("datetime64[M]")

@@ -61,6 +61,11 @@ class TrancheRule(BaseModel):
     revaluation: RevaluationRule = RevaluationRule()
 
 
+def _no_spouse() -> dict[Sex, float]:
+    """Default ``proportion_married``: no member is married [fraction]."""
+    return {"M": 0.0, "F": 0.0}
+
+
 class SpouseAssumption(BaseModel):
     """Spouse's (partner's) pension on the member's death.
 
@@ -70,7 +75,7 @@ class SpouseAssumption(BaseModel):
     """
 
     model_config = STRICT
-    proportion_married: dict[Sex, float] = Field(default_factory=lambda: {"M": 0.0, "F": 0.0})
+    proportion_married: dict[Sex, float] = Field(default_factory=_no_spouse)
     age_difference: float = Field(default=3.0, ge=-20.0, le=20.0)
     fraction: float = Field(default=0.0, ge=0.0, le=1.0)
 

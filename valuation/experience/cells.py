@@ -12,7 +12,7 @@ References
 from __future__ import annotations
 
 from datetime import date
-from typing import Protocol
+from typing import TYPE_CHECKING, Protocol
 
 import numpy as np
 import polars as pl
@@ -21,6 +21,10 @@ from numpy.typing import ArrayLike, NDArray
 from valuation.experience.checks import empty_exceptions
 from valuation.experience.exposure import DAYS_PER_YEAR, explode_exposure, initial_extension_days
 from valuation.experience.settings import ExperienceSettings
+
+if TYPE_CHECKING:
+    from valuation.basis.mortality_entries import Group
+    from valuation.basis.rules import Sex
 
 
 class Rates(Protocol):
@@ -32,7 +36,9 @@ class Rates(Protocol):
 
 
 class RateLookup(Protocol):
-    def __call__(self, group: str, sex: str) -> Rates: ...
+    """``lookup(group, sex)`` -> the mortality of a member group and sex (``Basis.mortality`` fits)."""
+
+    def __call__(self, group: Group, sex: Sex) -> Rates: ...
 
 
 def late_cutoff(settings: ExperienceSettings) -> date:

@@ -19,6 +19,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 from datetime import date
+from typing import TypedDict
 
 import polars as pl
 
@@ -70,6 +71,17 @@ def _problems(df: pl.DataFrame, file: str, checks: list[Check]) -> pl.DataFrame:
                 )
             )
     return pl.concat(frames, how="vertical") if frames else empty_exceptions()
+
+
+class _Common(TypedDict):
+    """Keyword arguments :func:`_basic_checks` takes for both deaths and exits."""
+
+    valued: pl.Series
+    excluded: pl.Series
+    start: date
+    end: date
+    members_file: str
+    date_format: str | None
 
 
 def _basic_checks(
@@ -220,7 +232,7 @@ def check_events(
     valued_ids = valued_ids.cast(pl.String)
     excluded_ids = excluded_ids.cast(pl.String).drop_nulls().unique()
     excluded_ids = excluded_ids.filter(~excluded_ids.is_in(valued_ids.implode()))
-    common = dict(
+    common = _Common(
         valued=valued_ids,
         excluded=excluded_ids,
         start=period_start,

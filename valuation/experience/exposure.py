@@ -19,6 +19,8 @@ References
 
 from __future__ import annotations
 
+from typing import cast
+
 import numpy as np
 from numpy.typing import NDArray
 
@@ -49,7 +51,7 @@ def make_dates(year: Ints, month: Ints, day: Ints) -> Dates:
     month = np.asarray(month, dtype=np.int64)
     day = np.asarray(day, dtype=np.int64)
     first = (year - 1970).astype("datetime64[Y]").astype("datetime64[M]") + (month - 1)
-    return first.astype("datetime64[D]") + (day - 1)
+    return cast(Dates, first.astype("datetime64[D]") + (day - 1))
 
 
 def age_last_birthday(dob: object, on: object) -> Ints:

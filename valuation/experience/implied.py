@@ -10,9 +10,13 @@ from __future__ import annotations
 
 import math
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from valuation.experience.cells import RateLookup
+
+if TYPE_CHECKING:
+    from valuation.basis.mortality_entries import Group
+    from valuation.basis.rules import Sex
 
 
 def _pct(x: float) -> float | None:
@@ -23,7 +27,7 @@ def implied_percentages(
     ae_amounts: float,
     lower: float,
     upper: float,
-    groups: list[tuple[str, str]],
+    groups: list[tuple[Group, Sex]],
     lookup: RateLookup,
 ) -> dict[str, Any]:
     """Implied percentages of the base tables from the overall A/E by amounts.
@@ -52,7 +56,7 @@ def implied_percentages(
     Analysis of Mortality and Other Actuarial Statistics*, 3rd ed., on comparing experience with a
     standard table).
     """
-    by_table = []
+    by_table: list[dict[str, Any]] = []
     for group, sex in groups:
         current = round(float(getattr(lookup(group, sex), "percentage", 1.0)), 12)
         by_table.append(

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import math
+from collections.abc import Mapping
 
 import numpy as np
 import polars as pl
@@ -75,7 +76,7 @@ def _factorize(keys: pl.Series) -> tuple[list[str], np.ndarray]:
 
 
 def _grouped(
-    sums: dict[str, np.ndarray], dimension: str, keys: pl.Series, order: dict[str, float] | None
+    sums: dict[str, np.ndarray], dimension: str, keys: pl.Series, order: Mapping[str, float] | None
 ) -> pl.DataFrame:
     """Sum the cell columns by ``keys`` (numpy bincount); groups sorted by ``order`` (default: the key)."""
     names, inverse = _factorize(keys)

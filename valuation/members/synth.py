@@ -140,7 +140,7 @@ def make_dirty(
         {"status": "Z"},
         {"sex": "X"},
         {"member_id": "__prev_id__"},
-        {"pension": "123456.78"} | {c: "1.00" for c in tr},
+        {"pension": "123456.78", **{c: "1.00" for c in tr}},
         {"status": "pensioner", "pension": None} | {c: None for c in tr},
         {"status": "active", "salary": None, "service_years": "10"},
         {"spouse_date_of_birth": "1880-01-01"},

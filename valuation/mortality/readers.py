@@ -270,7 +270,7 @@ def _parse_xtable(elem: ET.Element, k: int, file: Path) -> _XTable:
     meta = _child(elem, "MetaData")
     label = _text(meta, "TableDescription") or f"Table {k}"
     scaling = _int_or_none(_text(meta, "ScalingFactor"), f"{label}: ScalingFactor", file) or 0
-    axes = []
+    axes: list[dict[str, Any]] = []
     for ad in [] if meta is None else _children(meta, "AxisDef"):
         axes.append({
             "type": _text(ad, "ScaleType") or "",

@@ -9,12 +9,16 @@ from __future__ import annotations
 
 import io
 import re
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 import polars as pl
 from matplotlib import rc_context
 from matplotlib.figure import Figure
 from matplotlib.ticker import FuncFormatter, MaxNLocator
+
+if TYPE_CHECKING:
+    from matplotlib.typing import RcKeyType
 
 from valuation.engine.results import STATUSES
 from valuation.reports.content import AE_AXIS_MAX, STATUS_LABELS, chart_bands
@@ -27,7 +31,7 @@ ACCENT = "#b5543c"
 GRID = "#d9dfdc"
 INK = "#2b2b2b"
 
-_RC = {
+_RC: dict[RcKeyType, Any] = {
     "svg.fonttype": "none", "svg.hashsalt": "valuation-report", "font.family": "sans-serif",
     "font.size": 10, "axes.edgecolor": GRID, "axes.labelcolor": INK, "xtick.color": INK, "ytick.color": INK,
     "axes.spines.top": False, "axes.spines.right": False,

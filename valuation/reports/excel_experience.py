@@ -8,7 +8,7 @@ in percent; they are divided by 100 here.
 
 from __future__ import annotations
 
-from typing import Any
+from typing import Any, cast
 
 import polars as pl
 from openpyxl.worksheet.worksheet import Worksheet
@@ -113,7 +113,7 @@ def experience_sheet(ws: Worksheet, experience: Any) -> None:
                           labels=EXPERIENCE_LABELS | {"group": "age band"})
     if ages.height:
         upper = ages["ae_lives_upper"].fill_nan(None).drop_nulls()
-        y_max = min(AE_AXIS_MAX / 100.0, 1.05 * float(upper.max())) if upper.len() else None
+        y_max = min(AE_AXIS_MAX / 100.0, 1.05 * float(cast(float, upper.max()))) if upper.len() else None
         ae_chart(ws, header_row=top + 1, last_row=last, group_col=1, ae_col=5, lower_col=6, upper_col=7,
                  anchor=f"I{head}", y_max=y_max)
     top = max(last + 3, head + 22)
