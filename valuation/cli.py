@@ -40,6 +40,8 @@ class _Progress:
 
         if self.bar is None:
             self.bar = tqdm(total=total, desc=label, unit="step", leave=False)
+        if total != self.bar.total:
+            self.bar.total = total
         self.bar.set_description(label)
         self.bar.n = done
         self.bar.refresh()
@@ -93,6 +95,7 @@ def cmd_run(args: argparse.Namespace) -> int:
     basis = load_basis(args.basis)
     if args.stream:
         return _run_streaming(args, basis, progress)
+    progress("reading", 0, 1)
     data = read_members(args.members, basis)
     _say(args, data.reconciliation_text())
     experience = None
@@ -105,12 +108,13 @@ def cmd_run(args: argparse.Namespace) -> int:
         extra_inputs = [p for p in (args.start_members, args.deaths, args.exits) if p]
     result = value_members(data, basis, sensitivities=not args.no_sensitivities, chunk_size=args.chunk_size,
                            progress=progress, input_files=extra_inputs)
-    progress.close()
+    progress("writing", 0, 1)
     out = Path(args.out) if args.out else Path("outputs") / Path(args.members).stem
     writers = [] if args.no_reports else _report_writers(experience)
     if experience is not None:
         writers.append(lambda _res, folder: experience.write(folder))
     write_run(result, out, extra=writers)
+    progress.close()
     _say(args, _headline(result))
     if experience is not None:
         _say(args, _experience_line(experience))

@@ -223,8 +223,10 @@ class RunAccumulator:
         q_multiplier: float = 1.0,
         sensitivities: bool = True,
         member_sink: Callable[[pl.DataFrame], None] | None = None,
+        on_step: Callable[[str], None] | None = None,
     ) -> None:
         self.basis = basis
+        self.on_step = on_step
         self.q_multiplier = q_multiplier
         self.sensitivities = sensitivities
         self.scenarios = scenarios_from_basis(basis, basis.valuation_date.year) if sensitivities else []
@@ -252,6 +254,7 @@ class RunAccumulator:
         basis = self.basis
         records = with_ages(records, basis)
         proj = self.base.value(records)
+        self._step("valuing")
         liability = proj.liability
         self.total += float(liability.sum())
         self.lumps += float(proj.lump.sum())
@@ -262,6 +265,7 @@ class RunAccumulator:
             act = records.filter(pl.Series(active))
             self.active_total += float(liability[active].sum())
             self.abo += float(self.no_growth.value(act).liability.sum())
+            self._step("accrued-benefit measure")
             # current service cost: the value of the benefits the coming year of service earns. Pensions
             # (and the cash commuted from them) grow with service or with the accrued pension; the
             # death-in-service lump sum is attributed straight-line to the date of death (project.py).
@@ -284,6 +288,7 @@ class RunAccumulator:
                 self.scenario_totals[sc.name] += float(liability[~active].sum() + part)
             else:
                 self.scenario_totals[sc.name] += float(self.valuers[sc.name].value(records).liability.sum())
+            self._step(f"sensitivity: {sc.name}")
         code = _group_code(records)
         parts = [((tr, "member_pension"), proj.own[:, j]) for j, tr in enumerate(self.tranches)]
         parts += [((tr, "spouse_pension"), proj.spouse[:, j]) for j, tr in enumerate(self.tranches)]
@@ -307,6 +312,15 @@ class RunAccumulator:
             self.member_sink(members)
         else:
             self.members.append(members)
+
+    @property
+    def steps_per_chunk(self) -> int:
+        """Progress steps one chunk reports (base, accrued-benefit measure, each re-valued sensitivity)."""
+        return 2 + len(self.valuers)
+
+    def _step(self, label: str) -> None:
+        if self.on_step is not None:
+            self.on_step(label)
 
     def finish(
         self,
@@ -425,14 +439,21 @@ def value_members(
     started = datetime.now(timezone.utc)
     t0 = time.perf_counter()
     records: pl.DataFrame = member_data.records
-    acc = RunAccumulator(basis, q_multiplier=q_multiplier, sensitivities=sensitivities)
     n_chunks = max(1, -(-records.height // chunk_size))
-    for k, chunk in enumerate(_chunks(records, chunk_size)):
+    done = [0]
+    total_steps = [n_chunks * 2]
+
+    def step(label: str) -> None:
+        done[0] += 1
         if progress:
-            progress("valuing", k, n_chunks)
-        acc.add(chunk)
+            progress(label, done[0], total_steps[0])
+
+    acc = RunAccumulator(basis, q_multiplier=q_multiplier, sensitivities=sensitivities, on_step=step)
+    total_steps[0] = n_chunks * acc.steps_per_chunk
     if progress:
-        progress("valuing", n_chunks, n_chunks)
+        progress("valuing", 0, total_steps[0])
+    for chunk in _chunks(records, chunk_size):
+        acc.add(chunk)
     return acc.finish(
         read=member_data.read, valued=member_data.valued, excluded=member_data.excluded,
         counts=member_data.counts_by_status(), exceptions=member_data.exceptions,
