@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from pydantic import BaseModel, Field, field_validator
+from pydantic import BaseModel, Field, ValidationInfo, field_validator
 
 from valuation.basis.rules import STRICT
 from valuation.members.schema import SEXES, STATUSES
@@ -32,20 +32,13 @@ class ColumnMapping(BaseModel):
     sex_codes: dict[str, str] = Field(default_factory=dict)
     date_format: str | None = None
 
-    @field_validator("status_codes")
+    @field_validator("status_codes", "sex_codes")
     @classmethod
-    def _statuses(cls, v: dict[str, str]) -> dict[str, str]:
-        bad = sorted({s for s in v.values() if s not in STATUSES})
+    def _codes(cls, v: dict[str, str], info: ValidationInfo) -> dict[str, str]:
+        allowed, what = (STATUSES, "status") if info.field_name == "status_codes" else (SEXES, "sex")
+        bad = sorted({s for s in v.values() if s not in allowed})
         if bad:
-            raise ValueError(f"status codes must map to one of {', '.join(STATUSES)}; got {', '.join(bad)}")
-        return v
-
-    @field_validator("sex_codes")
-    @classmethod
-    def _sexes(cls, v: dict[str, str]) -> dict[str, str]:
-        bad = sorted({s for s in v.values() if s not in SEXES})
-        if bad:
-            raise ValueError(f"sex codes must map to one of {', '.join(SEXES)}; got {', '.join(bad)}")
+            raise ValueError(f"{what} codes must map to one of {', '.join(allowed)}; got {', '.join(bad)}")
         return v
 
     @field_validator("date_format")

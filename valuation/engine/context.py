@@ -15,7 +15,6 @@ References
 from __future__ import annotations
 
 from dataclasses import dataclass, field
-from typing import Callable
 
 import numpy as np
 from numpy.typing import NDArray
@@ -158,5 +157,3 @@ class Context:
         """(1 + salary growth)^t on the monthly grid."""
         return (1.0 + self.salary_growth) ** (np.arange(self.months) / 12.0)
 
-
-IndexFn = Callable[[NDArray[np.int64]], NDArray[np.float64]]

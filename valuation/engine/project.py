@@ -207,7 +207,7 @@ class Valuer:
                 at_start_sp = self.revalue[:, start].T  # (N, J)
                 growth = self.revalue
             else:
-                base, at_start_sp, growth, dis_lump, dis_cf, dis_unit = self._active(df, x0, rows_x, lx0, start)
+                base, at_start_sp, growth, dis_lump, dis_cf, dis_unit = self._active(df, x0, rows_x, start)
                 lump += dis_lump
                 cash += dis_cf
             at_start = at_start_sp * keep
@@ -274,7 +274,7 @@ class Valuer:
             cash += res.cashflow
         return own, spouse, lump, lump_comm, dis_unit, factor, q_next, base.sum(axis=1), cash
 
-    def _active(self, df: pl.DataFrame, x0: NDArray, rows_x: NDArray, lx0: NDArray, start: NDArray) -> tuple:
+    def _active(self, df: pl.DataFrame, x0: NDArray, rows_x: NDArray, start: NDArray) -> tuple:
         """Projected unit credit for actives.
 
         Returns the base amounts (N, J), the factor on them at retirement (N, J), the growth index for a

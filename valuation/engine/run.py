@@ -73,13 +73,6 @@ def project_records(
     )
 
 
-def total_liability(records: pl.DataFrame, basis: Any, scenario: Scenario = BASE, *,
-                    base_multiplier: float = 1.0, chunk_size: int = DEFAULT_CHUNK) -> float:
-    """Total liability [currency] of ``records`` under one scenario (no per-member results kept)."""
-    valuer = Valuer(basis, scenario, base_multiplier)
-    return float(sum(valuer.value(chunk).liability.sum() for chunk in _chunks(records, chunk_size)))
-
-
 def _month_times(months: int) -> np.ndarray:
     return np.arange(months) / 12.0
 

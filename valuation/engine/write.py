@@ -13,8 +13,6 @@ from contextlib import contextmanager
 from pathlib import Path
 from typing import Iterator
 
-import polars as pl
-
 from valuation.engine.results import ValuationResult
 from valuation.manifest import dump_json
 
@@ -87,10 +85,4 @@ def write_run(result: ValuationResult, out_dir: str | Path, *, extra: list[Extra
     return out_dir
 
 
-def read_summary(folder: str | Path) -> dict:
-    import json
-
-    return json.loads((Path(folder) / "summary.json").read_text(encoding="utf-8"))
-
-
-__all__ = ["atomic_folder", "write_run", "write_tables", "read_summary", "SMALL_SCHEME", "pl"]
+__all__ = ["atomic_folder", "write_run", "write_tables", "SMALL_SCHEME"]
