@@ -222,7 +222,7 @@ def test_joint_and_last_survivor() -> None:
     assert np.allclose(joint_life(tp_x, tp_y), tp_x * tp_y)
     ls = last_survivor(tp_x, tp_y)
     # last survivor = 1 - (1 - tp_x)(1 - tp_y): both must have died for it to fail
-    np.testing.assert_allclose(ls, 1 - (1 - tp_x) * (1 - tp_y), atol=1e-15)
+    np.testing.assert_allclose(ls, 1 - (1 - tp_x) * (1 - tp_y), atol=4e-15)
 
 
 def test_bad_q_rows_raise_table_error_naming_age() -> None:
