@@ -1,18 +1,23 @@
 """Command line. Parses arguments and calls the library; every command is one Python call away.
 
-Exit codes: 0 success; 1 unexpected internal error; 2 usage error (bad arguments); 3 fatal input error
-(a data, basis or table file that cannot be used: the message on stderr names the file, row, column and
-the fix). Nothing is left half-written: run folders are written to a temporary folder and moved into
-place at the end.
+Exit codes: 0 success; 1 unexpected internal error; 2 usage error (bad arguments, a file named on the
+command line that does not exist); 3 fatal input or output error (a data, basis or table file that cannot
+be used, or an output path that would destroy something: the message on stderr names the file, row, column
+and the fix); 4 more records excluded than the basis allows (``--accept-exclusions`` to value anyway);
+130 interrupted. Nothing is left half-written: run folders are written to a temporary folder and moved into
+place at the end, and nothing the tool did not write is deleted or overwritten.
 """
 
 from __future__ import annotations
 
 import argparse
+import os
 import signal
 import sys
+import tempfile
 import textwrap
 import threading
+from collections.abc import Callable
 from datetime import date
 from pathlib import Path
 from typing import Any
@@ -20,10 +25,58 @@ from typing import Any
 from valuation import __version__
 from valuation.errors import ValuationError
 
-EXIT_OK, EXIT_INTERNAL, EXIT_USAGE, EXIT_INPUT = 0, 1, 2, 3
+EXIT_OK, EXIT_INTERNAL, EXIT_USAGE, EXIT_INPUT, EXIT_EXCLUSIONS, EXIT_INTERRUPTED = 0, 1, 2, 3, 4, 130
 
-EPILOG_EXIT = """exit codes: 0 ok; 1 internal error; 2 usage error; 3 input error (data, basis or table file),
-with the message on stderr."""
+EPILOG_EXIT = """exit codes: 0 ok; 1 internal error; 2 usage error (bad option, missing file); 3 input or
+output error (data, basis or table file; an output path that holds other files); 4 more records excluded
+than the basis allows (--accept-exclusions to value anyway); 130 interrupted. Messages go to stderr."""
+
+
+# ----------------------------------------------------------------------------------------------------
+# Values checked by the parser: a wrong value is a usage error (exit 2) with a plain message.
+# ----------------------------------------------------------------------------------------------------
+
+
+def iso_date(text: str) -> date:
+    """A date given on the command line, in ISO form."""
+    try:
+        return date.fromisoformat(text.strip())
+    except ValueError:
+        raise argparse.ArgumentTypeError(
+            f"'{text}' is not a date in ISO form YYYY-MM-DD (for example 2025-03-31)") from None
+
+
+def _number(kind: Callable[[str], Any], what: str, test: Callable[[Any], bool]) -> Callable[[str], Any]:
+    def parse(text: str) -> Any:
+        try:
+            value = kind(text)
+        except ValueError:
+            raise argparse.ArgumentTypeError(f"'{text}' is not {what}") from None
+        if value != value or not test(value):  # NaN fails every test
+            raise argparse.ArgumentTypeError(f"'{text}' is not {what}")
+        return value
+
+    parse.__name__ = what
+    return parse
+
+
+positive_int = _number(int, "a whole number of 1 or more", lambda v: v >= 1)
+non_negative_int = _number(int, "a whole number of 0 or more", lambda v: v >= 0)
+probability = _number(float, "a level strictly between 0 and 1 (for example 0.95)", lambda v: 0 < v < 1)
+positive_float = _number(float, "a number above 0", lambda v: 0 < v < float("inf"))
+non_negative_float = _number(float, "a number of 0 or more", lambda v: 0 <= v < float("inf"))
+
+
+def existing_file(text: str) -> Path:
+    """A path to an input file that exists."""
+    p = Path(text)
+    if p.is_dir():
+        raise argparse.ArgumentTypeError(f"'{text}' is a folder; give the file inside it")
+    if not p.is_file():
+        raise argparse.ArgumentTypeError(f"file not found: '{text}'")
+    if not os.access(p, os.R_OK):
+        raise argparse.ArgumentTypeError(f"no permission to read '{text}'")
+    return p
 
 
 class _Progress:
@@ -51,9 +104,28 @@ class _Progress:
             self.bar.close()
 
 
+def _print(text: str, *, file: Any = None) -> None:
+    """Print, quietly giving up when the reader has gone (output piped into ``head``)."""
+    stream = file or sys.stdout
+    try:
+        print(text, file=stream, flush=True)
+    except BrokenPipeError:
+        _silence(stream)
+
+
+def _silence(stream: Any) -> None:
+    """Send the rest of a stream's output nowhere (the reader of a pipe has gone)."""
+    try:
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, stream.fileno())
+        os.close(devnull)
+    except (OSError, ValueError):  # not a real file (a test capture)
+        pass
+
+
 def _say(args: argparse.Namespace, text: str) -> None:
     if not args.quiet:
-        print(text)
+        _print(text)
 
 
 def _report_writers(experience: Any = None) -> list:
@@ -85,75 +157,86 @@ def _headline(result: Any) -> str:
     return "\n".join(lines)
 
 
+def _default_out(stem: str, when: date) -> Path:
+    """``outputs/<stem>-<date>``, or the first free ``-2``, ``-3``... beside it: defaults never collide."""
+    from valuation.engine.write import free_folder
+
+    return free_folder(Path("outputs") / f"{stem}-{when.isoformat()}")
+
+
+def _warn_ignored(args: argparse.Namespace, ignored: list[str]) -> None:
+    if ignored:
+        _print("valuation: warning: columns not used by the valuation (neither ours nor mapped in the basis's "
+               f"[mapping.columns]): {', '.join(ignored)}", file=sys.stderr)
+
+
+def _exclusion_gate(args: argparse.Namespace, basis: Any, path: Any, read: int, valued: int, excluded: int) -> None:
+    from valuation.engine.gate import check_exclusions
+
+    check_exclusions(read=read, valued=valued, excluded=excluded, path=path,
+                     max_share=basis.thresholds.max_excluded_share, accept=args.accept_exclusions)
+    if excluded:
+        _print(f"valuation: warning: {excluded:,} of {read:,} records were excluded and are not in the liability; "
+               "they are listed in exceptions.csv and at the top of the reports", file=sys.stderr)
+
+
 def cmd_run(args: argparse.Namespace) -> int:
     from valuation.basis import load_basis
     from valuation.engine.run import value_members
-    from valuation.engine.write import write_run
+    from valuation.engine.write import atomic_folder, check_output_folder, write_into
     from valuation.members import read_members
 
     progress = _Progress(args.quiet)
     basis = load_basis(args.basis)
-    if args.stream:
-        return _run_streaming(args, basis, progress)
-    progress("reading", 0, 1)
-    data = read_members(args.members, basis)
-    _say(args, data.reconciliation_text())
-    experience = None
-    extra_inputs: list[str] = []
-    if args.deaths:
-        if not (args.start_members and args.period_start and args.period_end):
-            raise ValuationError("--deaths needs --start-members, --period-start and --period-end",
-                                 fix="give the membership at the start of the period and the period's dates")
-        experience = _experience(args, basis)
-        extra_inputs = [p for p in (args.start_members, args.deaths, args.exits) if p]
-    result = value_members(data, basis, sensitivities=not args.no_sensitivities, chunk_size=args.chunk_size,
-                           progress=progress, input_files=extra_inputs)
-    progress("writing", 0, 1)
-    out = Path(args.out) if args.out else Path("outputs") / Path(args.members).stem
-    writers = [] if args.no_reports else _report_writers(experience)
-    if experience is not None:
-        writers.append(lambda _res, folder: experience.write(folder))
-    write_run(result, out, extra=writers)
-    progress.close()
+    out = Path(args.out) if args.out else _default_out(Path(args.members).stem, basis.valuation_date)
+    experience_files = [p for p in (args.start_members, args.deaths, args.exits) if p]
+    inputs = [args.basis, args.members, *experience_files]
+    check_output_folder(out, overwrite=args.overwrite, inputs=inputs)  # before any work
+    try:
+        if args.stream:
+            result = _run_streaming(args, basis, out, inputs, progress)
+        else:
+            progress("reading", 0, 1)
+            data = read_members(args.members, basis)
+            _say(args, data.reconciliation_text())
+            _warn_ignored(args, data.ignored_columns)
+            _exclusion_gate(args, basis, args.members, data.read, data.valued, data.excluded)
+            experience = _experience(args, basis) if args.deaths else None
+            result = value_members(data, basis, sensitivities=not args.no_sensitivities, chunk_size=args.chunk_size,
+                                   progress=progress, input_files=experience_files)
+            progress("writing", 0, 1)
+            writers = [] if args.no_reports else _report_writers(experience)
+            if experience is not None:
+                writers.append(lambda _res, folder: experience.write(folder))
+            with atomic_folder(out, overwrite=args.overwrite, inputs=inputs) as tmp:
+                write_into(result, tmp, writers)
+    finally:
+        progress.close()
     _say(args, _headline(result))
-    if experience is not None:
+    if not args.stream and args.deaths:
         _say(args, _experience_line(experience))
     _say(args, f"written to {out}/")
     return EXIT_OK
 
 
-def _run_streaming(args: argparse.Namespace, basis: Any, progress: _Progress) -> int:
-    """Very large files: read, validate and value in chunks; per-member rows go straight to disk."""
-    import os
-    import shutil
-
+def _run_streaming(
+    args: argparse.Namespace, basis: Any, out: Path, inputs: list[Any], progress: _Progress,
+) -> Any:
+    """Very large files: read, validate and value in chunks; per-member rows go straight into the run folder."""
     from valuation.engine.stream import value_file_streaming
-    from valuation.engine.write import write_run
+    from valuation.engine.write import atomic_folder, write_into
 
-    if args.deaths:
-        raise ValuationError("--stream does not combine with the experience analysis",
-                             fix="run `valuation experience` separately")
-    out = Path(args.out) if args.out else Path("outputs") / Path(args.members).stem
-    out.parent.mkdir(parents=True, exist_ok=True)
-    members_tmp = out.parent / f".{out.name}.members-{os.getpid()}.parquet"
-    try:
+    with atomic_folder(out, overwrite=args.overwrite, inputs=inputs) as tmp:
         result = value_file_streaming(args.members, basis, chunk_rows=args.chunk_size,
-                                      member_results_path=members_tmp,
+                                      member_results_path=tmp / "members.parquet",
                                       sensitivities=not args.no_sensitivities, progress=progress)
-        progress.close()
-        _say(args, f"records read {result.summary['records']['read']:,} = valued "
-                   f"{result.summary['records']['valued']:,} + excluded {result.summary['records']['excluded']:,}")
-
-        def move_members(_res: Any, folder: Path) -> None:
-            shutil.move(str(members_tmp), folder / "members.parquet")
-
-        writers = ([] if args.no_reports else _report_writers()) + [move_members]
-        write_run(result, out, extra=writers)
-    finally:
-        members_tmp.unlink(missing_ok=True)
-    _say(args, _headline(result))
-    _say(args, f"written to {out}/")
-    return EXIT_OK
+        r = result.summary["records"]
+        _say(args, f"records read {r['read']:,} = valued {r['valued']:,} + excluded {r['excluded']:,}")
+        _warn_ignored(args, r.get("ignored_columns") or [])
+        _exclusion_gate(args, basis, args.members, r["read"], r["valued"], r["excluded"])
+        progress("writing", 0, 1)
+        write_into(result, tmp, [] if args.no_reports else _report_writers())
+    return result
 
 
 def _experience_line(res: Any) -> str:
@@ -166,87 +249,117 @@ def _experience_line(res: Any) -> str:
             f"({100 * o['ae_amounts_lower']:.1f} % to {100 * o['ae_amounts_upper']:.1f} %)")
 
 
+#: Experience options and their defaults (``None`` on the parser, so that a value given without the
+#: experience analysis is noticed rather than ignored).
+EXPERIENCE_DEFAULTS: dict[str, Any] = {"exits": None, "exposure": "central", "confidence": 0.95,
+                                       "overdispersion": 1.0, "late_months": 0, "late_uplift": 0.0}
+
+
 def _experience(args: argparse.Namespace, basis: Any) -> Any:
     from valuation.experience import ExperienceSettings, analyse_experience
 
+    opt = {k: (getattr(args, k) if getattr(args, k) is not None else v) for k, v in EXPERIENCE_DEFAULTS.items()}
     settings = ExperienceSettings(
-        period_start=date.fromisoformat(args.period_start), period_end=date.fromisoformat(args.period_end),
-        exposure=args.exposure, confidence=args.confidence, overdispersion=args.overdispersion,
-        late_months=args.late_months, late_uplift=args.late_uplift,
+        period_start=args.period_start, period_end=args.period_end,
+        exposure=opt["exposure"], confidence=opt["confidence"], overdispersion=opt["overdispersion"],
+        late_months=opt["late_months"], late_uplift=opt["late_uplift"],
     )
-    return analyse_experience(args.start_members, args.deaths, basis, settings, exits_path=args.exits,
+    return analyse_experience(args.start_members, args.deaths, basis, settings, exits_path=opt["exits"],
                               valuation_members_path=args.members)
 
 
 def cmd_check(args: argparse.Namespace) -> int:
     from valuation.basis import load_basis
+    from valuation.csvout import write_csv
+    from valuation.engine.write import atomic_file, check_output_file
     from valuation.members import read_members
 
+    if args.exceptions:
+        check_output_file(args.exceptions, overwrite=args.overwrite)
     basis = load_basis(args.basis)
     data = read_members(args.members, basis)
-    print(data.reconciliation_text())
+    _say(args, data.reconciliation_text())
+    _warn_ignored(args, data.ignored_columns)
     if data.exceptions.height:
-        counts = data.exceptions.group_by(["severity", "reason"]).len().sort(["severity", "len"], descending=[False, True])
+        counts = (data.exceptions.group_by(["severity", "reason"]).len()
+                  .sort(["severity", "len", "reason"], descending=[False, True, False]))
         for sev, reason, n in counts.iter_rows():
-            print(f"  {sev:<8} {n:>6}  {reason}")
+            _say(args, f"  {sev:<8} {n:>6}  {reason}")
     if args.exceptions:
-        data.exceptions.write_csv(args.exceptions)
-        print(f"exceptions written to {args.exceptions}")
+        with atomic_file(args.exceptions, overwrite=args.overwrite) as tmp:
+            write_csv(data.exceptions, tmp)
+        _say(args, f"exceptions written to {args.exceptions}")
     return EXIT_OK
 
 
 def cmd_synth(args: argparse.Namespace) -> int:
+    from valuation.engine.write import atomic_file, check_output_file
     from valuation.members.synth import synth_scheme, write_scheme
 
-    if args.members < 1:
-        raise ValuationError("--members must be a whole number of at least 1", fix="e.g. --members 10000")
     if Path(args.out).suffix.lower() not in (".csv", ".parquet", ".xlsx"):
-        raise ValuationError("the output file must end in .csv, .parquet or .xlsx", file=args.out)
-
-    vd = date.fromisoformat(args.valuation_date)
-    df = synth_scheme(args.members, seed=args.seed, valuation_date=vd)
-    write_scheme(df, Path(args.out))
+        raise ValuationError("the output file must end in .csv, .parquet or .xlsx", file=args.out,
+                             fix="for example --out outputs/synth.parquet")
+    check_output_file(args.out, overwrite=args.overwrite)
+    df = synth_scheme(args.members, seed=args.seed, valuation_date=args.valuation_date)
+    with atomic_file(args.out, overwrite=args.overwrite) as tmp:
+        write_scheme(df, tmp)
     _say(args, f"{df.height:,} synthetic members written to {args.out}")
     return EXIT_OK
 
 
 def cmd_batch(args: argparse.Namespace) -> int:
-    from valuation.engine.batch import run_batch
+    from valuation.engine.batch import index_text, run_batch
 
     progress = _Progress(args.quiet)
-    index = run_batch(args.batch, out_root=Path(args.out) if args.out else None, progress=progress,
-                      writers=_report_writers)
-    progress.close()
-    from valuation.engine.batch import index_text
-
+    try:
+        index = run_batch(args.batch, out_root=Path(args.out) if args.out else None, progress=progress,
+                          writers=_report_writers, overwrite=args.overwrite,
+                          accept_exclusions=args.accept_exclusions, say=lambda t: _say(args, t))
+    finally:
+        progress.close()
     _say(args, index_text(index))
     return EXIT_OK
 
 
 def cmd_experience(args: argparse.Namespace) -> int:
     from valuation.basis import load_basis
-    from valuation.engine.write import atomic_folder
+    from valuation.engine.write import atomic_folder, check_output_folder
+    from valuation.manifest import dump_json
 
     basis = load_basis(args.basis)
-    args.start_members, args.period_start, args.period_end = args.members, args.start, args.end
+    args.start_members, args.deaths = args.members, args.deaths
     args.members = args.valuation_members
+    out = Path(args.out) if args.out else _default_out("experience", args.period_end)
+    inputs = [p for p in (args.basis, args.start_members, args.deaths, args.exits, args.valuation_members) if p]
+    check_output_folder(out, overwrite=args.overwrite, inputs=inputs)
     res = _experience(args, basis)
-    out = Path(args.out) if args.out else Path("outputs") / "experience"
-    with atomic_folder(out) as tmp:
+    from valuation.engine.run import input_hashes
+
+    with atomic_folder(out, overwrite=args.overwrite, inputs=inputs) as tmp:
         res.write(tmp)
+        dump_json({"tool_version": __version__, "command": "experience", "inputs": input_hashes(inputs),
+                   "settings": {k: str(v) for k, v in vars(args).items() if k not in ("func", "parser")}}, tmp / "manifest.json")
     _say(args, _experience_line(res))
     _say(args, f"written to {out}/")
     return EXIT_OK
 
 
-def _experience_options(sp: argparse.ArgumentParser) -> None:
-    sp.add_argument("--exits", help="other exits: member_id, exit_date, reason")
-    sp.add_argument("--exposure", choices=["central", "initial"], default="central",
+def _experience_options(sp: Any) -> None:
+    sp.add_argument("--exits", type=existing_file, help="other exits: member_id, exit_date, reason")
+    sp.add_argument("--exposure", choices=["central", "initial"], default=None,
                     help="central exposed-to-risk with mu (default) or initial exposure with q")
-    sp.add_argument("--confidence", type=float, default=0.95, help="confidence level of the intervals")
-    sp.add_argument("--overdispersion", type=float, default=1.0, help="variance factor for amounts")
-    sp.add_argument("--late-months", type=int, default=0, help="final months with late-reported deaths")
-    sp.add_argument("--late-uplift", type=float, default=0.0, help="uplift to deaths in those months, e.g. 0.05")
+    sp.add_argument("--confidence", type=probability, default=None,
+                    help="confidence level of the intervals, between 0 and 1 (default 0.95)")
+    sp.add_argument("--overdispersion", type=positive_float, default=None,
+                    help="variance factor for amounts, above 0 (default 1)")
+    sp.add_argument("--late-months", type=non_negative_int, default=None,
+                    help="final months with late-reported deaths (default 0)")
+    sp.add_argument("--late-uplift", type=non_negative_float, default=None,
+                    help="uplift to deaths in those months, e.g. 0.05 (default 0)")
+
+
+def _overwrite(sp: argparse.ArgumentParser, what: str) -> None:
+    sp.add_argument("--overwrite", action="store_true", help=f"replace {what}")
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -268,71 +381,110 @@ def build_parser() -> argparse.ArgumentParser:
           valuation run assumptions/demo_basis.toml member_data_demo/members.csv --out outputs/demo
           valuation run basis.toml members.parquet --no-sensitivities --quiet
           valuation run assumptions/demo_basis.toml member_data_demo/members.csv --out outputs/demo \\
-              --deaths member_data_demo/deaths.csv --start-members member_data_demo/members_start.csv \\
+              --overwrite --deaths member_data_demo/deaths.csv --start-members member_data_demo/members_start.csv \\
               --period-start 2022-03-31 --period-end 2025-03-31 --exits member_data_demo/exits.csv
         """) + EPILOG_EXIT)
-    r.add_argument("basis", help="assumptions basis (TOML)")
-    r.add_argument("members", help="member data file (CSV, XLSX or Parquet)")
-    r.add_argument("--out", help="run folder to write (default: outputs/<member file name>)")
+    r.add_argument("basis", type=existing_file, help="assumptions basis (TOML)")
+    r.add_argument("members", type=existing_file, help="member data file (CSV, XLSX or Parquet)")
+    r.add_argument("--out", help="run folder to write: new, empty, or a previous run with --overwrite "
+                                 "(default: outputs/<member file name>-<valuation date>, never an existing folder)")
+    _overwrite(r, "the previous run in --out (only a folder this tool wrote, holding nothing else)")
     r.add_argument("--no-sensitivities", action="store_true", help="skip the sensitivity re-valuations")
     r.add_argument("--no-reports", action="store_true", help="skip the workbook and HTML summary")
-    r.add_argument("--chunk-size", type=int, default=1_000_000,
+    r.add_argument("--accept-exclusions", action="store_true",
+                   help="value the remaining records even when more are excluded than the basis's "
+                        "[thresholds] max_excluded_share allows")
+    r.add_argument("--chunk-size", type=positive_int, default=1_000_000,
                    help="members valued at a time: larger chunks share more survival curves, smaller ones use less memory")
     r.add_argument("--stream", action="store_true",
                    help="read, validate and value the file in chunks (flat memory for very large schemes)")
     g = r.add_argument_group("experience analysis (optional): deaths since the last valuation, in the reports")
-    g.add_argument("--deaths", help="deaths file: member_id, date_of_death[, pension_at_death]")
-    g.add_argument("--start-members", help="member data at the start of the period")
-    g.add_argument("--period-start", help="period start (ISO date)")
-    g.add_argument("--period-end", help="period end (ISO date), usually the valuation date")
-    _experience_options(g)  # type: ignore[arg-type]
+    g.add_argument("--deaths", type=existing_file, help="deaths file: member_id, date_of_death[, pension_at_death]")
+    g.add_argument("--start-members", type=existing_file, help="member data at the start of the period")
+    g.add_argument("--period-start", type=iso_date, help="period start (ISO date YYYY-MM-DD)")
+    g.add_argument("--period-end", type=iso_date, help="period end (ISO date YYYY-MM-DD), usually the valuation date")
+    _experience_options(g)
     common(r)
-    r.set_defaults(func=cmd_run)
+    r.set_defaults(parser=r, func=cmd_run)
 
     c = sub.add_parser("check", help="validate member data and basis without valuing", formatter_class=fmt,
                        epilog="example:\n  valuation check assumptions/demo_basis.toml member_data_demo/members_dirty.csv"
                               " --exceptions exceptions.csv\n" + EPILOG_EXIT)
-    c.add_argument("basis")
-    c.add_argument("members")
-    c.add_argument("--exceptions", help="write the exceptions list to this CSV file")
+    c.add_argument("basis", type=existing_file, help="assumptions basis (TOML)")
+    c.add_argument("members", type=existing_file, help="member data file (CSV, XLSX or Parquet)")
+    c.add_argument("--exceptions", help="write the exceptions list to this new CSV file")
+    _overwrite(c, "an existing --exceptions file")
     common(c)
-    c.set_defaults(func=cmd_check)
+    c.set_defaults(parser=c, func=cmd_check)
 
     b = sub.add_parser("batch", help="run every valuation listed in a batch file", formatter_class=fmt,
                        epilog="example:\n  valuation batch assumptions/demo_batch.toml\n" + EPILOG_EXIT)
-    b.add_argument("batch", help="batch file (TOML) listing runs")
-    b.add_argument("--out", help="folder for the run folders and the index (default: from the batch file)")
+    b.add_argument("batch", type=existing_file, help="batch file (TOML) listing runs")
+    b.add_argument("--out", help="folder for the run folders and the index (default: the batch file's `out`); "
+                                 "new, empty, or a previous batch with --overwrite")
+    _overwrite(b, "a previous batch in the output folder")
+    b.add_argument("--accept-exclusions", action="store_true",
+                   help="value every run even when more records are excluded than its basis allows")
     common(b)
-    b.set_defaults(func=cmd_batch)
+    b.set_defaults(parser=b, func=cmd_batch)
 
     s = sub.add_parser("synth", help="write a synthetic scheme of any size, reproducibly", formatter_class=fmt,
                        epilog="example:\n  valuation synth --members 1000000 --seed 7 --out outputs/synth.parquet\n"
                               + EPILOG_EXIT)
-    s.add_argument("--members", type=int, required=True, help="number of member records")
-    s.add_argument("--seed", type=int, default=1, help="random seed (same seed, same file)")
-    s.add_argument("--valuation-date", default="2026-12-31", help="ISO date the ages refer to")
-    s.add_argument("--out", required=True, help="output file: .csv, .parquet or .xlsx")
+    s.add_argument("--members", type=positive_int, required=True, help="number of member records, 1 or more")
+    s.add_argument("--seed", type=non_negative_int, default=1, help="random seed, 0 or more (same seed, same file)")
+    s.add_argument("--valuation-date", type=iso_date, default=date(2026, 12, 31),
+                   help="ISO date YYYY-MM-DD the ages refer to (default 2026-12-31)")
+    s.add_argument("--out", required=True, help="new output file: .csv, .parquet or .xlsx")
+    _overwrite(s, "an existing --out file")
     common(s)
-    s.set_defaults(func=cmd_synth)
+    s.set_defaults(parser=s, func=cmd_synth)
 
     e = sub.add_parser("experience", help="actual against expected deaths over a period", formatter_class=fmt,
                        epilog=textwrap.dedent("""\
         example:
           valuation experience assumptions/demo_basis.toml member_data_demo/members_start.csv \\
-              member_data_demo/deaths.csv --start 2022-03-31 --end 2025-03-31 \\
+              member_data_demo/deaths.csv --period-start 2022-03-31 --period-end 2025-03-31 \\
               --exits member_data_demo/exits.csv --valuation-members member_data_demo/members.csv
         """) + EPILOG_EXIT)
-    e.add_argument("basis")
-    e.add_argument("members", help="member data at the start of the period")
-    e.add_argument("deaths", help="deaths file: member_id, date_of_death[, pension_at_death]")
-    e.add_argument("--start", required=True, help="period start (ISO date)")
-    e.add_argument("--end", required=True, help="period end (ISO date)")
-    e.add_argument("--valuation-members", help="member data at the valuation date, to re-value at the implied table")
+    e.add_argument("basis", type=existing_file, help="assumptions basis (TOML)")
+    e.add_argument("members", type=existing_file, help="member data at the start of the period")
+    e.add_argument("deaths", type=existing_file, help="deaths file: member_id, date_of_death[, pension_at_death]")
+    e.add_argument("--period-start", "--start", dest="period_start", type=iso_date, required=True,
+                   help="period start (ISO date YYYY-MM-DD)")
+    e.add_argument("--period-end", "--end", dest="period_end", type=iso_date, required=True,
+                   help="period end (ISO date YYYY-MM-DD)")
+    e.add_argument("--valuation-members", type=existing_file,
+                   help="member data at the valuation date, to re-value at the implied table")
     _experience_options(e)
-    e.add_argument("--out", help="folder to write (default: outputs/experience)")
+    e.add_argument("--out", help="folder to write: new, empty, or a previous one with --overwrite "
+                                 "(default: outputs/experience-<period end>, never an existing folder)")
+    _overwrite(e, "a previous experience folder in --out")
     common(e)
-    e.set_defaults(func=cmd_experience)
+    e.set_defaults(parser=e, func=cmd_experience)
     return p
+
+
+def _validate(parser: argparse.ArgumentParser, args: argparse.Namespace) -> None:
+    """Checks across options; a failure is a usage error (exit 2) naming the options."""
+    sub: argparse.ArgumentParser = args.parser
+    start, end = getattr(args, "period_start", None), getattr(args, "period_end", None)
+    if start is not None and end is not None and start >= end:
+        sub.error(f"the period start {start.isoformat()} must be before the period end {end.isoformat()}")
+    if args.command != "run":
+        return
+    period = {"--deaths": args.deaths, "--start-members": args.start_members,
+              "--period-start": args.period_start, "--period-end": args.period_end}
+    given = [k for k, v in period.items() if v is not None]
+    if given and len(given) < len(period):
+        missing = [k for k in period if k not in given]
+        sub.error(f"the experience analysis needs {', '.join(period)} together; missing: {', '.join(missing)}")
+    options = [f"--{k.replace('_', '-')}" for k in EXPERIENCE_DEFAULTS if getattr(args, k) is not None]
+    if options and not given:
+        sub.error(f"{', '.join(options)} only apply to the experience analysis; add --deaths, --start-members, "
+                  "--period-start and --period-end, or leave them out")
+    if args.stream and given:
+        sub.error("--stream does not combine with the experience analysis; run `valuation experience` separately")
 
 
 def _terminate(signum: int, frame: Any) -> None:
@@ -340,27 +492,45 @@ def _terminate(signum: int, frame: Any) -> None:
     raise KeyboardInterrupt
 
 
+def _crash_report(exc: BaseException) -> str:
+    """Write the details of an unexpected error to a file and return its path (for a bug report)."""
+    import traceback
+
+    fd, name = tempfile.mkstemp(prefix="valuation-error-", suffix=".txt")
+    with os.fdopen(fd, "w", encoding="utf-8") as fh:
+        fh.write(f"valuation {__version__}\nargs: {sys.argv!r}\n\n")
+        fh.write("".join(traceback.format_exception(exc)))
+    return name
+
+
 def main(argv: list[str] | None = None) -> int:
     parser = build_parser()
     args = parser.parse_args(argv)
+    _validate(parser, args)
     if threading.current_thread() is threading.main_thread():
         signal.signal(signal.SIGTERM, _terminate)
     try:
         return int(args.func(args))
     except ValuationError as exc:
-        print(f"valuation: error: {exc}", file=sys.stderr)
-        return EXIT_INPUT
-    except FileNotFoundError as exc:
-        print(f"valuation: error: {exc.filename or exc}: file not found", file=sys.stderr)
-        return EXIT_INPUT
+        _print(f"valuation: error: {exc}", file=sys.stderr)
+        return int(getattr(exc, "exit_code", EXIT_INPUT))
+    except BrokenPipeError:
+        _silence(sys.stdout)
+        return EXIT_OK
     except KeyboardInterrupt:
-        print("valuation: interrupted; no partial output was kept", file=sys.stderr)
-        return 130
-    except Exception as exc:  # an internal error: say so plainly, keep the traceback for a bug report
-        import traceback
-
-        traceback.print_exc()
-        print(f"valuation: internal error: {exc!r}; no partial output was kept", file=sys.stderr)
+        _print("valuation: interrupted; nothing was written", file=sys.stderr)
+        return EXIT_INTERRUPTED
+    except MemoryError:
+        _print("valuation: error: not enough memory (try `run --stream` or a smaller --chunk-size)", file=sys.stderr)
+        return EXIT_INPUT
+    except OSError as exc:  # a file that cannot be read or written: disk full, permission, vanished file
+        where = exc.filename or "a file"
+        _print(f"valuation: error: {where}: {exc.strerror or exc}; nothing was written", file=sys.stderr)
+        return EXIT_INPUT
+    except Exception as exc:  # an internal error: say so plainly, keep the details for a bug report
+        report = _crash_report(exc)
+        _print(f"valuation: internal error ({type(exc).__name__}); nothing was written. This is a bug in the "
+               f"tool, not in your data: please report it with the details saved in {report}", file=sys.stderr)
         return EXIT_INTERNAL
 
 

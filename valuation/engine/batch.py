@@ -29,6 +29,8 @@ from typing import Any
 import polars as pl
 from pydantic import BaseModel, ConfigDict, Field, ValidationError
 
+from valuation import __version__
+from valuation.csvout import write_csv
 from valuation.errors import BasisError, ValuationError
 from valuation.manifest import dump_json
 
@@ -97,13 +99,23 @@ def run_batch(
     path: str | Path,
     *,
     out_root: Path | None = None,
+    overwrite: bool = False,
+    accept_exclusions: bool = False,
     progress: Callable[[str, int, int], None] | None = None,
     writers: Callable[[], list] | None = None,
+    say: Callable[[str], None] | None = None,
 ) -> pl.DataFrame:
-    """Run every valuation in the batch file and return the index of headline results."""
+    """Run every valuation in the batch file and return the index of headline results.
+
+    The batch folder (run folders, ``index.csv``, ``index.json``, ``manifest.json``) is written whole or
+    not at all: a run that fails stops the batch and leaves nothing behind. Every run's inputs are checked
+    before any is valued. ``overwrite`` replaces a previous batch folder of this tool; ``accept_exclusions``
+    values runs whose excluded share exceeds their basis's threshold.
+    """
     from valuation.basis import load_basis
-    from valuation.engine.run import value_members
-    from valuation.engine.write import write_run
+    from valuation.engine.gate import check_exclusions
+    from valuation.engine.run import input_hashes, value_members
+    from valuation.engine.write import atomic_folder, check_output_folder, mark_files, write_into
     from valuation.members import read_members
 
     path = Path(path)
@@ -111,37 +123,52 @@ def run_batch(
     root = out_root if out_root is not None else Path(os.path.normpath(path.parent / batch.out))
     # check every run's inputs before valuing any, so a bad run stops the batch before it writes anything
     bases = {}
+    inputs: list[Path] = [path]
     for run in batch.run:
         try:
             bases[run.name] = load_basis(path.parent / run.basis)
             members = path.parent / run.members
-            if not members.exists():
-                raise BasisError("member file not found", file=members)
-        except BasisError as exc:
-            raise BasisError(f"run '{run.name}': {exc}", file=path) from None
-    rows: list[dict[str, Any]] = []
-    for k, run in enumerate(batch.run):
-        if progress:
-            progress(f"run {run.name}", k, len(batch.run))
-        basis = bases[run.name]
-        try:
-            data = read_members(path.parent / run.members, basis)
+            if not members.is_file():
+                raise BasisError("member file not found", file=members,
+                                 fix="paths in a batch file are relative to the batch file")
         except ValuationError as exc:
-            raise type(exc)(f"run '{run.name}': {exc}", file=path) from None
-        result = value_members(data, basis, sensitivities=run.sensitivities)
-        folder = write_run(result, root / run.name, extra=writers() if writers else None)
-        s = result.summary
-        rows.append({
-            "run": run.name, "folder": str(folder), "valuation_date": s["valuation_date"],
-            "basis": str(run.basis), "members": str(run.members),
-            "records_read": s["records"]["read"], "records_valued": s["records"]["valued"],
-            "records_excluded": s["records"]["excluded"], "liability": s["liability"]["total"],
-            **{f"liability_{k2}": v for k2, v in s["liability"]["by_status"].items()},
-            "duration_macaulay": s["duration"]["macaulay"],
-            "single_equivalent_discount_rate": s["single_equivalent_discount_rate"],
-        })
-    index = pl.DataFrame(rows)
-    root.mkdir(parents=True, exist_ok=True)
-    index.write_csv(root / "index.csv")
-    dump_json({"batch": str(path), "runs": rows}, root / "index.json")
+            raise exc.with_context(f"{path}: run '{run.name}'") from None
+        inputs += [path.parent / run.basis, members]
+    check_output_folder(root, overwrite=overwrite, inputs=inputs)
+    rows: list[dict[str, Any]] = []
+    with atomic_folder(root, overwrite=overwrite, inputs=inputs) as tmp_root:
+        for k, run in enumerate(batch.run):
+            if progress:
+                progress(f"run {run.name}", k, len(batch.run))
+            basis = bases[run.name]
+            try:
+                data = read_members(path.parent / run.members, basis)
+                check_exclusions(read=data.read, valued=data.valued, excluded=data.excluded, path=data.path,
+                                 max_share=basis.thresholds.max_excluded_share, accept=accept_exclusions)
+            except ValuationError as exc:
+                raise exc.with_context(f"{path}: run '{run.name}'") from None
+            if say is not None and data.excluded:
+                say(f"run '{run.name}': {data.excluded:,} of {data.read:,} records excluded (listed in its "
+                    "exceptions.csv)")
+            result = value_members(data, basis, sensitivities=run.sensitivities)
+            folder = tmp_root / run.name
+            folder.mkdir()
+            write_into(result, folder, writers() if writers else None)
+            mark_files(folder)
+            s = result.summary
+            rows.append({
+                "run": run.name, "folder": str(root / run.name), "valuation_date": s["valuation_date"],
+                "basis": str(run.basis), "members": str(run.members),
+                "records_read": s["records"]["read"], "records_valued": s["records"]["valued"],
+                "records_excluded": s["records"]["excluded"], "liability": s["liability"]["total"],
+                **{f"liability_{k2}": v for k2, v in s["liability"]["by_status"].items()},
+                "duration_macaulay": s["duration"]["macaulay"],
+                "single_equivalent_discount_rate": s["single_equivalent_discount_rate"],
+            })
+        index = pl.DataFrame(rows)
+        write_csv(index, tmp_root / "index.csv")
+        dump_json({"batch": str(path), "runs": rows}, tmp_root / "index.json")
+        dump_json({"tool_version": __version__, "command": "batch", "inputs": input_hashes(inputs),
+                   "settings": {"overwrite": overwrite, "accept_exclusions": accept_exclusions}},
+                  tmp_root / "manifest.json")
     return index

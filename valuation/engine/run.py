@@ -327,8 +327,13 @@ class RunAccumulator:
         started: datetime,
         run_seconds: float,
         settings: dict[str, Any],
+        ignored_columns: list[str] | None = None,
     ) -> ValuationResult:
-        """Assemble the results once every chunk has been added."""
+        """Assemble the results once every chunk has been added.
+
+        ``ignored_columns`` are the member file's headers that are neither ours nor mapped (listed in
+        ``records`` and the manifest, never silently dropped).
+        """
         basis = self.basis
         curve = basis.discount_curve()
         cash = self.cash if self.cash is not None else np.zeros((len(STATUSES), 12))
@@ -364,7 +369,7 @@ class RunAccumulator:
             "valuation_date": basis.valuation_date.isoformat(),
             "basis_name": basis.name,
             "records": {"read": int(read), "valued": int(valued), "excluded": int(excluded),
-                        "by_status": by_status_counts},
+                        "by_status": by_status_counts, "ignored_columns": list(ignored_columns or [])},
             "liability": {
                 "total": total,
                 "by_status": _by(cells, "status", STATUSES),
@@ -389,6 +394,7 @@ class RunAccumulator:
                 "inputs": inputs,
                 "basis": basis.as_dict(),
                 "settings": settings,
+                "ignored_columns": list(ignored_columns or []),
                 "started_at": started.isoformat(timespec="seconds"),
                 "run_seconds": round(run_seconds, 3),
             },
@@ -453,6 +459,7 @@ def value_members(
         inputs=input_hashes([member_data.path, basis.source_path, *input_files]), started=started,
         run_seconds=time.perf_counter() - t0,
         settings={"sensitivities": sensitivities, "q_multiplier": q_multiplier, "chunk_size": chunk_size},
+        ignored_columns=list(getattr(member_data, "ignored_columns", []) or []),
     )
 
 

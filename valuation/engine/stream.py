@@ -216,6 +216,7 @@ def value_file_streaming(
         run_seconds=time.perf_counter() - t0,
         settings={"sensitivities": sensitivities, "q_multiplier": 1.0, "chunk_size": chunk_rows,
                   "streaming": True},
+        ignored_columns=ignored,
     )
     result.extra["members_path"] = str(sink.path) if sink is not None else None
     return result
