@@ -131,6 +131,10 @@ class Thresholds(BaseModel):
     large_pension: float = Field(default=100_000.0, gt=0)
     tiny_pension: float = Field(default=100.0, ge=0)
     old_age: float = Field(default=100.0, gt=0)
+    #: Largest share of the records read that may be excluded before a run stops (exit 4) unless the user
+    #: accepts it (``--accept-exclusions``); 0.05 = 5 % (common practice: a data set losing more than a few
+    #: per cent of its records needs the administrator's answer before it is valued).
+    max_excluded_share: float = Field(default=0.05, ge=0, le=1)
 
 
 class RateSpec(BaseModel):
