@@ -161,6 +161,30 @@ def flatten(obj: Any, prefix: str = "") -> list[tuple[str, Any]]:
     return rows
 
 
+#: The trustee summary lists at most this many kinds of data problem; the workbook lists them all.
+TOP_REASONS = 8
+
+
+def data_notice(summary: dict[str, Any]) -> str | None:
+    """A sentence for the top of both reports when records were left out or columns were not used.
+
+    ``None`` when every record was valued and every column of the member file was used.
+    """
+    rec = summary.get("records") or {}
+    read, excluded = int(rec.get("read", 0)), int(rec.get("excluded", 0))
+    ignored = list(rec.get("ignored_columns") or [])
+    parts = []
+    if excluded:
+        share = 100.0 * excluded / read if read else 0.0
+        parts.append(f"{excluded:,} of the {read:,} member records ({share:.1f}%) were left out of this "
+                     "valuation because of problems in the data, so the liability does not include them. "
+                     "The workbook's Exceptions sheet lists each record and its problem.")
+    if ignored:
+        parts.append(f"The member file has {len(ignored)} column{'s' if len(ignored) > 1 else ''} that the "
+                     f"valuation does not use: {', '.join(ignored)}.")
+    return " ".join(parts) or None
+
+
 def exception_reasons(exceptions: pl.DataFrame) -> pl.DataFrame:
     """Exceptions counted by severity and reason: ``severity, reason, records`` (most frequent first)."""
     if exceptions.height == 0 or "reason" not in exceptions.columns:

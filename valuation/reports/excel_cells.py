@@ -49,6 +49,8 @@ HEADER_FONT = Font(bold=True, color="FFFFFF")
 HEADER_FILL = PatternFill("solid", fgColor="2F5D62")
 TITLE_FONT = Font(bold=True, size=14, color="2F5D62")
 NOTE_FONT = Font(italic=True, color="555555")
+WARN_FONT = Font(bold=True, color="7A3E00")
+WARN_FILL = PatternFill("solid", fgColor="FCE8D5")
 WRAP = Alignment(wrap_text=True, vertical="top")
 
 _TABLE_STYLE = TableStyleInfo(name="TableStyleLight9", showRowStripes=True)

@@ -57,6 +57,11 @@ def summary_sheet(ws: Worksheet, result: ValuationResult) -> str:
     """Headline figures, record counts and key assumptions; returns the cell holding the total liability."""
     s = result.summary
     xc.title(ws, "Valuation summary")
+    notice = content.data_notice(s)
+    if notice:  # row 2, above the figures: exclusions are the first thing a reader sees
+        cell = xc.put(ws, 2, 1, notice)
+        cell.font = xc.WARN_FONT
+        cell.fill = xc.WARN_FILL
     rec = s["records"]
     rows: list[tuple[str, Any, str | None]] = [
         ("Valuation date", xc.as_date(s.get("valuation_date")), xc.DATE),

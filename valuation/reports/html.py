@@ -86,6 +86,7 @@ def build_context(result: ValuationResult, experience: ExperienceResult | None =
     for row in by_status:
         row["share"] = 100.0 * float(row["liability"]) / total
     manifest = s.get("manifest") or {}
+    reasons = content.exception_reasons(result.exceptions)
     return {
         "s": s,
         "headlines": content.headlines(s),
@@ -97,7 +98,9 @@ def build_context(result: ValuationResult, experience: ExperienceResult | None =
         "sensitivities": result.sensitivities.to_dicts(),
         "life": _life_rows(result.life_expectancy),
         "experience": _experience(experience),
-        "reasons": content.exception_reasons(result.exceptions).to_dicts(),
+        "reasons": reasons.head(content.TOP_REASONS).to_dicts(),
+        "more_reasons": max(0, reasons.height - content.TOP_REASONS),
+        "data_notice": content.data_notice(s),
         "tool_version": manifest.get("tool_version", ""),
         "generated": manifest.get("started_at") or datetime.now(timezone.utc).isoformat(timespec="seconds"),
     }
