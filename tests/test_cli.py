@@ -1,6 +1,6 @@
 """The command line: help with examples, exit codes, messages on stderr, atomic run folders.
 
-Exit codes are the tool's own documented contract (0 ok, 2 usage, 3 input error); SIGTERM handling
+Exit codes are the tool's own documented contract (0 ok, 2 usage, 3 input error, 4 exclusions); SIGTERM handling
 follows POSIX signal semantics (a terminated run exits 130 after removing its temporary folder).
 """
 
@@ -41,11 +41,13 @@ def test_run_writes_folder_with_reports(tmp_path, capsys):
         assert (out / name).exists(), name
     text = capsys.readouterr().out
     assert "records read 2,869 = valued 2,869 + excluded 0" in text
-    assert not [p for p in tmp_path.iterdir() if ".partial-" in p.name]
+    assert not [p for p in tmp_path.iterdir() if ".incomplete-" in p.name]
 
 
-def test_missing_file_exits_3_with_message(tmp_path, capsys):
-    assert main(["run", str(BASIS), str(tmp_path / "nope.csv"), "--out", str(tmp_path / "x")]) == 3
+def test_missing_file_is_a_usage_error_with_message(tmp_path, capsys):
+    with pytest.raises(SystemExit) as exc:
+        main(["run", str(BASIS), str(tmp_path / "nope.csv"), "--out", str(tmp_path / "x")])
+    assert exc.value.code == 2
     err = capsys.readouterr().err
     assert "nope.csv" in err
     assert not (tmp_path / "x").exists()
@@ -102,7 +104,7 @@ def test_terminated_run_leaves_no_partial_folder(tmp_path):
     )
     deadline = time.time() + 120
     while time.time() < deadline and proc.poll() is None:
-        if any(".partial-" in p.name for p in tmp_path.iterdir()):
+        if any(".incomplete-" in p.name for p in tmp_path.iterdir()):
             proc.send_signal(signal.SIGTERM)
             break
         time.sleep(0.002)
@@ -113,7 +115,7 @@ def test_terminated_run_leaves_no_partial_folder(tmp_path):
         # 130 when the signal lands in Python code; 1 if it surfaces inside a library call as another error
         assert proc.returncode in (130, 1), proc.stderr.read().decode()[-3000:]
         assert not out.exists()
-    assert not [p for p in tmp_path.iterdir() if ".partial-" in p.name]
+    assert not [p for p in tmp_path.iterdir() if ".incomplete-" in p.name]
 
 
 def test_stream_option_gives_the_same_liability(tmp_path):
