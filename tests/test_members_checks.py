@@ -45,9 +45,11 @@ CASES = [
     ({**GOOD_PENSIONER, "date_of_birth": "1950-02-30"}, "date_of_birth", "not a valid date (expected an ISO date", "excluded"),
     ({**GOOD_PENSIONER, "date_of_birth": "2025-04-01"}, "date_of_birth", "after the valuation date 2025-03-31", "excluded"),
     ({**GOOD_PENSIONER, "date_of_birth": "1904-03-30"}, "date_of_birth",
-     "age 121 is beyond the mortality table's closing age 120", "excluded"),
+     "age is beyond the mortality table's closing age for this status and sex", "excluded",
+     "age 121; closing age 120"),
     ({**GOOD_PENSIONER, "sex": "M", "date_of_birth": "1906-03-30"}, "date_of_birth",
-     "age 119 is beyond the mortality table's closing age 118", "excluded"),  # +2 rating for male pensioners
+     "age is beyond the mortality table's closing age for this status and sex", "excluded",
+     "age 119; closing age 118"),  # +2 rating for male pensioners
     ({**GOOD_PENSIONER, "pension": "6,000", "pension_pre2005": None, "pension_post2005": None}, "pension",
      "not a number (expected a pension amount", "excluded"),
     ({**GOOD_PENSIONER, "pension": "-6000", "pension_pre2005": None, "pension_post2005": None}, "pension",
@@ -55,11 +57,12 @@ CASES = [
     ({**GOOD_PENSIONER, "pension_pre2005": "x"}, "pension_pre2005", "not a number", "excluded"),
     ({**GOOD_PENSIONER, "pension_post2005": "-1"}, "pension_post2005", "negative value", "excluded"),
     ({**GOOD_PENSIONER, "pension_post2005": "2000.02"}, "pension",
-     "tranches sum to 6000.02 but pension is 6000.0 (expected equal within 0.01)", "excluded"),
+     "pension_<tranche> columns do not sum to the pension (expected equal within 0.01)", "excluded",
+     "tranches 6000.02; pension 6000.00"),
     ({**GOOD_PENSIONER, "pension": None, "pension_pre2005": None, "pension_post2005": None}, "pension",
-     "pensioner with no pension", "excluded"),
+     "no pension (a pensioner, dependant or deferred member needs a pension above 0)", "excluded"),
     ({**GOOD_PENSIONER, "status": "dependant", "pension": "0", "pension_pre2005": None, "pension_post2005": None},
-     "pension", "dependant with no pension", "excluded"),
+     "pension", "no pension (a pensioner, dependant or deferred member needs a pension above 0)", "excluded"),
     ({**GOOD_ACTIVE, "salary": None}, "salary", "active member with no salary", "excluded"),
     ({**GOOD_ACTIVE, "salary": "abc"}, "salary", "not a number (expected a salary", "excluded"),
     ({**GOOD_ACTIVE, "service_years": None}, "service_years", "active member with no service_years", "excluded"),
@@ -71,19 +74,54 @@ CASES = [
     ({**GOOD_PENSIONER, "spouse_date_of_birth": "2026-01-01"}, "spouse_date_of_birth",
      "spouse's date of birth is after the valuation date", "excluded"),
     ({**GOOD_PENSIONER, "spouse_date_of_birth": "1900-01-01"}, "spouse_date_of_birth",
-     "spouse's age 125 is beyond the spouse mortality table's closing age 120", "excluded"),
+     "spouse's age is beyond the spouse mortality table's closing age", "excluded",
+     "spouse's age 125; closing age 120"),
     ({**GOOD_PENSIONER, "guarantee_end": "soon"}, "guarantee_end", "not a valid date", "excluded"),
     ({**GOOD_PENSIONER, "pension": "60000", "pension_pre2005": None, "pension_post2005": None}, "pension",
      "unusually large pension (above 50,000.00)", "warning"),
     ({**GOOD_PENSIONER, "pension": "52", "pension_pre2005": None, "pension_post2005": None}, "pension",
      "tiny pension (below 100.00)", "warning"),
-    ({**GOOD_PENSIONER, "date_of_birth": "1923-01-01"}, "date_of_birth", "member aged 102 is over 100", "warning"),
+    ({**GOOD_PENSIONER, "date_of_birth": "1923-01-01"}, "date_of_birth",
+     "member over 100: please confirm the date of birth", "warning", "age 102"),
+    # Plausibility checks (limits from [thresholds]; defaults stated in the README, common practice).
+    ({**GOOD_PENSIONER, "pension": "inf", "pension_pre2005": None, "pension_post2005": None}, "pension",
+     "not a finite number: infinite, NaN or too large", "excluded"),
+    ({**GOOD_PENSIONER, "pension": "1e400", "pension_pre2005": None, "pension_post2005": None}, "pension",
+     "not a finite number: infinite, NaN or too large", "excluded"),  # beyond a double's 1.8e308 (IEEE 754)
+    ({**GOOD_ACTIVE, "salary": "NaN"}, "salary", "not a finite number: infinite, NaN or too large", "excluded"),
+    ({**GOOD_PENSIONER, "pension": "2e9", "pension_pre2005": None, "pension_post2005": None}, "pension",
+     "pension above 1,000,000,000, beyond any plausible amount (the thresholds.max_pension limit)", "excluded",
+     "2000000000.00"),
+    ({**GOOD_ACTIVE, "salary": "5e9"}, "salary",
+     "salary above 1,000,000,000, beyond any plausible amount (the thresholds.max_salary limit)", "excluded"),
+    ({**GOOD_ACTIVE, "salary": "600000"}, "salary", "unusually large salary (above 500,000.00): please confirm",
+     "warning"),
+    # born 1980-01-15: exact age 45.2 at 2025-03-31, so at most 30.2 years of service after age 15
+    ({**GOOD_ACTIVE, "service_years": "31"}, "service_years",
+     "service_years longer than the member's age allows (more than age less 15, the thresholds.min_working_age)",
+     "excluded", "service 31.0; age 45.2"),
+    ({**GOOD_ACTIVE, "retirement_age": "45"}, "retirement_age",
+     "retirement age below the member's current age: valued as retiring at the valuation date", "warning",
+     "retirement age 45.0; age 45.2"),
+    ({**GOOD_ACTIVE, "status": "deferred", "pension": "1000", "date_of_birth": "1955-01-01"}, "retirement_age",
+     "retirement age below the member's current age: valued as retiring at the valuation date", "warning",
+     "retirement age 65.0 (the basis's); age 70.2"),
+    ({**GOOD_PENSIONER, "spouse_date_of_birth": "2015-06-01"}, "spouse_date_of_birth",
+     "spouse younger than 16 at the valuation date (the thresholds.min_spouse_age): not a plausible partner",
+     "excluded", "spouse's age 9.8"),
+    ({**GOOD_PENSIONER, "spouse_date_of_birth": "1990-06-01"}, "spouse_date_of_birth",
+     "member and spouse ages differ by more than 30 years (the thresholds.max_spouse_age_gap)", "warning",
+     "age 74.8; spouse's age 34.8"),
+    ({**GOOD_PENSIONER, "status": "dependant", "date_of_birth": "2005-01-01", "pension_end_age": "18"},
+     "pension_end_age", "dependant's pension_end_age already reached: the pension has stopped", "excluded",
+     "end age 18.0; age 20.2"),
 ]
 
 
-@pytest.mark.parametrize(("record", "column", "reason", "severity"), CASES, ids=[c[2][:40] for c in CASES])
-def test_each_problem_is_reported(tmp_path: Path, record: dict[str, str], column: str, reason: str,
-                                  severity: str) -> None:
+@pytest.mark.parametrize("case", CASES, ids=[f"{k}-{c[2][:40]}" for k, c in enumerate(CASES)])
+def test_each_problem_is_reported(tmp_path: Path, case: tuple) -> None:
+    """Each case: (record, column, reason fragment, severity[, value when it is not the cell as written])."""
+    record, column, reason, severity = case[:4]
     md = read_members(write_csv(tmp_path / "m.csv", [COMPANION, record]), BASIS)
     hits = md.exceptions.filter(pl.col("reason").str.contains(reason, literal=True))
     assert hits.height == 1, md.exceptions.to_dicts()
@@ -92,8 +130,7 @@ def test_each_problem_is_reported(tmp_path: Path, record: dict[str, str], column
     assert hit["column"] == column and hit["severity"] == severity
     assert hit["file_column"] == column  # the file's headers are ours: no mapping applies
     assert hit["file"].endswith("m.csv")
-    raw = record.get(column)
-    assert hit["value"] == raw or column == "pension"  # value as written (tranche check shows the pension)
+    assert hit["value"] == (case[4] if len(case) > 4 else record.get(column))
     assert md.read == 2 and md.read == md.valued + md.excluded
     assert md.excluded == (1 if severity == "excluded" else 0)
 
@@ -104,7 +141,9 @@ def test_duplicates_exclude_every_copy(tmp_path: Path) -> None:
     md = read_members(write_csv(tmp_path / "m.csv", rows), BASIS)
     dup = md.exceptions.filter(pl.col("column") == "member_id")
     assert dup["row"].to_list() == [3, 4]
-    assert dup["reason"][0].startswith("member_id appears 2 times (rows 3, 4); every copy is excluded")
+    assert set(dup["reason"]) == {"member_id appears more than once; every copy is excluded: ask the "
+                                  "administrator which record is right"}
+    assert dup["value"].to_list() == ["2 copies: rows 3, 4"] * 2
     assert md.valued == 1 and md.excluded == 2
     # the second copy's tiny pension is listed too: every problem is listed, the record counted once
     assert md.exceptions.filter(pl.col("row") == 4).height == 2

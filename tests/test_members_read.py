@@ -14,7 +14,7 @@ from pathlib import Path
 import polars as pl
 import pytest
 
-from valuation.basis import load_basis
+from valuation.basis import Basis, load_basis
 from valuation.errors import DataError
 from valuation.members import read_members, synth_scheme, to_admin_format, write_scheme
 
@@ -23,6 +23,12 @@ DATA = Path(__file__).parent / "data" / "members"
 BASIS = load_basis(DATA / "basis.toml")
 DEMO_BASIS = load_basis(ROOT / "assumptions" / "demo_basis.toml")
 DEMO = ROOT / "member_data_demo"
+
+
+def mapped_only(basis: Basis, *headers: str) -> Basis:
+    """``basis`` whose [mapping.columns] keeps only the given headers (a file with fewer columns)."""
+    columns = {k: v for k, v in basis.mapping.columns.items() if k in headers}
+    return basis.model_copy(update={"mapping": basis.mapping.model_copy(update={"columns": columns})})
 
 
 @pytest.fixture(scope="module")
@@ -79,7 +85,8 @@ def test_mapping_headers_codes_and_date_format(tmp_path: Path) -> None:
         "GW3,pensioner,M,31/01/1960,100,,\n",
         encoding="utf-8",
     )
-    md = read_members(path, DEMO_BASIS)
+    md = read_members(path, mapped_only(DEMO_BASIS, "Ref No", "Status", "Gender", "DOB", "Pension pa",
+                                        "Spouse DOB"))
     r = md.records
     assert r["status"].to_list() == ["pensioner", "dependant", "pensioner"]  # codes ignore case; ours accepted
     assert r["sex"].to_list() == ["F", "M", "M"]
@@ -93,17 +100,19 @@ def test_exceptions_name_the_header_as_written(tmp_path: Path) -> None:
     path = tmp_path / "adm.csv"
     path.write_text("Ref No,status,Gender, dob ,Pension PA,Pensionable Salary,Notes\n"
                     "GW1,P,2,31/02/1960,1200,,x\n", encoding="utf-8")
-    md = read_members(path, DEMO_BASIS)
+    basis = mapped_only(DEMO_BASIS, "Ref No", "Status", "Gender", "DOB", "Pension pa", "Pensionable Salary")
+    md = read_members(path, basis)
     assert md.ignored_columns == ["Notes"]
-    hit = md.exceptions.row(0, named=True)
+    hit = md.exceptions.filter(pl.col("row").is_not_null()).row(0, named=True)
     assert (hit["column"], hit["file_column"], hit["value"]) == ("date_of_birth", " dob ", "31/02/1960")
     assert hit["reason"] == ("column ' dob ': not a valid date (expected a date as %d/%m/%Y or ISO YYYY-MM-DD)")
     path.write_text("Ref No,status,Gender,DOB\nGW1,Q,2,01/01/1960\n", encoding="utf-8")
-    hit = read_members(path, DEMO_BASIS).exceptions.row(0, named=True)
+    basis = mapped_only(DEMO_BASIS, "Ref No", "Status", "Gender", "DOB")
+    hit = read_members(path, basis).exceptions.row(0, named=True)
     assert (hit["column"], hit["file_column"]) == ("status", "status")
     assert hit["reason"].startswith("unknown status code")  # same spelling as ours: reason unchanged
     out = tmp_path / "exceptions.csv"
-    read_members(path, DEMO_BASIS).exceptions.write_csv(out)
+    read_members(path, basis).exceptions.write_csv(out)
     assert pl.read_csv(out, infer_schema=False).columns == [
         "file", "row", "member_id", "column", "file_column", "value", "reason", "severity"]
 
@@ -112,11 +121,11 @@ def test_missing_column_lists_the_headers_as_written(tmp_path: Path) -> None:
     path = tmp_path / "adm.csv"
     path.write_text("REF NO,Status ,Gender,Date Born\nGW1,P,2,01/01/1960\n", encoding="utf-8")
     with pytest.raises(DataError) as info:
-        read_members(path, DEMO_BASIS)
+        read_members(path, mapped_only(DEMO_BASIS, "Ref No", "Status", "Gender"))
     msg = str(info.value)
     assert "required column(s) date_of_birth not found" in msg
     assert "headers in the file: 'REF NO', 'Status ', 'Gender', 'Date Born';" in msg
-    assert "'DOB' -> date_of_birth" in msg  # the basis's mapping is listed too
+    assert "'Gender' -> sex" in msg  # the basis's mapping is listed too
     (tmp_path / "tr.csv").write_text("member_id,status,sex,date_of_birth,Pension_GMP\n", encoding="utf-8")
     with pytest.raises(DataError, match=r"column 'Pension_GMP' \(read as pension_gmp\) names a tranche"):
         read_members(tmp_path / "tr.csv", BASIS)
@@ -136,7 +145,7 @@ def test_fatal_file_problems(tmp_path: Path) -> None:
     with pytest.raises(DataError, match=r"unknown file type '\.json'.*\.csv, \.xlsx or \.parquet"):
         read_members(tmp_path / "m.json", BASIS)
     (tmp_path / "bad.parquet").write_bytes(b"not parquet at all")
-    with pytest.raises(DataError, match="cannot read the file as PARQUET"):
+    with pytest.raises(DataError, match="cannot be read as a Parquet file"):
         read_members(tmp_path / "bad.parquet", BASIS)
     (tmp_path / "nodob.csv").write_text("member_id,status,sex\nA,active,M\n", encoding="utf-8")
     with pytest.raises(DataError) as info:
@@ -181,7 +190,9 @@ def test_demo_dirty_file_reconciles_by_status() -> None:
 
 
 def test_demo_history_files() -> None:
-    start = read_members(DEMO / "members_start.csv", DEMO_BASIS)
+    # the start membership is as at the period start, three years before the valuation date
+    start = read_members(DEMO / "members_start.csv",
+                         DEMO_BASIS.model_copy(update={"valuation_date": date(2022, 3, 31)}))
     assert start.excluded == 0
     deaths = pl.read_csv(DEMO / "deaths.csv", try_parse_dates=True)
     exits = pl.read_csv(DEMO / "exits.csv", try_parse_dates=True)
@@ -199,11 +210,50 @@ def test_validate_frame_takes_the_headers_explicitly(tmp_path: Path) -> None:
     from valuation.members.data import validate_frame
     from valuation.members.readers import map_headers
 
+    basis = mapped_only(DEMO_BASIS, "Ref No", "Status", "Gender", "DOB")
     raw = pl.DataFrame({"Ref No": ["A1"], "Status": ["Q"], "Gender": ["1"], "DOB": ["01/01/1960"]})
-    mapped = map_headers(raw, DEMO_BASIS.mapping, tmp_path / "m.csv")
-    assert validate_frame(mapped, DEMO_BASIS, tmp_path / "m.csv").exceptions["file_column"].to_list() == ["status"]
+    mapped = map_headers(raw, basis.mapping, tmp_path / "m.csv")
+    assert validate_frame(mapped, basis, tmp_path / "m.csv").exceptions["file_column"].to_list() == ["status"]
     given = ["Ref No", "Code", "Gender", "DOB"]
-    hit = validate_frame(mapped, DEMO_BASIS, tmp_path / "m.csv", headers=given).exceptions.row(0, named=True)
+    hit = validate_frame(mapped, basis, tmp_path / "m.csv", headers=given).exceptions.row(0, named=True)
     assert (hit["column"], hit["file_column"]) == ("status", "Code") and hit["reason"].startswith("column 'Code': ")
     with pytest.raises(ValueError, match="3 headers given for a frame of 4 columns"):
-        validate_frame(mapped, DEMO_BASIS, tmp_path / "m.csv", headers=given[:3])
+        validate_frame(mapped, basis, tmp_path / "m.csv", headers=given[:3])
+
+
+def test_mapped_header_missing_from_the_file_is_an_input_error(tmp_path: Path) -> None:
+    """A header named in [mapping.columns] that the file spells otherwise would silently drop its column (and
+    change the liability): it is an input error naming the header, the file and the closest headers."""
+    frame = to_admin_format(synth_scheme(20, seed=5, valuation_date=DEMO_BASIS.valuation_date), DEMO_BASIS.mapping)
+    path = write_scheme(frame.rename({"Spouse DOB": "Spouse D.O.B."}), tmp_path / "adm.csv")
+    with pytest.raises(DataError) as info:
+        read_members(path, DEMO_BASIS)
+    e = info.value
+    assert (e.file, e.row, e.column) == (str(path), 1, "Spouse DOB")
+    assert e.reason == ("header 'Spouse DOB' (mapped to spouse_date_of_birth under [mapping.columns] in the basis) "
+                        "is not in the file (closest headers in the file: 'Spouse D.O.B.', 'Spouse Fraction')")
+    assert e.fix == ("correct the header 'Spouse DOB' under [mapping.columns] in the basis to the file's "
+                     "spelling, or remove that line if the file has no such column")
+    assert str(e).count("(fix:") == 1
+    # a file that gives the column under our own name instead is read as it is
+    ours = write_scheme(frame.rename({"Spouse DOB": "spouse_date_of_birth"}), tmp_path / "ours.csv")
+    assert read_members(ours, DEMO_BASIS).records["spouse_date_of_birth"].null_count() < 20
+    # no close header: the file's headers are listed
+    path = write_scheme(frame.drop("NRA"), tmp_path / "no_nra.csv")
+    with pytest.raises(DataError, match=r"'NRA' .*\(no header in the file is close; headers in the file: 'Ref No'"):
+        read_members(path, DEMO_BASIS)
+
+
+def test_ignored_columns_are_listed_once_as_warnings(tmp_path: Path) -> None:
+    """Columns neither ours nor mapped: one warning row each (no row number), no record excluded."""
+    frame = synth_scheme(40, seed=2, valuation_date=BASIS.valuation_date).with_columns(
+        pl.lit("x").alias("Notes"), pl.lit("").alias("Branch"))
+    path = write_scheme(frame, tmp_path / "m.csv")
+    md = read_members(path, BASIS)
+    assert md.ignored_columns == ["Notes", "Branch"]
+    ignored = md.exceptions.filter(pl.col("row").is_null())
+    assert ignored.select("column", "file_column", "value", "severity").rows() == [
+        ("Notes", "Notes", None, "warning"), ("Branch", "Branch", None, "warning")]
+    assert set(ignored["reason"]) == {
+        "column not used by the valuation (not one of ours and not mapped in the basis)"}
+    assert md.excluded == 0 and md.valued == md.read == 40

@@ -125,16 +125,44 @@ class Sensitivity(BaseModel):
 
 
 class Thresholds(BaseModel):
-    """Warning thresholds for member data: the record is still valued, but listed (common practice)."""
+    """Plausibility limits for member data (common practice in valuation data audits; the defaults are
+    our choice, stated in the README).
+
+    Warnings (the record is still valued, but listed): ``large_pension`` and ``large_salary``
+    [currency p.a.], a pension above 0 but below ``tiny_pension`` [currency p.a.], a member older than
+    ``old_age`` [years], member and known spouse ages more than ``max_spouse_age_gap`` [years] apart.
+
+    Exclusions (the record is left out and listed): a pension above ``max_pension`` or a salary above
+    ``max_salary`` [currency p.a.] (absurd amounts); service_years above the member's age less
+    ``min_working_age`` [years]; a known spouse younger than ``min_spouse_age`` [years] at the valuation
+    date.
+    """
 
     model_config = STRICT
     large_pension: float = Field(default=100_000.0, gt=0)
     tiny_pension: float = Field(default=100.0, ge=0)
     old_age: float = Field(default=100.0, gt=0)
+    large_salary: float = Field(default=500_000.0, gt=0)
+    max_pension: float = Field(default=1e9, gt=0)
+    max_salary: float = Field(default=1e9, gt=0)
+    min_working_age: float = Field(default=15.0, ge=0, le=30)
+    min_spouse_age: float = Field(default=16.0, ge=0, le=30)
+    max_spouse_age_gap: float = Field(default=30.0, gt=0, le=100)
     #: Largest share of the records read that may be excluded before a run stops (exit 4) unless the user
     #: accepts it (``--accept-exclusions``); 0.05 = 5 % (common practice: a data set losing more than a few
     #: per cent of its records needs the administrator's answer before it is valued).
     max_excluded_share: float = Field(default=0.05, ge=0, le=1)
+
+    @model_validator(mode="after")
+    def _limits_above_warnings(self) -> Thresholds:
+        for warn, limit in (("large_pension", "max_pension"), ("large_salary", "max_salary")):
+            if getattr(self, limit) <= getattr(self, warn):
+                raise ValueError(f"'{limit}' ({getattr(self, limit):,.2f}) must be above '{warn}' "
+                                 f"({getattr(self, warn):,.2f})")
+        if self.tiny_pension >= self.large_pension:
+            raise ValueError(f"'tiny_pension' ({self.tiny_pension:,.2f}) must be below 'large_pension' "
+                             f"({self.large_pension:,.2f})")
+        return self
 
 
 class RateSpec(BaseModel):

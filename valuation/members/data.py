@@ -35,6 +35,8 @@ EXCEPTION_SCHEMA: dict[str, type[pl.DataType]] = {
     "file_column": pl.String, "value": pl.String, "reason": pl.String, "severity": pl.String,
 }
 UNKNOWN_STATUS = "(unknown status)"
+#: File row of a file's first record (the header is row 1).
+FIRST_ROW = 2
 
 
 @dataclass
@@ -124,11 +126,14 @@ def _prepare(
     if missing:
         mapped = ", ".join(f"'{k}' -> {v}" for k, v in basis.mapping.columns.items()) or "none"
         written = ", ".join(f"'{file_columns.get(c, c)}'" for c in df.columns) or "none"
+        fix = "add the column, or map the administrator's header to it under [mapping.columns] in the basis"
+        if df.width == 1 and any(sep in file_columns.get(df.columns[0], df.columns[0]) for sep in ";\t|"):
+            fix = ("save the file with commas between values (the header row looks separated by another "
+                   "character)")
         raise DataError(
             f"required column(s) {', '.join(missing)} not found (headers in the file: {written}; "
             f"mapping in the basis: {mapped})",
-            file=path, column=missing[0],
-            fix="add the column, or map the administrator's header to it under [mapping.columns] in the basis",
+            file=path, row=1, column=missing[0], fix=fix,
         )
     wanted = [*REQUIRED, *DATE_COLUMNS[1:], *NUMERIC_COLUMNS, *tranche_cols]
     df = df.with_columns(pl.lit(None, dtype=pl.String).alias(c) for c in wanted if c not in df.columns)
@@ -149,12 +154,13 @@ def _prepare(
         pl.col("_dup_n").fill_null(1)
     )
     conv, exact = _ages(df.get_column(parsed("date_of_birth")), basis)
-    sp_conv, _ = _ages(df.get_column(parsed("spouse_date_of_birth")), basis)
+    sp_conv, sp_exact = _ages(df.get_column(parsed("spouse_date_of_birth")), basis)
     opposite = pl.col(parsed("sex")).replace_strict({"M": "F", "F": "M"}, default=None)
     return df.with_columns(
         _age=pl.Series(conv).fill_nan(None),
         _exact_age=pl.Series(exact).fill_nan(None),
         _sp_age=pl.Series(sp_conv).fill_nan(None),
+        _sp_exact_age=pl.Series(sp_exact).fill_nan(None),
         _closing=_closing_expr(basis, pl.col(parsed("status")), pl.col(parsed("sex")), None),
         _sp_closing=_closing_expr(basis, pl.col(parsed("status")), opposite, "spouse"),
     )
@@ -179,9 +185,8 @@ def _exceptions(
     sex_codes = ", ".join([*m.sex_codes, *SEXES])
     checks = build_checks(
         tranche_cols=tranche_cols, fmt_text=_fmt_text(m.date_format),
-        valuation_date=basis.valuation_date, large=basis.thresholds.large_pension,
-        tiny=basis.thresholds.tiny_pension, old=basis.thresholds.old_age,
-        status_codes=status_codes, sex_codes=sex_codes,
+        valuation_date=basis.valuation_date, thresholds=basis.thresholds,
+        retirement_age=basis.retirement_age, status_codes=status_codes, sex_codes=sex_codes,
     )
     parts = [
         df.filter(c.mask.fill_null(False)).select(
@@ -199,6 +204,20 @@ def _exceptions(
     ]
     out = pl.concat(parts)
     return out.sort(["row", "_order"]).drop("_order").cast(EXCEPTION_SCHEMA)  # type: ignore[arg-type]
+
+
+#: Reason of the warning listing a column the valuation does not use.
+IGNORED_COLUMN = "column not used by the valuation (not one of ours and not mapped in the basis)"
+
+
+def ignored_column_rows(path: Path, headers: list[str]) -> pl.DataFrame:
+    """One warning row of the exceptions frame for each ignored column (row and member_id empty)."""
+    return pl.DataFrame(
+        {"file": [str(path)] * len(headers), "row": [None] * len(headers), "member_id": [None] * len(headers),
+         "column": headers, "file_column": headers, "value": [None] * len(headers),
+         "reason": [IGNORED_COLUMN] * len(headers), "severity": ["warning"] * len(headers)},
+        schema=EXCEPTION_SCHEMA,
+    )
 
 
 def _records(df: pl.DataFrame, basis: Basis, tranche_cols: list[str], all_tranches: list[str]) -> pl.DataFrame:
@@ -255,7 +274,7 @@ class CheckedFrame:
 
 
 def validate_frame(
-    raw: pl.DataFrame, basis: Basis, path: Path, *, first_row: int = 2, duplicates: pl.DataFrame | None = None,
+    raw: pl.DataFrame, basis: Basis, path: Path, *, first_row: int = FIRST_ROW, duplicates: pl.DataFrame | None = None,
     headers: Sequence[str] | None = None,
 ) -> CheckedFrame:
     """Validate member records held as text under our column names (after :func:`map_headers`).
@@ -269,7 +288,9 @@ def validate_frame(
     path : Path
         The member file, named in exceptions and errors.
     first_row : int
-        File row number of ``raw``'s first record (2 for a whole file: the header is row 1).
+        File row number of ``raw``'s first record (2 for a whole file: the header is row 1). The frame
+        whose first row is 2 (the whole file, or its first chunk) also lists each ignored column once, as
+        a warning row with no row number (:data:`IGNORED_COLUMN`); it never counts a record as excluded.
     duplicates : polars.DataFrame, optional
         Duplicate ids of the whole file (:func:`duplicate_ids`) when ``raw`` is one chunk of it; by
         default duplicates are found within ``raw``.
@@ -301,6 +322,8 @@ def validate_frame(
     ignored = [file_columns[c] for c in raw.columns if c not in ours]
     df = _prepare(raw, basis, path, tranche_cols, first_row, duplicates, file_columns)
     exceptions = _exceptions(df, basis, path, tranche_cols, file_columns)
+    if first_row == FIRST_ROW:
+        exceptions = pl.concat([ignored_column_rows(path, ignored), exceptions])
     bad_rows = exceptions.filter(pl.col("severity") == "excluded").get_column("row").unique()
     df = df.with_columns(_excluded=pl.col("row").is_in(bad_rows.implode()))
     records = _records(df.filter(~pl.col("_excluded")), basis, tranche_cols, all_tranches)

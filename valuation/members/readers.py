@@ -10,94 +10,225 @@ of a fixed number of records, so a very large file never has to be held in memor
 
 from __future__ import annotations
 
-from collections.abc import Iterable, Iterator
+import csv
+import difflib
+from collections.abc import Iterable, Iterator, Sequence
 from pathlib import Path
 from typing import Literal
 
 import polars as pl
+import pyarrow as pa
 import pyarrow.parquet as pq
 
 from valuation.basis.mapping import ColumnMapping
+from valuation.csvtext import CsvProblem, csv_problem, header_fields, utf16_problem
 from valuation.errors import DataError
+from valuation.members.schema import OUR_COLUMNS, TRANCHE_PREFIX
 
 FileKind = Literal["csv", "xlsx", "parquet"]
 _KINDS: dict[str, FileKind] = {".csv": "csv", ".txt": "csv", ".xlsx": "xlsx", ".parquet": "parquet"}
+
+#: What to do when a CSV file cannot be read and nothing more precise was found.
+_CSV_FIX = "open the file in a spreadsheet program and save it again as 'CSV UTF-8 (Comma delimited)'"
 
 
 def file_kind(path: Path) -> FileKind:
     """The reader for a file, from its extension (``.csv``/``.txt``, ``.xlsx``, ``.parquet``)."""
     kind = _KINDS.get(path.suffix.lower())
     if kind is None:
+        shown = f"'{path.suffix}'" if path.suffix else "(no extension)"
         raise DataError(
-            f"unknown file type '{path.suffix}'", file=path,
+            f"unknown file type {shown}", file=path,
             fix="save the member data as .csv, .xlsx or .parquet",
         )
     return kind
+
+
+def blank_header(position: int) -> str:
+    """The name given to a column whose header cell is empty: ``(no header, column 7)`` (columns from 1)."""
+    return f"(no header, column {position})"
+
+
+def display_headers(written: Sequence[str | None], path: Path) -> list[str]:
+    """The file's headers as written, an empty one named by :func:`blank_header`; each must be unique.
+
+    Raises
+    ------
+    DataError
+        Two columns carry the same header (the reader would otherwise rename one silently).
+    """
+    out: list[str] = []
+    seen: dict[str, int] = {}
+    for k, h in enumerate(written, start=1):
+        text = as_written("" if h is None else str(h))
+        if not text.strip():
+            out.append(blank_header(k))
+            continue
+        if text in seen:
+            raise DataError(
+                f"the header row names '{text}' twice (columns {seen[text]} and {k})", file=path, row=1,
+                column=text, fix="rename or remove one of the two columns",
+            )
+        seen[text] = k
+        out.append(text)
+    return out
+
+
+def _csv_headers(p: Path) -> list[str]:
+    """The display headers of a CSV file (see :func:`display_headers`), read by us, not by polars."""
+    with p.open("rb") as fh:
+        head = fh.read(4096)
+    problem = utf16_problem(head)
+    if problem is None:
+        try:
+            fields = header_fields(p)
+        except (UnicodeDecodeError, csv.Error):
+            problem = csv_problem(p)
+            fields = None
+        else:
+            if fields is None:
+                problem = CsvProblem("the file is empty",
+                                     "give a header row naming the columns, then one row a record")
+    if problem is not None or fields is None:
+        raise _csv_unreadable(p, problem)
+    return display_headers(fields, p)
+
+
+def _csv_unreadable(p: Path, problem: CsvProblem | None = None) -> DataError:
+    """The error for a CSV file that cannot be read, saying where and why when that can be found."""
+    if problem is None:
+        problem = csv_problem(p)
+    if problem is None:
+        return DataError("cannot be read as CSV", file=p, fix=_CSV_FIX)
+    return DataError(problem.reason, file=p, fix=problem.fix)
+
+
+def _named(df: pl.DataFrame, headers: list[str]) -> pl.DataFrame:
+    """``df`` with its columns named by ``headers`` (by position; polars renames duplicates and blanks)."""
+    if df.width == len(headers) and df.columns != headers:
+        df.columns = headers
+    return df
+
+
+def _read_xlsx(p: Path) -> pl.DataFrame:
+    """The first sheet of a workbook as text, header in its first row; trailing empty rows dropped.
+
+    Empty rows inside the data are kept (as records with every cell empty) so that row numbers stay
+    those of the sheet.
+    """
+    try:
+        grid = pl.read_excel(p, sheet_id=1, has_header=False, infer_schema_length=0, drop_empty_rows=False,
+                             drop_empty_cols=False, raise_if_empty=False)
+    except Exception as exc:  # the workbook engine raises types of its own for a damaged or protected file
+        raise DataError(
+            "cannot be read as an XLSX workbook (it may be damaged, protected by a password, or not an "
+            "XLSX file)", file=p, fix="open it in Excel and save it again as .xlsx, or save it as CSV UTF-8",
+        ) from exc
+    if grid.height == 0:
+        raise DataError("the first sheet is empty", file=p,
+                        fix="put the header row (column names) in row 1 of the first sheet, records below it")
+    grid = grid.with_columns(pl.all().cast(pl.String))
+    headers = display_headers(list(grid.row(0)), p)
+    body = grid.slice(1)
+    filled = body.select(pl.any_horizontal(pl.all().is_not_null()).alias("f")).get_column("f")
+    rows = filled.arg_true()
+    keep = int(rows[-1]) + 1 if rows.len() else 0
+    return _named(body.head(keep), headers)
 
 
 def read_text_frame(path: str | Path) -> pl.DataFrame:
     """All columns of a member file as text (``pl.String``), headers as written.
 
     CSV is read as UTF-8 (a byte-order mark is dropped); XLSX reads the first sheet with the header in its
-    first row; Parquet columns of other types are cast to text (dates become ISO ``YYYY-MM-DD``).
+    first row; Parquet columns of other types are cast to text (dates become ISO ``YYYY-MM-DD``). A column
+    whose header is empty is named ``(no header, column N)``.
+
+    Raises
+    ------
+    DataError
+        The file is missing or unreadable (not UTF-8, a row with more values than the header, broken
+        quoting, a damaged workbook...), or two columns carry the same header; the message says where.
     """
     p, kind = _existing(path)
-    try:
-        if kind == "csv":
+    if kind == "csv":
+        headers = _csv_headers(p)
+        try:
             df = pl.read_csv(p, infer_schema=False, encoding="utf8")
-        elif kind == "xlsx":
-            df = pl.read_excel(p, sheet_id=1, infer_schema_length=0)
-        else:
+        except (pl.exceptions.PolarsError, OSError, ValueError) as exc:
+            raise _csv_unreadable(p) from exc
+        df = _named(df, headers)
+    elif kind == "xlsx":
+        df = _read_xlsx(p)
+    else:
+        try:
             df = pl.read_parquet(p)
-    except (pl.exceptions.PolarsError, OSError, ValueError) as exc:
-        raise _unreadable(p, kind, exc) from exc
-    return df.with_columns(pl.all().cast(pl.String))
+        except (pl.exceptions.PolarsError, OSError, ValueError) as exc:
+            raise _parquet_unreadable(p) from exc
+    try:
+        return df.with_columns(pl.all().cast(pl.String))
+    except pl.exceptions.PolarsError as exc:
+        raise _parquet_unreadable(p) from exc
 
 
 def _norm(header: str) -> str:
     return header.replace("\ufeff", "").strip().lower()
 
 
-def _unreadable(p: Path, kind: FileKind, exc: Exception) -> DataError:
+def _parquet_unreadable(p: Path) -> DataError:
     return DataError(
-        f"cannot read the file as {kind.upper()}: {exc}", file=p,
-        fix=f"check that it is a valid {kind.upper()} file (UTF-8 text for CSV)",
+        "cannot be read as a Parquet file of member records (it may be damaged, not Parquet, or hold "
+        "columns that are not plain values)", file=p,
+        fix="write the member data again as Parquet with one plain column a field, or save it as CSV UTF-8",
     )
 
 
 def _existing(path: str | Path) -> tuple[Path, FileKind]:
     p = Path(path)
     kind = file_kind(p)
+    if p.is_dir():
+        raise DataError("is a folder, not a member data file", file=p,
+                        fix="give the path of the member file itself (.csv, .xlsx or .parquet)")
     if not p.is_file():
         raise DataError("member data file not found", file=p, fix="check the path and file name")
+    try:
+        with p.open("rb"):
+            pass
+    except OSError as exc:
+        reason = (exc.strerror or "").lower() or "not allowed"
+        raise DataError(f"cannot be opened ({reason})", file=p,
+                        fix="check that the file can be read by the user running the valuation") from exc
     return p, kind
 
 
 def read_header(path: str | Path) -> list[str]:
-    """The column headers of a CSV or Parquet member file, as written, without reading its records."""
+    """The column headers of a CSV or Parquet member file, as written, without reading its records.
+
+    Headers are named as :func:`read_text_frame` names them (an empty header as ``(no header, column N)``).
+    """
     p, kind = _existing(path)
-    try:
-        if kind == "csv":
-            return pl.scan_csv(p, infer_schema=False, encoding="utf8").collect_schema().names()
-        if kind == "parquet":
-            return list(pq.ParquetFile(p).schema_arrow.names)
-    except (pl.exceptions.PolarsError, OSError, ValueError) as exc:
-        raise _unreadable(p, kind, exc) from exc
+    if kind == "csv":
+        return _csv_headers(p)
+    if kind == "parquet":
+        try:
+            return display_headers(list(pq.ParquetFile(p).schema_arrow.names), p)
+        except (OSError, ValueError, pa.ArrowException) as exc:
+            raise _parquet_unreadable(p) from exc
     raise DataError("reading the header alone needs a CSV or Parquet file", file=p,
                     fix="read an XLSX file whole with read_text_frame")
 
 
 def scan_column(path: str | Path, column: str) -> pl.DataFrame:
-    """One column of a CSV or Parquet member file, as text, header as written (a narrow full read)."""
+    """One column of a CSV or Parquet member file, as text, header as written (a narrow full read).
+
+    ``column`` is a header as :func:`read_header` gives it.
+    """
     p, kind = _existing(path)
+    position = read_header(p).index(column)
     try:
-        if kind == "csv":
-            lf = pl.scan_csv(p, infer_schema=False, encoding="utf8")
-        else:
-            lf = pl.scan_parquet(p)
-        return lf.select(pl.col(column).cast(pl.String)).collect()
+        lf = pl.scan_csv(p, infer_schema=False, encoding="utf8") if kind == "csv" else pl.scan_parquet(p)
+        return lf.select(pl.nth(position).cast(pl.String).alias(column)).collect()
     except (pl.exceptions.PolarsError, OSError, ValueError) as exc:
-        raise _unreadable(p, kind, exc) from exc
+        raise (_csv_unreadable(p) if kind == "csv" else _parquet_unreadable(p)) from exc
 
 
 def _rebatch(batches: Iterable[pl.DataFrame], size: int) -> Iterator[pl.DataFrame]:
@@ -125,41 +256,68 @@ def iter_text_frames(path: str | Path, chunk_rows: int) -> Iterator[pl.DataFrame
     if chunk_rows < 1:
         raise ValueError(f"chunk_rows must be 1 or more, got {chunk_rows}")
     p, kind = _existing(path)
+    if kind == "xlsx":
+        raise DataError("reading in chunks needs a CSV or Parquet file", file=p,
+                        fix="read an XLSX file whole with read_text_frame")
+    headers = read_header(p)
     try:
         if kind == "csv":
             lf = pl.scan_csv(p, infer_schema=False, encoding="utf8")
             batches: Iterable[pl.DataFrame] = lf.collect_batches(chunk_size=chunk_rows)
-        elif kind == "parquet":
+        else:
             pf = pq.ParquetFile(p)
             batches = (pl.DataFrame(pl.from_arrow(b)) for b in pf.iter_batches(batch_size=chunk_rows))
-        else:
-            raise DataError("reading in chunks needs a CSV or Parquet file", file=p,
-                            fix="read an XLSX file whole with read_text_frame")
         for frame in _rebatch(batches, chunk_rows):
-            yield frame.with_columns(pl.all().cast(pl.String))
-    except (pl.exceptions.PolarsError, OSError, ValueError) as exc:
-        raise _unreadable(p, kind, exc) from exc
+            yield _named(frame, headers).with_columns(pl.all().cast(pl.String))
+    except (pl.exceptions.PolarsError, OSError, ValueError, pa.ArrowException) as exc:
+        raise (_csv_unreadable(p) if kind == "csv" else _parquet_unreadable(p)) from exc
 
 
 def header_targets(columns: list[str], mapping: ColumnMapping, path: Path) -> dict[str, str]:
     """Our column name for each of the file's headers: trimmed, case-insensitive, through ``mapping.columns``.
 
-    Headers that are neither mapped nor ours keep their trimmed, lower-case name; two headers landing on
-    the same column name are a fatal error.
+    Headers that are ours (or ``pension_...``) once trimmed and lower-cased take that name; headers that
+    are neither mapped nor ours keep their name as written. Two headers landing on the same column name
+    are a fatal error, and so is a header named in ``mapping.columns`` that the file does not have when
+    no other header gives that column (it would otherwise be silently left out of the valuation). A file
+    that uses our own name for a mapped column is read as it is.
     """
     lookup = {_norm(k): v for k, v in mapping.columns.items()}
     renamed: dict[str, str] = {}
     origin: dict[str, str] = {}
     for col in columns:
-        target = lookup.get(_norm(col), _norm(col))
+        n = _norm(col)
+        target = lookup.get(n) or (n if n in OUR_COLUMNS or n.startswith(TRANCHE_PREFIX) else col)
         if target in origin:
             raise DataError(
                 f"headers '{origin[target]}' and '{col}' both give column '{target}'",
-                file=path, column=col, fix="remove or rename one of them, or change [mapping.columns]",
+                file=path, row=1, column=col,
+                fix="remove or rename one of them, or change [mapping.columns] in the basis",
             )
         origin[target] = col
         renamed[col] = target
+    present = {_norm(c) for c in columns}
+    for header, ours in mapping.columns.items():
+        if _norm(header) not in present and ours not in origin:
+            raise _mapped_header_missing(header, ours, columns, path)
     return renamed
+
+
+def _mapped_header_missing(header: str, ours: str, columns: list[str], path: Path) -> DataError:
+    """The error for a header named in ``[mapping.columns]`` that is not in the file."""
+    by_norm = {_norm(c): c for c in columns}
+    close = difflib.get_close_matches(_norm(header), list(by_norm), n=3, cutoff=0.6)
+    if close:
+        near = "closest headers in the file: " + ", ".join(f"'{by_norm[c]}'" for c in close)
+    else:
+        listed = [f"'{c}'" for c in columns[:30]] + (["..."] if len(columns) > 30 else [])
+        near = "no header in the file is close; headers in the file: " + (", ".join(listed) or "none")
+    return DataError(
+        f"header '{header}' (mapped to {ours} under [mapping.columns] in the basis) is not in the file ({near})",
+        file=path, row=1, column=header,
+        fix=f"correct the header '{header}' under [mapping.columns] in the basis to the file's spelling, or "
+            "remove that line if the file has no such column",
+    )
 
 
 def as_written(header: str) -> str:
