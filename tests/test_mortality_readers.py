@@ -170,14 +170,17 @@ def test_xtbml_y_without_t_uses_axis_minimum(tmp_path):
     np.testing.assert_array_equal(load_table(tmp_path / "no_t.xml").qx, SMALL_M)
 
 
-def test_select_ages_must_lie_within_ultimate(tmp_path):
+def test_ultimate_must_start_by_first_selection_age_plus_select_period(tmp_path):
+    """Standard layout ([DHW] 3.7): a life selected at x joins the ultimate table at x + select period, so
+    select ages 57-59 with a 2-year period need ultimate rates from 59; the ultimate table starts at 60."""
     text = (DATA / "small_select.xml").read_text()
-    text = text.replace('<Axis t="62">', '<Axis t="59">').replace(
+    text = (text.replace('<Axis t="60">', '<Axis t="57">').replace('<Axis t="61">', '<Axis t="58">')
+            .replace('<Axis t="62">', '<Axis t="59">').replace(
         "<MinScaleValue>60</MinScaleValue>\n        <MaxScaleValue>62</MaxScaleValue>",
-        "<MinScaleValue>59</MinScaleValue>\n        <MaxScaleValue>61</MaxScaleValue>")
+        "<MinScaleValue>57</MinScaleValue>\n        <MaxScaleValue>59</MaxScaleValue>"))
     path = tmp_path / "sel.xml"
     path.write_text(text)
-    with pytest.raises(TableError, match="select ages 59..61 are not within the ultimate ages 60..66"):
+    with pytest.raises(TableError, match="needs ultimate rates from age 59 .* ultimate table starts at age 60"):
         load_tables(path)
 
 

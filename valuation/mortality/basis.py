@@ -34,6 +34,12 @@ class MortalityBasis:
     closed; ages below the table's first age
     use q at the first age; non-integer ages are floored.
 
+    Period tables (a table with a calendar-year axis, ``table.year_qx``): without a base year, each
+    calendar year y uses that year's rates, q_table(x, y); years before the table's first year use the
+    first year's rates; years after its last year L use the last year's rates improved by the scale,
+    q_table(x, L) * F(x, L, y) (with no improvement they stay at year L). With a base year b (from the
+    basis or the table), the rates of year b apply as a static table, improved from b like any other table.
+
     Parameters
     ----------
     table : MortalityTable
@@ -63,6 +69,14 @@ class MortalityBasis:
     def __post_init__(self) -> None:
         if self.base_year is None and self.table.base_year is not None:
             object.__setattr__(self, "base_year", int(self.table.base_year))
+        years = self.table.years
+        if years is not None and self.base_year is not None and not years[0] <= self.base_year <= years[-1]:
+            raise TableError(
+                f"base year {self.base_year} is outside the years {years[0]}..{years[-1]} of the period "
+                f"table '{self.table.name}'", column=self.table.name,
+                fix="give a base year within the table's years to use that year's rates, or leave the base "
+                    "year out to use each calendar year's own rates",
+            )
         if not np.isfinite(self.percentage) or self.percentage < 0:
             raise TableError(f"percentage of table must be >= 0, got {self.percentage}", column=self.table.name)
         if not np.isfinite(self.q_multiplier) or self.q_multiplier < 0:
@@ -71,7 +85,7 @@ class MortalityBasis:
             raise TableError(f"age rating must be a whole number of years, got {self.age_rating}",
                              column=self.table.name)
         object.__setattr__(self, "age_rating", int(self.age_rating))
-        if self.base_year is None and not isinstance(self.improvement, NoImprovement):
+        if self.base_year is None and years is None and not isinstance(self.improvement, NoImprovement):
             raise TableError(
                 f"table '{self.table.name}' has no base year, so improvement cannot be applied",
                 column=self.table.name, fix="give a base year for the table in the basis",
@@ -82,13 +96,27 @@ class MortalityBasis:
 
         References
         ----------
-        [MP2014] section 2; the SOA Mortality Improvement Scale MP-2014 report (generational projection).
+        [MP2014] section 2; the SOA Mortality Improvement Scale MP-2014 report (generational projection);
+        [DHW] section 2.6 (period rates by calendar year).
         """
         a, y = np.broadcast_arrays(as_int_ages(ages), np.asarray(years, dtype=np.int64))
         rated = a + self.age_rating
-        q = self.percentage * self.q_multiplier * self.table.q(rated)
-        if self.base_year is not None and not isinstance(self.improvement, NoImprovement):
-            q = q * self.improvement.cumulative_factor(a, self.base_year, y)
+        improve = not isinstance(self.improvement, NoImprovement)
+        table_years = self.table.years
+        if table_years is not None and self.base_year is None:
+            # period table by calendar year; past its last year L: q(x, L) * F(x, L, y) (class docstring)
+            last = int(table_years[-1])
+            q = self.percentage * self.q_multiplier * self.table.q_in_year(rated, y)
+            if improve:
+                q = q * self.improvement.cumulative_factor(a, last, np.maximum(y, last))
+        else:
+            if table_years is None or self.base_year is None:
+                base = self.table.q(rated)
+            else:  # a period table used at its base year's rates
+                base = self.table.q_in_year(rated, self.base_year)
+            q = self.percentage * self.q_multiplier * base
+            if self.base_year is not None and improve:
+                q = q * self.improvement.cumulative_factor(a, self.base_year, y)
         closed = (rated >= self.table.max_age) | (a >= self.table.max_age)
         return np.where(closed, 1.0, np.minimum(q, 1.0))
 

@@ -4,16 +4,8 @@ CSV / XLSX layout: a header row, then one row per integer age. The first column 
 further column is one table (or one sex), headed by its name. XLSX files are read from the first sheet
 unless ``sheet`` is given.
 
-XTbML layout (the SOA's XML standard for actuarial tables): root ``XTbML`` -> ``ContentClassification``
-(``TableIdentity``, ``TableName``, ...) -> one or more ``Table`` elements, each with ``MetaData``
-(``ScalingFactor``, ``AxisDef``: ``ScaleType``, ``AxisName``, ``MinScaleValue``, ``MaxScaleValue``,
-``Increment``) and ``Values`` made of nested ``Axis`` and ``Y`` elements (``<Axis t="60"><Y t="1">...``).
-A table with one AxisDef is an ultimate table (by attained age); a table with two AxisDefs is a select
-table (selection age x duration). Values are divided by 10**ScalingFactor (from memory: the scaling
-factor is the power of ten the stored values were multiplied by; 0 means rates as stored).
-
-The XML is parsed with the standard library after rejecting any DOCTYPE or ENTITY declaration, so no
-entity expansion can happen (the protection defusedxml gives).
+XTbML files (the SOA's XML standard for actuarial tables: ultimate, select-and-ultimate and period
+tables) are read by :mod:`valuation.mortality.xtbml`, which describes the layouts it accepts.
 
 References
 ----------
@@ -25,7 +17,6 @@ References
 from __future__ import annotations
 
 import csv
-import xml.etree.ElementTree as ET
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any, Literal
@@ -229,187 +220,6 @@ def _close(qx: np.ndarray, closing: Closing) -> np.ndarray:
 
 
 # --------------------------------------------------------------------------------------------------
-# XTbML
-# --------------------------------------------------------------------------------------------------
-
-
-def _local(tag: str) -> str:
-    return tag.rsplit("}", 1)[-1]
-
-
-def _child(elem: ET.Element, name: str) -> ET.Element | None:
-    return next((c for c in elem if _local(c.tag) == name), None)
-
-
-def _children(elem: ET.Element, name: str) -> list[ET.Element]:
-    return [c for c in elem if _local(c.tag) == name]
-
-
-def _text(elem: ET.Element | None, name: str) -> str | None:
-    c = None if elem is None else _child(elem, name)
-    return None if c is None or c.text is None else c.text.strip()
-
-
-@dataclass(frozen=True)
-class _XTable:
-    label: str
-    axes: list[dict[str, Any]]
-    cells: dict[tuple[int, ...], float]
-
-
-def _int_or_none(s: str | None, what: str, file: Path) -> int | None:
-    if s is None or s == "":
-        return None
-    try:
-        return int(float(s))
-    except ValueError as exc:
-        raise TableError(f"{what} '{s}' is not a number", file=file) from exc
-
-
-def _parse_xtable(elem: ET.Element, k: int, file: Path) -> _XTable:
-    meta = _child(elem, "MetaData")
-    label = _text(meta, "TableDescription") or f"Table {k}"
-    scaling = _int_or_none(_text(meta, "ScalingFactor"), f"{label}: ScalingFactor", file) or 0
-    axes: list[dict[str, Any]] = []
-    for ad in [] if meta is None else _children(meta, "AxisDef"):
-        axes.append({
-            "type": _text(ad, "ScaleType") or "",
-            "name": _text(ad, "AxisName") or "",
-            "min": _int_or_none(_text(ad, "MinScaleValue"), f"{label}: MinScaleValue", file),
-            "max": _int_or_none(_text(ad, "MaxScaleValue"), f"{label}: MaxScaleValue", file),
-            "inc": _int_or_none(_text(ad, "Increment"), f"{label}: Increment", file) or 1,
-        })
-    if not axes:
-        raise TableError(f"{label}: MetaData has no AxisDef", file=file, fix="describe each axis")
-    for ax in axes:
-        if ax["inc"] != 1:
-            raise TableError(
-                f"{label}: axis '{ax['name']}' has Increment {ax['inc']}; only 1 is supported", file=file
-            )
-    values = _child(elem, "Values")
-    if values is None:
-        raise TableError(f"{label}: no Values element", file=file)
-    cells: dict[tuple[int, ...], float] = {}
-
-    def walk(node: ET.Element, prefix: tuple[int, ...]) -> None:
-        ys = _children(node, "Y")
-        level = len(prefix)
-        start = axes[min(level, len(axes) - 1)]["min"] or 0
-        for n, y in enumerate(ys):
-            t = _int_or_none(y.get("t"), f"{label}: Y t", file)
-            coord = prefix + (start + n if t is None else t,)
-            where = ", ".join(f"{a['name'] or a['type']} {c}" for a, c in zip(axes, coord, strict=False))
-            try:
-                v = float((y.text or "").strip())
-            except ValueError as exc:
-                raise TableError(
-                    f"{label}: non-numeric value '{y.text}' at {where}", file=file, column=label
-                ) from exc
-            if coord in cells:
-                raise TableError(f"{label}: two values at {where}", file=file, column=label)
-            cells[coord] = v / 10.0**scaling
-        for ax in _children(node, "Axis"):
-            t = _int_or_none(ax.get("t"), f"{label}: Axis t", file)
-            walk(ax, prefix if t is None else prefix + (t,))
-
-    walk(values, ())
-    bad = [c for c in cells if len(c) != len(axes)]
-    if bad:
-        raise TableError(
-            f"{label}: value at {bad[0]} does not match the {len(axes)} axes in AxisDef", file=file
-        )
-    return _XTable(label, axes, cells)
-
-
-def _axis_range(xt: _XTable, i: int, file: Path) -> np.ndarray:
-    seen = sorted({c[i] for c in xt.cells})
-    ax = xt.axes[i]
-    lo = ax["min"] if ax["min"] is not None else seen[0]
-    hi = ax["max"] if ax["max"] is not None else seen[-1]
-    outside = [v for v in seen if v < lo or v > hi]
-    if outside:
-        raise TableError(
-            f"{xt.label}: {ax['name'] or ax['type']} {outside[0]} is outside MinScaleValue {lo} .. "
-            f"MaxScaleValue {hi}", file=file, column=xt.label,
-        )
-    return np.arange(lo, hi + 1, dtype=np.int64)
-
-
-def _ultimate_q(xt: _XTable, file: Path) -> tuple[int, np.ndarray]:
-    ages = _axis_range(xt, 0, file)
-    q = np.array([xt.cells.get((int(a),), np.nan) for a in ages])
-    if np.isnan(q).any():
-        a = int(ages[int(np.argmax(np.isnan(q)))])
-        raise TableError(f"{xt.label}: missing value at age {a}", file=file, column=xt.label)
-    return int(ages[0]), q
-
-
-def _select_q(xt: _XTable, min_age: int, ult: np.ndarray, file: Path) -> np.ndarray:
-    ages, durs = _axis_range(xt, 0, file), _axis_range(xt, 1, file)
-    grid = np.array([[xt.cells.get((int(a), int(d)), np.nan) for d in durs] for a in ages])
-    if np.isnan(grid).any():
-        i, j = np.unravel_index(int(np.argmax(np.isnan(grid))), grid.shape)
-        raise TableError(
-            f"{xt.label}: missing select value at age {ages[i]}, duration {durs[j]}",
-            file=file, column=xt.label,
-        )
-    max_age = min_age + ult.size - 1
-    if ages[0] < min_age or ages[-1] > max_age:
-        raise TableError(
-            f"{xt.label}: select ages {ages[0]}..{ages[-1]} are not within the ultimate ages "
-            f"{min_age}..{max_age}", file=file, column=xt.label,
-            fix="the ultimate table must cover every selection age",
-        )
-    # Rows for ages without select rates follow the ultimate rates q_{x+d} (stated rule).
-    all_ages = np.arange(min_age, max_age + 1)
-    att = all_ages[:, None] + np.arange(durs.size)[None, :]
-    out = np.where(att > max_age, 1.0, ult[np.clip(att - min_age, 0, ult.size - 1)])
-    out[ages - min_age, :] = grid
-    return out
-
-
-def _read_xtbml(path: Path, closing: Closing, base_year: int | None) -> dict[str, MortalityTable]:
-    data = path.read_bytes()
-    upper = data.upper()
-    if b"<!DOCTYPE" in upper or b"<!ENTITY" in upper:
-        raise TableError(
-            "XML with a DOCTYPE or ENTITY declaration is refused (entity expansion is unsafe)",
-            file=path, fix="remove the DOCTYPE declaration",
-        )
-    try:
-        root = ET.fromstring(data)
-    except ET.ParseError as exc:
-        raise TableError(f"not well-formed XML ({exc})", file=path) from exc
-    if _local(root.tag) != "XTbML":
-        raise TableError(f"root element is '{_local(root.tag)}', expected 'XTbML'", file=path)
-    cc = _child(root, "ContentClassification")
-    name = _text(cc, "TableName") or path.stem
-    identity = _text(cc, "TableIdentity")
-    src = f"XTbML file {path.name}" + (f", table identity {identity}" if identity else "")
-    xts = [_parse_xtable(t, k, path) for k, t in enumerate(_children(root, "Table"), start=1)]
-    if not xts:
-        raise TableError("no Table element", file=path)
-    ults = [x for x in xts if len(x.axes) == 1]
-    sels = [x for x in xts if len(x.axes) == 2]
-    if len(ults) + len(sels) != len(xts) or not ults or (sels and (len(sels) > 1 or len(ults) > 1)):
-        raise TableError(
-            f"{len(ults)} one-axis and {len(sels)} two-axis tables: supported are ultimate tables, or "
-            "one select table (age x duration) with one ultimate table", file=path,
-        )
-    out: dict[str, MortalityTable] = {}
-    for k, ut in enumerate(ults):
-        label = name if len(ults) == 1 else (ut.label if ut.label != f"Table {k + 1}" else f"{name} [{k + 1}]")
-        min_age, q = _ultimate_q(ut, path)
-        q = _close(q, closing)
-        sel = _select_q(sels[0], min_age, q, path) if sels else None
-        table = MortalityTable(label, min_age, q, base_year=base_year, source=f"{src}, {ut.label}",
-                               select_qx=sel)
-        validate_table(table, file=str(path))
-        out[label] = table
-    return out
-
-
-# --------------------------------------------------------------------------------------------------
 # Public entry points
 # --------------------------------------------------------------------------------------------------
 
@@ -449,7 +259,10 @@ def load_tables(
         raise TableError("file not found", file=p, fix="check the table path in the basis")
     suffix = p.suffix.lower()
     if suffix in XTBML_SUFFIXES:
-        return _read_xtbml(p, closing, base_year)
+        from valuation.mortality.xtbml import mortality_tables, read_xtbml
+
+        _close(np.ones(1), closing)  # the closing rule is checked before the file is read
+        return mortality_tables(read_xtbml(p), closing=closing, base_year=base_year)
     if suffix not in CSV_SUFFIXES + XLSX_SUFFIXES:
         raise TableError(
             f"unknown table format '{suffix}'", file=p, fix="use .csv, .xlsx or XTbML (.xml)"

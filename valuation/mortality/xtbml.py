@@ -1,0 +1,629 @@
+"""XTbML files as the public table repositories distribute them: mortality tables and improvement scales.
+
+XTbML is the SOA's XML standard for actuarial tables: root ``XTbML`` -> ``ContentClassification``
+(``TableIdentity``, ``TableName``, ``ContentType``, ``TableReference``, ...) -> one or more ``Table``
+elements, each with ``MetaData`` (``ScalingFactor``, ``TableDescription`` and one ``AxisDef`` an axis:
+``ScaleType``, ``AxisName``, ``MinScaleValue``, ``MaxScaleValue``, ``Increment``) and ``Values`` made of
+nested ``Axis`` and ``Y`` elements (``<Axis t="60"><Axis><Y t="1">0.0123</Y>...``). Values are divided
+by 10**ScalingFactor (from memory: the scaling factor is the power of ten the stored values were
+multiplied by; 0 means the rates as stored).
+
+What a file's tables are is read from their axes (the axis name first, then the scale type):
+
+- one age axis: an ultimate table (or, in an improvement file, improvement rates by age);
+- age x duration: a select table; it is paired with the ultimate table of the same file, in file
+  order. Standard layout: the ultimate table starts at the first selection age plus the select period
+  (select ages 16-80, a 15-year select period, ultimate from 31). An empty cell (``<Y t="20"/>``) means
+  the select period of that selection age ends there: from that duration on the ultimate rate at the
+  attained age applies, so empty cells must run to the end of their row. A one-value duration axis
+  with one level of values ("duration 3 and over") is an ultimate table;
+- age x calendar year: a period table (mortality that varies by calendar year) or a two-dimensional
+  improvement scale.
+
+Abridged tables (ages in steps of 5 or 10), tables whose axis labels contradict each other, and other
+layouts are refused with one message naming the file, the table and what is not supported.
+
+The XML is parsed with the standard library after refusing any DOCTYPE or ENTITY declaration (also in
+UTF-16 files), so no entity expansion can happen (the protection defusedxml gives).
+
+References
+----------
+.. [XTbML] Society of Actuaries, *XTbML: Extensible Table Markup Language* (adopted by ACORD, 2002);
+   the layout of the files of the SOA's public mortality and other rate tables repository.
+.. [DHW] Dickson, Hardy & Waters, *Actuarial Mathematics for Life Contingent Risks*, 2nd ed., 2013,
+   sections 3.7-3.9 (select and ultimate tables) and 2.6 (period rates).
+.. [MP2014] Society of Actuaries, *Mortality Improvement Scale MP-2014 Report*, 2014 (improvement rates
+   by age and calendar year).
+"""
+
+from __future__ import annotations
+
+import re
+import xml.etree.ElementTree as ET
+from dataclasses import dataclass
+from pathlib import Path
+from typing import TYPE_CHECKING, Literal
+
+import numpy as np
+
+from valuation.errors import TableError
+from valuation.mortality.table import MortalityTable
+
+if TYPE_CHECKING:
+    from valuation.mortality.improvement import AfterLastYear, ImprovementScale
+    from valuation.mortality.readers import Closing
+
+AxisKind = Literal["age", "duration", "year", "other"]
+
+#: Content types whose tables hold improvement rates rather than mortality rates.
+IMPROVEMENT_CONTENT = ("projection scale",)
+
+#: Calendar years a year axis may hold [calendar year] (a wider range is not a calendar year).
+_YEAR_RANGE = (1700, 2300)
+
+
+@dataclass(frozen=True)
+class XAxis:
+    """One ``AxisDef`` of a table: its kind (read from AxisName, then ScaleType) and its range."""
+
+    kind: AxisKind
+    scale_type: str
+    name: str
+    min: int | None
+    max: int | None
+    increment: int | None
+
+    @property
+    def label(self) -> str:
+        """The axis as a user reads it in the file (its AxisName, else its ScaleType)."""
+        return self.name or self.scale_type or "unnamed axis"
+
+
+@dataclass(frozen=True)
+class XTable:
+    """One ``Table`` element as stored: axes, and every value with its coordinates (NaN = empty cell)."""
+
+    number: int  # 1-based position in the file
+    description: str
+    scaling: int
+    axes: tuple[XAxis, ...]
+    coords: np.ndarray  # int64, shape (n_values, depth); depth is the nesting depth of the values
+    values: np.ndarray  # float64, divided by 10**scaling; NaN where the cell is empty
+
+
+@dataclass(frozen=True)
+class XTbMLFile:
+    """A whole XTbML file: its ``ContentClassification`` and its tables."""
+
+    path: Path
+    identity: str | None
+    name: str
+    content_type: str
+    provider: str | None
+    reference: str | None
+    description: str | None
+    tables: tuple[XTable, ...]
+
+    @property
+    def is_improvement(self) -> bool:
+        """True when the content type says the file holds improvement (projection) rates."""
+        return self.content_type.strip().lower() in IMPROVEMENT_CONTENT
+
+    def source(self) -> str:
+        """Provenance note: file name, table identity and the reference the file gives."""
+        out = f"XTbML file {self.path.name}"
+        if self.identity:
+            out += f", table identity {self.identity}"
+        return out
+
+    def table_label(self, t: XTable) -> str:
+        """How a message names a table: the file's TableName, and the table's place when there are several."""
+        if len(self.tables) == 1:
+            return f"table '{self.name}'"
+        return f"table {t.number} of {len(self.tables)} ('{t.description or self.name}')"
+
+
+# --------------------------------------------------------------------------------------------------
+# Parsing
+# --------------------------------------------------------------------------------------------------
+
+
+def _local(tag: str) -> str:
+    return tag.rsplit("}", 1)[-1]
+
+
+def _child(elem: ET.Element | None, name: str) -> ET.Element | None:
+    if elem is None:
+        return None
+    return next((c for c in elem if _local(c.tag) == name), None)
+
+
+def _children(elem: ET.Element, name: str) -> list[ET.Element]:
+    return [c for c in elem if _local(c.tag) == name]
+
+
+def _text(elem: ET.Element | None, name: str) -> str | None:
+    c = _child(elem, name)
+    if c is None or c.text is None:
+        return None
+    t = " ".join(c.text.split())
+    return t or None
+
+
+def _whole(s: str | None, what: str, where: str, file: Path) -> int | None:
+    if s is None or s == "":
+        return None
+    try:
+        v = float(s)
+    except ValueError as exc:
+        raise TableError(f"{where}: {what} '{s}' is not a number", file=file) from exc
+    if v != int(v):
+        raise TableError(f"{where}: {what} '{s}' is not a whole number", file=file)
+    return int(v)
+
+
+def _axis_kind(scale_type: str, name: str) -> AxisKind:
+    st, nm = scale_type.lower(), name.lower()
+    if "dur" in nm or nm.startswith("du") or st == "duration":  # "Duation" occurs in published files
+        return "duration"
+    if "year" in nm:
+        return "year"
+    if "age" in nm or st == "age":
+        return "age"
+    return "other"
+
+
+def _refuse_dtd(data: bytes, path: Path) -> None:
+    text = data
+    if data[:2] in (b"\xff\xfe", b"\xfe\xff") or (len(data) > 1 and b"\x00" in data[:4]):
+        try:  # a UTF-16 file hides the declaration from a byte search
+            text = data.decode("utf-16").encode("utf-8")
+        except UnicodeDecodeError:
+            text = data.replace(b"\x00", b"")
+    upper = text.upper()
+    if b"<!DOCTYPE" in upper or b"<!ENTITY" in upper:
+        raise TableError(
+            "XML with a DOCTYPE or ENTITY declaration is refused, because expanding entities is unsafe",
+            file=path, fix="remove the DOCTYPE declaration from the file",
+        )
+
+
+def _parse_table(elem: ET.Element, number: int, fname: str, path: Path) -> XTable:
+    meta = _child(elem, "MetaData")
+    desc = _text(meta, "TableDescription") or ""
+    where = f"table {number} ('{desc or fname}')"
+    scaling = _whole(_text(meta, "ScalingFactor"), "ScalingFactor", where, path) or 0
+    axes = []
+    for ad in [] if meta is None else _children(meta, "AxisDef"):
+        st, nm = _text(ad, "ScaleType") or "", _text(ad, "AxisName") or ""
+        axes.append(XAxis(
+            _axis_kind(st, nm), st, nm,
+            _whole(_text(ad, "MinScaleValue"), "MinScaleValue", where, path),
+            _whole(_text(ad, "MaxScaleValue"), "MaxScaleValue", where, path),
+            _whole(_text(ad, "Increment"), "Increment", where, path),
+        ))
+    if not axes:
+        raise TableError(f"{where} has no AxisDef, so its ages cannot be read", file=path,
+                         fix="use the file as downloaded; each table describes its axes in MetaData")
+    values = _child(elem, "Values")
+    if values is None:
+        raise TableError(f"{where} has no Values element", file=path)
+
+    coords: list[tuple[int, ...]] = []
+    texts: list[str] = []
+
+    def walk(node: ET.Element, prefix: tuple[int, ...]) -> None:
+        level = len(prefix)
+        ax = axes[min(level, len(axes) - 1)]
+        step = ax.increment or 1
+        start = ax.min or 0
+        for n, y in enumerate(_children(node, "Y")):
+            t = _whole(y.get("t"), "Y t", where, path)
+            coords.append(prefix + (start + n * step if t is None else t,))
+            texts.append((y.text or "").strip())
+        for a in _children(node, "Axis"):
+            t = _whole(a.get("t"), "Axis t", where, path)
+            walk(a, prefix if t is None else prefix + (t,))
+
+    walk(values, ())
+    depth = {len(c) for c in coords}
+    if len(depth) > 1:
+        raise TableError(f"{where}: its values are nested at different depths", file=path)
+    vals = np.full(len(texts), np.nan)
+    for k, s in enumerate(texts):
+        if s:
+            try:
+                vals[k] = float(s)
+            except ValueError as exc:
+                at = ", ".join(f"{a.label} {c}" for a, c in zip(axes, coords[k], strict=False))
+                raise TableError(f"{where}: non-numeric value '{s}' at {at}", file=path,
+                                 fix="use the file as downloaded, or correct that cell") from exc
+    arr = np.asarray(coords, dtype=np.int64).reshape(len(coords), depth.pop() if depth else 0)
+    return XTable(number, desc, scaling, tuple(axes), arr, vals / 10.0**scaling)
+
+
+def read_xtbml(path: str | Path) -> XTbMLFile:
+    """Parse an XTbML file into its classification and raw tables (no interpretation yet).
+
+    Raises :class:`TableError` for a DOCTYPE or ENTITY declaration, XML that is not well formed, a root
+    other than ``XTbML``, a table without axes or values, or a non-numeric value.
+
+    References
+    ----------
+    [XTbML].
+    """
+    p = Path(path)
+    if not p.is_file():
+        raise TableError("file not found", file=p, fix="check the path in the basis")
+    data = p.read_bytes()
+    _refuse_dtd(data, p)
+    try:
+        root = ET.fromstring(data)
+    except ET.ParseError as exc:
+        raise TableError(f"not well-formed XML ({exc})", file=p,
+                         fix="download the file again; it may be cut short") from exc
+    if _local(root.tag) != "XTbML":
+        raise TableError(f"the root element is '{_local(root.tag)}', expected 'XTbML'", file=p,
+                         fix="give an XTbML table file")
+    cc = _child(root, "ContentClassification")
+    name = _text(cc, "TableName") or p.stem
+    tables = tuple(_parse_table(t, k, name, p) for k, t in enumerate(_children(root, "Table"), start=1))
+    if not tables:
+        raise TableError("the file holds no Table element", file=p)
+    return XTbMLFile(
+        p, _text(cc, "TableIdentity"), name, _text(cc, "ContentType") or "", _text(cc, "ProviderName"),
+        _text(cc, "TableReference"), _text(cc, "TableDescription"), tables,
+    )
+
+
+# --------------------------------------------------------------------------------------------------
+# Shapes: what each table is
+# --------------------------------------------------------------------------------------------------
+
+Shape = Literal["ultimate", "select", "period"]
+
+
+def _refusal(xf: XTbMLFile, t: XTable, what: str, fix: str | None = None) -> TableError:
+    return TableError(f"{xf.table_label(t)} {what}", file=xf.path, fix=fix)
+
+
+def table_shape(xf: XTbMLFile, t: XTable) -> tuple[Shape, tuple[XAxis, ...]]:
+    """What a table is (ultimate by age, select age x duration, or by age x calendar year), with its
+    axes in that order (age first). Raises :class:`TableError` for anything else, saying why."""
+    for a in t.axes:
+        if a.kind == "age" and a.increment not in (None, 1):
+            raise _refusal(
+                xf, t, f"is abridged: its ages go up in steps of {a.increment} (AxisDef Increment "
+                       f"{a.increment}), and a valuation needs a rate at every age",
+                fix="use the version of the table with yearly ages, or interpolate the rates to every age "
+                    "and save them as a CSV table",
+            )
+    for a in t.axes:
+        if a.kind == "year" and a.scale_type.lower() == "age":
+            raise _refusal(
+                xf, t, f"has an axis named '{a.name}' whose scale type is Age, so it cannot be told whether "
+                       "it holds ages, calendar years or years of birth",
+                fix="use a table whose axes are labelled consistently, or convert it to CSV yourself",
+            )
+    axes = t.axes
+    depth = t.coords.shape[1]
+    if len(axes) == 2 and depth == 1 and axes[0].kind == "age" and axes[1].kind == "duration" \
+            and axes[1].min is not None and axes[1].min == axes[1].max:
+        axes = axes[:1]  # "duration N and over": an ultimate table labelled with its duration
+    if depth != len(axes):
+        raise _refusal(xf, t, f"declares {len(axes)} axes but its values are nested {depth} deep")
+    kinds = tuple(a.kind for a in axes)
+    if kinds == ("age",):
+        return "ultimate", axes
+    if len(axes) == 2 and set(kinds) == {"age", "duration"}:
+        return "select", axes if kinds[0] == "age" else axes[::-1]
+    if len(axes) == 2 and set(kinds) == {"age", "year"}:
+        yax = axes[kinds.index("year")]
+        lo, hi = yax.min, yax.max
+        if lo is None or hi is None or lo < _YEAR_RANGE[0] or hi > _YEAR_RANGE[1]:
+            raise _refusal(xf, t, f"has a year axis '{yax.label}' running {lo}..{hi}, which are not "
+                                  "calendar years")
+        return "period", axes if kinds[0] == "age" else axes[::-1]
+    shown = " x ".join(f"'{a.label}' ({a.scale_type or 'no scale type'})" for a in axes)
+    raise _refusal(
+        xf, t, f"has axes {shown}: supported are age, age x duration (select) and age x calendar year",
+    )
+
+
+def _order(t: XTable, axes: tuple[XAxis, ...]) -> np.ndarray:
+    """Coordinates with the columns in ``axes`` order (age first)."""
+    if t.coords.shape[1] == 1:
+        return t.coords
+    return t.coords if axes[0] is t.axes[0] else t.coords[:, ::-1]
+
+
+def _grid(xf: XTbMLFile, t: XTable, axes: tuple[XAxis, ...]) -> tuple[list[np.ndarray], np.ndarray]:
+    """Dense grid of a table over its declared ranges (NaN for empty or absent cells)."""
+    coords = _order(t, axes)
+    ranges = []
+    for i, a in enumerate(axes):
+        seen = coords[:, i]
+        lo = a.min if a.min is not None else int(seen.min())
+        hi = a.max if a.max is not None else int(seen.max())
+        if seen.size and (seen.min() < lo or seen.max() > hi):
+            bad = int(seen[(seen < lo) | (seen > hi)][0])
+            raise _refusal(xf, t, f"has a value where {a.label} {bad} is outside MinScaleValue {lo} .. "
+                                  f"MaxScaleValue {hi} of its AxisDef")
+        ranges.append(np.arange(lo, hi + 1, dtype=np.int64))
+    shape = tuple(r.size for r in ranges)
+    idx = tuple(coords[:, i] - ranges[i][0] for i in range(len(axes)))
+    flat = np.ravel_multi_index(idx, shape) if shape else np.zeros(0, dtype=np.int64)
+    uniq, counts = np.unique(flat, return_counts=True)
+    if (counts > 1).any():
+        pos = np.unravel_index(int(uniq[int(np.argmax(counts > 1))]), shape)
+        at = ", ".join(f"{a.label} {int(r[k])}" for a, r, k in zip(axes, ranges, pos, strict=True))
+        raise _refusal(xf, t, f"has two values at {at}")
+    grid = np.full(shape, np.nan)
+    grid[idx] = t.values
+    return ranges, grid
+
+
+def _name_tables(xf: XTbMLFile, main: list[XTable]) -> list[str]:
+    """Names by which a file's tables are picked: TableName for one table, else each table's description
+    (or ``TableName [k]`` where it has none or it repeats)."""
+    if len(main) == 1:
+        return [xf.name]
+    descs = [t.description for t in main]
+    return [d if d and descs.count(d) == 1 else f"{xf.name} [{k}]" for k, d in enumerate(descs, start=1)]
+
+
+# --------------------------------------------------------------------------------------------------
+# Mortality tables
+# --------------------------------------------------------------------------------------------------
+
+
+def _close(q: np.ndarray, closing: Closing) -> np.ndarray:
+    from valuation.mortality.readers import _close as close
+
+    return close(q, closing)
+
+
+def _ultimate(xf: XTbMLFile, t: XTable, axes: tuple[XAxis, ...]) -> tuple[int, np.ndarray]:
+    (ages,), q = _grid(xf, t, axes)
+    if np.isnan(q).any():
+        a = int(ages[int(np.argmax(np.isnan(q)))])
+        raise _refusal(xf, t, f"has a missing value at age {a}; every age from {ages[0]} to {ages[-1]} needs a rate",
+                       fix="use the file as downloaded, or give the missing rate")
+    return int(ages[0]), q
+
+
+#: A select table whose rows are attained ages says so in its description ("values of q[x-t]+t").
+_ATTAINED = re.compile(r"q\s*\[\s*x\s*-\s*t\s*\]\s*\+\s*t", re.IGNORECASE)
+
+
+def _by_selection_age(ages: np.ndarray, grid: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Rows by attained age x holding q_[x-t]+t at duration t -> rows by selection age x - t.
+
+    Some UK tables (the 92 series) are laid out by attained age, stated in their description as
+    "values of q[x-t]+t"; the selection age of the cell (x, t) is x - t.
+    """
+    n = grid.shape[1]
+    sel_ages = np.arange(ages[0] - (n - 1), ages[-1] + 1)
+    out = np.full((sel_ages.size, n), np.nan)
+    for t in range(n):  # n is the select period (a few years), not a member count
+        out[(ages - t) - sel_ages[0], t] = grid[:, t]
+    return sel_ages, out
+
+
+def _select(xf: XTbMLFile, t: XTable, axes: tuple[XAxis, ...], min_age: int,
+            ult: np.ndarray) -> tuple[int, np.ndarray]:
+    """Select rows for selection ages ``first .. max_age`` (first = min(first selection age, min_age)).
+
+    Rows are selection ages (rows by attained age are turned round first, see :func:`_by_selection_age`).
+    A row is read as [empty cells at ages below the table][rates][empty cells to the end]. Empty cells
+    at the end mean the select period of that selection age ends there, so the ultimate rate at the
+    attained age applies (stated rule, the standard layout). Empty cells at the start of a row are allowed
+    only at attained ages below the ultimate table's first age, which the table does not cover; they take
+    the row's first rate, as ages below a table's first age take its first rate (stated rule).
+    """
+    (ages, durs), grid = _grid(xf, t, axes)
+    n = durs.size
+    if _ATTAINED.search(t.description):
+        ages, grid = _by_selection_age(ages, grid)
+    max_age = min_age + ult.size - 1
+    empty = np.isnan(grid)
+    given = ~empty
+    k = np.arange(n)[None, :]
+    has = given.any(axis=1)
+    lead = np.where(has, np.argmax(given, axis=1), n)  # first duration index with a rate
+    last = np.where(has, n - 1 - np.argmax(given[:, ::-1], axis=1), -1)  # last duration index with a rate
+    gap = empty & (k > lead[:, None]) & (k < last[:, None])
+    if gap.any():
+        i, j = (int(v) for v in np.unravel_index(int(np.argmax(gap)), gap.shape))
+        raise _refusal(
+            xf, t, f"has an empty cell at age {ages[i]}, duration {durs[j]} between rates of the same row; "
+                   "only the start of a row (ages the table does not cover) and its end (where the select "
+                   "period ends) may be empty",
+        )
+    att = ages[:, None] + k
+    early = empty & (k < lead[:, None]) & (att >= min_age) & has[:, None]
+    if early.any():
+        i, j = (int(v) for v in np.unravel_index(int(np.argmax(early)), early.shape))
+        raise _refusal(
+            xf, t, f"has an empty cell at age {ages[i]}, duration {durs[j]} before the first rate of its row, "
+                   f"at attained age {att[i, j]}, which the ultimate table covers",
+        )
+    if ages[-1] > max_age:
+        raise _refusal(xf, t, f"has selection ages up to {ages[-1]}, beyond the last age {max_age} of the "
+                              "ultimate table")
+    # Standard layout: a life selected at x reaches the ultimate table at x + (its select period), so
+    # the ultimate table must start no later than the first selection age plus the select period.
+    period = np.where(has, last + 1, 0)
+    needs = ages + period
+    if needs.min() < min_age:
+        i = int(np.argmin(needs))
+        raise _refusal(
+            xf, t, f"needs ultimate rates from age {needs[i]} (selection age {ages[i]} with a select period "
+                   f"of {period[i]} years), but the ultimate table starts at age {min_age}",
+            fix="use the file as downloaded; the ultimate table must start by the first selection age plus "
+                "the select period",
+        )
+    first = min(int(ages[0]), min_age)
+    rows = np.arange(first, max_age + 1)
+    attained = rows[:, None] + k
+    # ultimate q at the attained age; 1 past the closing age (stated rule)
+    out = np.where(attained > max_age, 1.0, ult[np.clip(attained - min_age, 0, ult.size - 1)])
+    row_first = grid[np.arange(ages.size), np.minimum(lead, n - 1)]
+    leading = (k < lead[:, None]) & has[:, None]
+    sel = np.where(given, grid, np.where(leading, row_first[:, None], out[ages - first]))
+    out[ages - first] = sel
+    return first, out
+
+
+def _period(xf: XTbMLFile, t: XTable, axes: tuple[XAxis, ...], closing: Closing) -> tuple[int, int, np.ndarray]:
+    (ages, years), grid = _grid(xf, t, axes)
+    if np.isnan(grid).any():
+        i, j = (int(v) for v in np.unravel_index(int(np.argmax(np.isnan(grid))), grid.shape))
+        raise _refusal(xf, t, f"has no rate at age {ages[i]} in year {years[j]}; a period table needs a rate "
+                              f"at every age {ages[0]}..{ages[-1]} in every year {years[0]}..{years[-1]}")
+    cols = np.column_stack([_close(grid[:, j], closing) for j in range(years.size)])
+    return int(ages[0]), int(years[0]), cols
+
+
+def mortality_tables(
+    xf: XTbMLFile, *, closing: Closing = "require", base_year: int | None = None
+) -> dict[str, MortalityTable]:
+    """Every mortality table of an XTbML file, validated (see the module docstring for the layouts).
+
+    Parameters
+    ----------
+    xf : XTbMLFile
+        From :func:`read_xtbml`.
+    closing : {"require", "set_last_to_one"}
+        Closing rule, as :func:`valuation.mortality.readers.load_tables`.
+    base_year : int, optional
+        Calendar year the rates describe [calendar year]; for a period table, the year whose rates the
+        table's ``qx`` holds (default: each year's own rates, see :class:`MortalityTable`).
+
+    Returns
+    -------
+    dict
+        Table name -> :class:`MortalityTable`. One table: the file's TableName; several: each table's
+        description.
+
+    References
+    ----------
+    [XTbML]; [DHW] sections 3.7-3.9 (select and ultimate), 2.6 (period rates).
+    """
+    from valuation.mortality.readers import validate_table
+
+    if xf.is_improvement:
+        raise TableError(
+            f"the file holds improvement rates (content type {xf.content_type}), not mortality rates",
+            file=xf.path, fix="use it as the improvement of a table: improvement = { kind = \"table\", "
+                              f"file = \"{xf.path.name}\" }} in the basis",
+        )
+    shapes = [(t, *table_shape(xf, t)) for t in xf.tables]
+    ults = [(t, ax) for t, s, ax in shapes if s == "ultimate"]
+    sels = [(t, ax) for t, s, ax in shapes if s == "select"]
+    pers = [(t, ax) for t, s, ax in shapes if s == "period"]
+    if sels and len(sels) != len(ults):
+        raise TableError(
+            f"{len(sels)} select tables (age x duration) and {len(ults)} ultimate tables: each select table "
+            "needs the ultimate table it runs into, one for one in file order", file=xf.path,
+        )
+    if pers and (ults or sels):
+        raise TableError("mixes period tables (age x calendar year) with tables by age alone; supported is "
+                         "one kind of table a file", file=xf.path)
+    src = xf.source()
+    out: dict[str, MortalityTable] = {}
+    main = [t for t, _ in (pers or ults)]
+    names = _name_tables(xf, main)
+    if pers:
+        for (t, ax), name in zip(pers, names, strict=True):
+            min_age, y0, grid = _period(xf, t, ax, closing)
+            years = np.arange(y0, y0 + grid.shape[1])
+            for j, y in enumerate(years):
+                validate_table(MortalityTable(f"{name}, year {y}", min_age, grid[:, j]), file=str(xf.path))
+            col = grid.shape[1] - 1
+            if base_year is not None:
+                if not y0 <= base_year <= years[-1]:
+                    raise TableError(f"base year {base_year} is outside the years {y0}..{years[-1]} of the "
+                                     f"period table '{name}'", file=xf.path)
+                col = base_year - y0
+            table = MortalityTable(name, min_age, grid[:, col], base_year=base_year,
+                                   source=f"{src}, {xf.table_label(t)}", year_qx=grid, first_year=y0)
+            out[name] = table
+        return out
+    for k, ((ut, uax), name) in enumerate(zip(ults, names, strict=True)):
+        min_age, q = _ultimate(xf, ut, uax)
+        q = _close(q, closing)
+        sel_first, sel = None, None
+        label = xf.table_label(ut)
+        if sels:
+            st, sax = sels[k]
+            sel_first, sel = _select(xf, st, sax, min_age, q)
+            label = f"{xf.table_label(st)} with {xf.table_label(ut)}"
+        table = MortalityTable(name, min_age, q, base_year=base_year, source=f"{src}, {label}",
+                               select_qx=sel, select_min_age=sel_first)
+        validate_table(table, file=str(xf.path))
+        out[name] = table
+    return out
+
+
+# --------------------------------------------------------------------------------------------------
+# Improvement scales
+# --------------------------------------------------------------------------------------------------
+
+
+def improvement_scale(
+    xf: XTbMLFile,
+    name: str | None = None,
+    *,
+    after_last_year: AfterLastYear = "hold_last",
+    long_term_rate: float = 0.0,
+    rules_given: bool = False,
+) -> ImprovementScale:
+    """An improvement scale from an XTbML file: rates by age, or by age x calendar year.
+
+    One age axis gives :class:`~valuation.mortality.improvement.AgeImprovement` (the same rates every
+    year); age x calendar year gives :class:`~valuation.mortality.improvement.TwoDimensionalScale` with
+    ``after_last_year`` and ``long_term_rate`` as for a CSV scale. ``name`` picks a table in a file with
+    several (names as :func:`mortality_tables`). ``rules_given`` says that the caller set
+    ``after_last_year`` or ``long_term_rate``, which a scale by age alone cannot use.
+
+    References
+    ----------
+    [MP2014] (improvement rates by age and calendar year); [XTbML].
+    """
+    from valuation.mortality.improvement import AgeImprovement, TwoDimensionalScale
+
+    if not xf.is_improvement and "mortality" in xf.content_type.lower():
+        raise TableError(
+            f"the file holds mortality rates (content type {xf.content_type}), not improvement rates",
+            file=xf.path, fix="give it as the table of a mortality entry, and an improvement scale file here",
+        )
+    names = _name_tables(xf, list(xf.tables))
+    if name is None and len(xf.tables) > 1:
+        raise TableError(f"holds {len(xf.tables)} tables; say which one", file=xf.path,
+                         fix=f"give a table_name in the improvement: one of {', '.join(names)}")
+    if name is not None and name not in names:
+        raise TableError(f"no table named '{name}'", file=xf.path,
+                         fix=f"give a table_name in the improvement: one of {', '.join(names)}")
+    t = xf.tables[0 if name is None else names.index(name)]
+    shape, axes = table_shape(xf, t)
+    ranges, grid = _grid(xf, t, axes)
+    if np.isnan(grid).any():
+        pos = np.unravel_index(int(np.argmax(np.isnan(grid))), grid.shape)
+        at = ", ".join(f"{a.label} {int(r[k])}" for a, r, k in zip(axes, ranges, pos, strict=True))
+        raise _refusal(xf, t, f"has no improvement rate at {at}")
+    bad = (grid <= -1.0) | (grid >= 1.0)
+    if bad.any():
+        pos = np.unravel_index(int(np.argmax(bad)), grid.shape)
+        at = ", ".join(f"{a.label} {int(r[k])}" for a, r, k in zip(axes, ranges, pos, strict=True))
+        raise _refusal(xf, t, f"has improvement rate {grid[pos]:g} at {at}, not strictly between -1 and 1")
+    if shape == "ultimate":
+        if rules_given:
+            raise _refusal(xf, t, "holds improvement rates by age only, the same in every year, so "
+                                  "after_last_year and long_term_rate do not apply",
+                           fix="remove after_last_year and long_term_rate from the improvement")
+        return AgeImprovement(ranges[0], grid)
+    if shape == "period":
+        return TwoDimensionalScale(int(ranges[0][0]), ranges[1], grid, after_last_year, long_term_rate)
+    raise _refusal(xf, t, "is a select table (age x duration), not an improvement scale",
+                   fix="give a scale by age, or by age and calendar year")
