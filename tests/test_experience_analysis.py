@@ -12,6 +12,7 @@ import polars as pl
 import pytest
 
 from valuation.experience import ExperienceSettings, analyse_records
+from valuation.experience.cells import CLOSING_AGE_REASON
 from valuation.experience.exposure import explode_exposure
 from valuation.mortality.laws import SULT_LAW
 
@@ -231,20 +232,6 @@ def test_late_reporting_uplift_applies_to_final_months_only() -> None:
     assert none.summary["settings"]["late_reporting"].startswith("none")
 
 
-def test_implied_percentage_is_current_times_ae_amounts() -> None:
-    """Implied percentage = current percentage x A/E by amounts (common practice), interval carried."""
-    rates = LawRates(percentage=0.9)
-    recs = records(["1945-01-01"] * 50, [1000.0 + 10 * i for i in range(50)])
-    deaths = deaths_frame([(f"M{i:05d}", "2022-03-01", None) for i in range(0, 50, 7)])
-    res = analyse_records(recs, deaths, None, lookup_for(rates), ExperienceSettings(**PERIOD))
-    o = res.overall()
-    imp = res.implied
-    assert imp["implied_percentage"] == pytest.approx(90.0 * o["ae_amounts"], rel=1e-12)
-    assert imp["lower"] == pytest.approx(90.0 * o["ae_amounts_lower"], rel=1e-12)
-    assert imp["upper"] == pytest.approx(90.0 * o["ae_amounts_upper"], rel=1e-12)
-    assert imp["multiplier"] == pytest.approx(o["ae_amounts"], rel=1e-12)
-
-
 def test_table_dimensions_reconcile_to_overall() -> None:
     """Each dimension partitions the cells, so its groups add up to the overall totals."""
     rng = np.random.default_rng(3)
@@ -303,11 +290,13 @@ def test_cells_at_the_closing_age_are_left_out_with_a_warning() -> None:
     )
     warn = res.exceptions.filter(pl.col("severity") == "warning").to_dicts()
     assert len(warn) == 1 and warn[0]["member_id"] == "M00000" and warn[0]["file"] == "s.csv"
+    # the reason is the same for every member (a template); the member's figures are in the value:
     # 1 Jan-1 Jun 2022 = 31+28+31+30+31+1 = 152 days at age 100, with the one death
-    assert warn[0]["reason"] == (
-        "member reaches age 100, where the pensioner M mortality has q = 1 (closing age), in the period: "
-        f"{round(152 / 365.25, 3)} years of exposure and 1 death(s) from that age are left out of the analysis"
+    assert warn[0]["reason"] == CLOSING_AGE_REASON
+    assert warn[0]["value"] == (
+        f"age 100 (pensioner M table); {round(152 / 365.25, 3)} years of exposure and 1 deaths left out"
     )
+    assert (warn[0]["column"], warn[0]["file_column"]) == ("date_of_birth", "date_of_birth")
     counts = res.summary["records"]["deaths"]
     assert counts["counted"] == 1 and counts["in_cells"] == 0 and counts["left_out_at_closing_age"] == 1
     assert np.isfinite(res.overall()["expected_lives"])
@@ -318,21 +307,29 @@ def test_cells_at_the_closing_age_are_left_out_with_a_warning() -> None:
     [
         (
             {"period_end": date(2021, 3, 31)},
-            "experience setting period_end = datetime.date(2021, 3, 31): expected a date after",
+            "experience setting period_end (--period-end on the command line) is 2021-03-31: it must be a "
+            "date after the period start 2021-03-31",
         ),
-        ({"exposure": "mid"}, "experience setting exposure = 'mid': expected 'central' or 'initial'"),
-        ({"confidence": 95}, "expected a number strictly between 0 and 1"),
-        ({"late_uplift": -0.1}, "late_uplift = -0.1: expected a proportion >= 0"),
-        ({"pension_band_edges": (5000.0, 1000.0)}, "expected increasing amounts > 0"),
+        ({"exposure": "mid"}, "experience setting exposure (--exposure on the command line) is mid: it must "
+         "be central or initial"),
+        ({"confidence": 95}, "confidence (--confidence on the command line) is 95: it must be a number "
+         "strictly between 0 and 1 (fix: give 0.95 for 95 %)"),
+        ({"late_uplift": -0.1}, "late_uplift (--late-uplift on the command line) is -0.1: it must be a "
+         "proportion, 0 or more"),
+        ({"pension_band_edges": (5000.0, 1000.0)}, "pension_band_edges is 5000, 1000: it must be increasing "
+         "amounts above 0"),
     ],
 )
 def test_settings_errors_name_the_setting(kwargs: dict, text: str) -> None:
+    """Messages name the setting and its command-line option, show the value as written (no Python
+    repr) and give the fix once."""
     from valuation.errors import BasisError
 
     with pytest.raises(BasisError) as info:
         ExperienceSettings(**{**PERIOD, **kwargs})
     assert text in str(info.value)
     assert info.value.column == next(iter(kwargs))
+    assert "datetime" not in str(info.value) and str(info.value).count("(fix:") == 1
 
 
 def test_pension_band_labels_with_given_edges() -> None:

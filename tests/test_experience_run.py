@@ -5,6 +5,7 @@ from __future__ import annotations
 
 import json
 import math
+import re
 from datetime import date
 from pathlib import Path
 
@@ -13,6 +14,7 @@ import pytest
 
 from valuation.basis import load_basis
 from valuation.experience import ExperienceSettings, analyse_experience, analyse_records
+from valuation.experience.credibility import full_credibility_standard
 from valuation.experience.events import read_events
 
 from .test_experience_analysis import LawRates, lookup_for
@@ -45,7 +47,14 @@ def test_sult_basis_run_matches_the_makeham_law() -> None:
     for col in ("exposure_years", "expected_lives", "expected_amounts", "actual_lives", "actual_amounts"):
         assert res.overall()[col] == pytest.approx(ref.overall()[col], rel=1e-12), col
     assert res.overall()["actual_amounts"] == 1250 + 3100
-    assert res.implied["implied_percentage"] == pytest.approx(100 * res.overall()["ae_amounts"], rel=1e-12)
+    # one table (default, both sexes at 100 %): implied = 100 % x (Z x A/E + 1 - Z), Z = sqrt(E / 1,082.2)
+    # on the expected deaths of the lives with a pension (all six here) (Longley-Cook 1962, from memory)
+    o = res.implied["overall"]
+    z = math.sqrt(res.overall()["expected_lives"] / full_credibility_standard(0.90, 0.05))
+    assert o["credibility"] == pytest.approx(z, rel=1e-12)
+    assert res.implied["implied_percentage"] == pytest.approx(
+        100 * (z * res.overall()["ae_amounts"] + 1 - z), rel=1e-12
+    )
     assert res.implied["liability_before"] is None
     assert res.implied["reason"] == "no valuation member file given: liability effect not calculated"
 
@@ -69,9 +78,12 @@ def test_demo_counts_reconcile_and_bad_rows_are_listed(demo) -> None:  # noqa: A
     assert d["read"] == d["counted"] + d["excluded"]
     assert d["excluded"] == 2
     assert d["counted"] == d["in_cells"]
-    reasons = demo.exceptions.filter(pl.col("file").str.ends_with("deaths.csv"))["reason"].to_list()
-    assert any("unknown member 'GW999999'" in r for r in reasons)
-    assert any("is on or before the period start 2022-03-31" in r for r in reasons)
+    deaths = demo.exceptions.filter(pl.col("file").str.ends_with("deaths.csv"))
+    values = dict(zip(deaths["reason"], deaths["value"], strict=True))
+    assert values["death for a member not in the start membership (" + str(DEMO / "members_start.csv")
+                  + "): not counted"] == "GW999999"
+    before = "death on or before the period start 2022-03-31: the member should not be in the start membership"
+    assert any(r.startswith(before) for r in values)
     x = demo.summary["records"]["exits"]
     assert x["read"] == x["applied"] + x["excluded"]
     assert demo.overall()["actual_lives"] == d["counted"]
@@ -89,22 +101,51 @@ def test_demo_deaths_drawn_from_the_basis_give_plausible_ae(demo) -> None:  # no
     assert years == ["2022", "2023", "2024", "2025"]
 
 
-def test_liability_effect_is_a_full_revaluation(demo) -> None:  # noqa: ANN001
-    """liability_after is value_members at q_multiplier = A/E amounts, not an approximation; heavier
-    mortality (multiplier > 1) lowers a pension liability and lighter raises it (common practice)."""
+def _basis_with_percentages(source: Path, target: Path, percentages: dict[str, float]) -> Path:
+    """A copy of a basis file with ``percentage`` of each named ``[mortality.<group>.<sex>]`` section
+    replaced (text edit of the TOML, so the copy is read by the public loader like any user's file)."""
+    out, section = [], ""
+    for line in source.read_text(encoding="utf-8").splitlines():
+        head = re.match(r"\s*\[([^\]]+)\]", line)
+        if head:
+            section = head.group(1).strip()
+        if section in percentages and re.match(r"\s*percentage\s*=", line):
+            line = f"percentage = {percentages[section]!r}"
+        out.append(line)
+    target.write_text("\n".join(out) + "\n", encoding="utf-8")
+    return target
+
+
+def test_liability_effect_uses_each_tables_own_implied_percentage(demo, tmp_path: Path) -> None:  # noqa: ANN001
+    """liability_after is the liability valued, through the public API, on the basis file with each
+    mortality table's percentage replaced by its own credibility-weighted implied percentage; the
+    tables' own A/E differ, so one overall multiplier gives another figure. Heavier mortality on balance
+    lowers a pension liability (common practice)."""
+    from valuation import value_scheme
     from valuation.engine.run import value_members
     from valuation.members import read_members
 
-    basis = load_basis(ROOT / "assumptions" / "demo_basis.toml")
-    data = read_members(DEMO / "members.csv", basis)
-    k = demo.implied["multiplier"]
-    direct = value_members(data, basis, q_multiplier=k, sensitivities=False).total_liability
-    base = value_members(data, basis, q_multiplier=1.0, sensitivities=False).total_liability
     imp = demo.implied
+    rows = {r["table"]: r for r in imp["by_table"]}
+    assert set(rows) == {"mortality.pensioner.M", "mortality.dependant.F", "mortality.default.M",
+                         "mortality.default.F"}
+    ae = [r["ae_amounts"] for r in rows.values()]
+    assert max(ae) - min(ae) > 0.3  # dependant women below 100 %, male pensioners above
+    new = {key: r["implied_percentage"] / 100 for key, r in rows.items()}
+    basis_file = ROOT / "assumptions" / "demo_basis.toml"
+    changed = _basis_with_percentages(basis_file, tmp_path / "implied_basis.toml", new)
+    direct = value_scheme(DEMO / "members.csv", changed, sensitivities=False).total_liability
+    base = value_scheme(DEMO / "members.csv", basis_file, sensitivities=False).total_liability
     assert imp["liability_after"] == pytest.approx(direct, rel=1e-12)
     assert imp["liability_before"] == pytest.approx(base, rel=1e-12)
     assert imp["change_pct"] == pytest.approx(100 * (direct / base - 1), rel=1e-12)
-    assert math.copysign(1, imp["change_pct"]) == -math.copysign(1, k - 1)
+    assert {k: v["to"] for k, v in imp["basis_changes"].items()} == {
+        k: r["implied_percentage"] for k, r in rows.items()
+    }
+    basis = load_basis(basis_file)
+    overall = value_members(read_members(DEMO / "members.csv", basis), basis, q_multiplier=imp["multiplier"],
+                            sensitivities=False).total_liability
+    assert abs(overall - direct) > 1e-4 * base
 
 
 def test_write_produces_json_csv_and_exceptions(demo, tmp_path: Path) -> None:  # noqa: ANN001
@@ -118,9 +159,16 @@ def test_write_produces_json_csv_and_exceptions(demo, tmp_path: Path) -> None:  
     assert summary["implied"]["liability_after"] == pytest.approx(demo.implied["liability_after"])
     table = pl.read_csv(tmp_path / "experience.csv")
     assert table.columns[:3] == ["dimension", "group", "exposure_years"]
-    assert table.height == demo.table.height
+    assert table.height == demo.table.height + len(demo.implied["by_table"])
+    by_table = table.filter(pl.col("dimension") == "mortality_table")
+    assert by_table["implied_percentage"].to_list() == pytest.approx(
+        [r["implied_percentage"] for r in demo.implied["by_table"]], rel=1e-12
+    )
+    assert {"sex", "current_percentage", "credibility", "implied_percentage"} <= set(table.columns)
+    assert summary["implied"]["by_table"][0]["credibility"] == pytest.approx(demo.implied["by_table"][0]["credibility"])
+    assert "1,082 expected deaths" in summary["implied"]["credibility_standard"]["text"]
     exc = pl.read_csv(tmp_path / "experience_exceptions.csv", infer_schema=False)
-    assert exc.columns == ["file", "row", "member_id", "column", "value", "reason", "severity"]
+    assert exc.columns == ["file", "row", "member_id", "column", "file_column", "value", "reason", "severity"]
     # NaN ratios (no expected amounts for actives) are written as JSON null, not NaN
     active = next(r for r in summary["by_group"]["status"] if r["group"] == "active")
     assert active["ae_amounts"] is None

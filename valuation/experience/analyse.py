@@ -16,11 +16,24 @@ import polars as pl
 
 from valuation.experience.cells import RateLookup, build_cells
 from valuation.experience.checks import EXCEPTION_SCHEMA, check_events, empty_exceptions
-from valuation.experience.events import read_events
-from valuation.experience.implied import implied_percentages, liability_effect
+from valuation.experience.events import read_events_with_headers
+from valuation.experience.implied import (
+    TableKey,
+    by_table_frame,
+    implied_percentages,
+    liability_effect,
+    own_table_key,
+)
 from valuation.experience.result import TABLE_COLUMNS, ExperienceResult
 from valuation.experience.settings import ExperienceSettings
-from valuation.experience.tables import DIMENSIONS, ae_table, default_band_edges, pension_band_labels
+from valuation.experience.tables import (
+    DIMENSIONS,
+    ae_by_table,
+    ae_overall_at_risk,
+    ae_table,
+    default_band_edges,
+    pension_band_labels,
+)
 from valuation.members.schema import GROUP_OF_STATUS
 
 
@@ -31,6 +44,23 @@ def _conform(df: pl.DataFrame) -> pl.DataFrame:
             for c, t in EXCEPTION_SCHEMA.items()
         ]
     )
+
+
+def _member_headers(path: str | Path, basis: Any) -> dict[str, str]:
+    """Our column name -> the member file's header as written (for the exceptions' ``file_column``).
+
+    Read from the file's header line where that is cheap (CSV, Parquet); otherwise the basis mapping's
+    header, or our own name.
+    """
+    from valuation.errors import ValuationError
+    from valuation.members.readers import header_targets, read_header
+
+    try:
+        written = read_header(path)
+        return {ours: header.replace("\ufeff", "") for header, ours in header_targets(
+            written, basis.mapping, Path(path)).items()}
+    except (ValuationError, OSError, ValueError):
+        return {ours: theirs for theirs, ours in basis.mapping.columns.items()}
 
 
 def analyse_records(
@@ -45,6 +75,8 @@ def analyse_records(
     member_counts: dict[str, int] | None = None,
     files: dict[str, str] | None = None,
     date_format: str | None = None,
+    table_key: TableKey | None = None,
+    headers: dict[str, dict[str, str]] | None = None,
 ) -> ExperienceResult:
     """The analysis on frames already read (no liability effect: see :func:`analyse_experience`).
 
@@ -65,12 +97,21 @@ def analyse_records(
         Display names: ``members``, ``deaths``, ``exits``.
     date_format
         The accepted non-ISO date pattern (quoted in messages).
+    table_key
+        ``table_key(group, sex)`` -> the mortality table entry the pair uses, ``"mortality.<group>.<sex>"``
+        (``Basis.mortality_key``); by default every group and sex counts as its own entry.
+    headers
+        Our column name -> the file's header as written, for ``members``, ``deaths`` and ``exits``
+        (named in the exceptions' ``file_column``).
 
     References
     ----------
-    [BP] actual versus expected deaths by lives and by amounts; [G] exact Poisson limits.
+    [BP] actual versus expected deaths by lives and by amounts; [G] exact Poisson limits; credibility
+    as in :mod:`valuation.experience.credibility`.
     """
     files = {"members": "", "deaths": "", "exits": "", **(files or {})}
+    headers = {"members": {}, "deaths": {}, "exits": {}, **(headers or {})}
+    table_key = table_key or own_table_key
     excluded_ids = excluded_ids if excluded_ids is not None else pl.Series("member_id", [], pl.String)
     checked = check_events(
         deaths,
@@ -83,6 +124,8 @@ def analyse_records(
         exits_file=files["exits"],
         members_file=files["members"],
         date_format=date_format,
+        deaths_headers=headers["deaths"],
+        exits_headers=headers["exits"],
     )
     edges = settings.pension_band_edges
     if edges is None:
@@ -97,19 +140,40 @@ def analyse_records(
         pl.col("pension").cast(pl.Float64),
     ).with_columns(bands)
     cells, closing = build_cells(
-        members, checked.deaths, checked.exits, lookup, settings, members_file=files["members"]
+        members,
+        checked.deaths,
+        checked.exits,
+        lookup,
+        settings,
+        members_file=files["members"],
+        date_of_birth_header=headers["members"].get("date_of_birth", "date_of_birth"),
     )
     table = ae_table(
         cells, confidence=settings.confidence, overdispersion=settings.overdispersion, band_order=band_order
     )
     overall = table.filter(pl.col("dimension") == "overall")
-    if overall.height:
-        o = overall.row(0, named=True)
-        ae, lo, hi = o["ae_amounts"], o["ae_amounts_lower"], o["ae_amounts_upper"]
-    else:
-        ae = lo = hi = float("nan")
-    groups = [tuple(r) for r in members.select("group", "sex").unique().sort(["group", "sex"]).iter_rows()]
-    implied = implied_percentages(ae, lo, hi, groups, lookup)
+    pairs = [tuple(r) for r in members.select("group", "sex").unique().sort(["group", "sex"]).iter_rows()]
+    keys = pl.DataFrame(
+        {
+            "group": [g for g, _ in pairs],
+            "sex": [x for _, x in pairs],
+            "table": [table_key(g, x) for g, x in pairs],  # one a (group, sex) pair, never one a member
+        },
+        schema={"group": pl.String, "sex": pl.String, "table": pl.String},
+    )
+    table_of = cells.select("group", "sex").join(keys, on=["group", "sex"], how="left", maintain_order="left")
+    by_table = ae_by_table(
+        cells, table_of["table"], confidence=settings.confidence, overdispersion=settings.overdispersion
+    )
+    implied = implied_percentages(
+        by_table,
+        overall.row(0, named=True) if overall.height else None,
+        ae_overall_at_risk(cells),
+        pairs,  # type: ignore[arg-type]
+        lookup,
+        table_key,
+        settings,
+    )
 
     exceptions = pl.concat(
         [
@@ -150,7 +214,13 @@ def analyse_records(
         },
     }
     return ExperienceResult(
-        settings=settings, table=public, implied=implied, exceptions=exceptions, summary=summary, cells=cells
+        settings=settings,
+        table=public,
+        implied=implied,
+        exceptions=exceptions,
+        summary=summary,
+        cells=cells,
+        by_table=by_table_frame(implied),
     )
 
 
@@ -179,8 +249,9 @@ def analyse_experience(
     exits_path
         Other exits (member_id, exit_date, reason); exposure stops at the exit.
     valuation_members_path
-        Membership at the valuation date: when given, the liability is re-valued with every q scaled by
-        A/E by amounts; when not, the liability effect is skipped and the result says so.
+        Membership at the valuation date: when given, the liability is re-valued on the basis with each
+        mortality table entry's percentage replaced by its own credibility-weighted implied percentage;
+        when not, the liability effect is skipped and the result says so.
 
     Returns
     -------
@@ -188,7 +259,8 @@ def analyse_experience(
 
     References
     ----------
-    [BP] exposed to risk and actual versus expected deaths; [G] exact Poisson limits.
+    [BP] exposed to risk and actual versus expected deaths; [G] exact Poisson limits; credibility as in
+    :mod:`valuation.experience.credibility`.
     """
     from valuation.basis import load_basis
     from valuation.members import read_members
@@ -203,11 +275,13 @@ def analyse_experience(
     column_map = dict(mapping.columns)
     # the start membership is checked as at the period start (ages, dates of birth after that date)
     data = read_members(members_path, basis.model_copy(update={"valuation_date": settings.period_start}))
-    deaths = read_events(deaths_path, "deaths", date_format=date_format, column_map=column_map)
-    exits = (
-        read_events(exits_path, "exits", date_format=date_format, column_map=column_map)
+    deaths, deaths_headers = read_events_with_headers(
+        deaths_path, "deaths", date_format=date_format, column_map=column_map
+    )
+    exits, exits_headers = (
+        read_events_with_headers(exits_path, "exits", date_format=date_format, column_map=column_map)
         if exits_path
-        else None
+        else (None, {})
     )
     member_exc = data.exceptions
     excluded_ids = (
@@ -226,8 +300,14 @@ def analyse_experience(
         member_counts={"read": data.read, "valued": data.valued, "excluded": data.excluded},
         files={"members": str(members_path), "deaths": str(deaths_path), "exits": str(exits_path or "")},
         date_format=date_format,
+        table_key=basis.mortality_key,
+        headers={
+            "members": _member_headers(members_path, basis),
+            "deaths": deaths_headers,
+            "exits": exits_headers,
+        },
     )
-    effect = liability_effect(valuation_members_path, basis, result.implied["multiplier"])
+    effect = liability_effect(valuation_members_path, basis, result.implied["by_table"])
     result.implied.update(effect)
     result.summary["implied"] = result.implied
     return result

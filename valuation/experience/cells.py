@@ -41,6 +41,13 @@ class RateLookup(Protocol):
     def __call__(self, group: Group, sex: Sex) -> Rates: ...
 
 
+#: Reason of the warning for exposure left out at a table's closing age (the same for every member).
+CLOSING_AGE_REASON = (
+    "member reaches the closing age of their mortality table (q = 1) in the period: the exposure and "
+    "deaths from that age are left out of the analysis"
+)
+
+
 def late_cutoff(settings: ExperienceSettings) -> date:
     """Deaths after this date are in the final ``late_months`` months of the period."""
     return (
@@ -74,6 +81,7 @@ def build_cells(
     settings: ExperienceSettings,
     *,
     members_file: str = "",
+    date_of_birth_header: str = "date_of_birth",
 ) -> tuple[pl.DataFrame, pl.DataFrame]:
     """Explode members into cells and attach actual and expected deaths.
 
@@ -91,6 +99,8 @@ def build_cells(
         ``lookup(group, sex)`` -> rates with ``q(ages, years)`` and ``mu(ages, years)``.
     settings
         Period, exposure method and late-reporting allowance.
+    members_file, date_of_birth_header
+        The start membership file and its date-of-birth header as written (named in the warnings).
 
     Returns
     -------
@@ -169,16 +179,16 @@ def build_cells(
             pl.col("row").cast(pl.Int64),
             pl.col("member_id").cast(pl.String),
             pl.lit("date_of_birth").alias("column"),
-            pl.col("age").cast(pl.String).alias("value"),
+            pl.lit(date_of_birth_header).alias("file_column"),
             pl.format(
-                "member reaches age {}, where the {} {} mortality has q = 1 (closing age), in the period: "
-                "{} years of exposure and {} death(s) from that age are left out of the analysis",
+                "age {} ({} {} table); {} years of exposure and {} deaths left out",
                 pl.col("age"),
                 pl.col("group"),
                 pl.col("sex"),
                 pl.col("exposure").round(3),
                 pl.col("deaths"),
-            ).alias("reason"),
+            ).alias("value"),
+            pl.lit(CLOSING_AGE_REASON).alias("reason"),
             pl.lit("warning").alias("severity"),
         )
     cells = (

@@ -13,6 +13,9 @@ Rules (common practice in mortality investigations, stated here once):
   left observation); otherwise the exit is excluded (the death ends observation);
 * a pension at death that is blank is fine (the record's pension is used); one that is not a number >= 0
   is a warning and the record's pension is used.
+
+Each reason is the same text for every row with the same problem (so exceptions can be counted by
+reason); the row's own values (its date, the other record it clashes with) are in the ``value`` column.
 """
 
 from __future__ import annotations
@@ -28,6 +31,7 @@ EXCEPTION_SCHEMA: dict[str, type[pl.DataType] | pl.DataType] = {
     "row": pl.Int64,
     "member_id": pl.String,
     "column": pl.String,
+    "file_column": pl.String,
     "value": pl.String,
     "reason": pl.String,
     "severity": pl.String,
@@ -49,10 +53,13 @@ class CheckedEvents:
     counts: dict[str, dict[str, int]]
 
 
-Check = tuple[str, str, pl.Expr, pl.Expr, str]  # flag column, checked column, value, reason, severity
+Check = tuple[str, str, pl.Expr, str, str]  # flag column, checked column, value, reason, severity
 
 
-def _problems(df: pl.DataFrame, file: str, checks: list[Check]) -> pl.DataFrame:
+def _problems(
+    df: pl.DataFrame, file: str, checks: list[Check], headers: dict[str, str] | None = None
+) -> pl.DataFrame:
+    headers = headers or {}
     frames = []
     for flag, column, value, reason, severity in checks:
         if df.height == 0 or not df[flag].any():
@@ -65,8 +72,9 @@ def _problems(df: pl.DataFrame, file: str, checks: list[Check]) -> pl.DataFrame:
                     pl.col("row"),
                     pl.col("member_id"),
                     pl.lit(column).alias("column"),
+                    pl.lit(headers.get(column, column)).alias("file_column"),
                     value.cast(pl.String).alias("value"),
-                    reason.alias("reason"),
+                    pl.lit(reason).alias("reason"),
                     pl.lit(severity).alias("severity"),
                 )
             )
@@ -95,8 +103,11 @@ def _basic_checks(
     end: date,
     members_file: str,
     date_format: str | None,
+    headers: dict[str, str],
 ) -> tuple[pl.DataFrame, list[Check]]:
-    expected = "YYYY-MM-DD" + (f" or {date_format}" if date_format else "")
+    expected = "YYYY-MM-DD" + (f" or the basis date format {date_format}" if date_format else "")
+    id_header = headers.get("member_id", "member_id").strip()
+    date_header = headers.get(date_column, date_column).strip()
     flags = df.with_columns(
         (pl.col("member_id").is_null()).alias("_no_id"),
         (pl.col("date").is_null()).alias("_bad_date"),
@@ -113,57 +124,44 @@ def _basic_checks(
         (pl.col("date") > end).fill_null(False).alias("_after"),
     )
     s, e = start.isoformat(), end.isoformat()
-    checks = [
-        ("_no_id", "member_id", pl.lit(""), pl.lit(f"{what} row has no member_id"), "excluded"),
+    members = f" ({members_file})" if members_file else ""
+    checks: list[Check] = [
+        ("_no_id", "member_id", pl.lit(""), f"{what} row has no {id_header}: not counted", "excluded"),
         (
             "_bad_date",
             date_column,
             pl.col("date_text").fill_null(""),
-            pl.format(
-                f"{date_column} '{{}}' is not a date (expected {expected})", pl.col("date_text").fill_null("")
-            ),
+            f"{date_header} is not a date (expected {expected}): not counted",
             "excluded",
         ),
         (
             "_unknown",
             "member_id",
             pl.col("member_id"),
-            pl.format(
-                f"{what} for unknown member '{{}}': not in the start membership ({members_file})",
-                pl.col("member_id"),
-            ),
+            f"{what} for a member not in the start membership{members}: not counted",
             "excluded",
         ),
         (
             "_excluded_member",
             "member_id",
             pl.col("member_id"),
-            pl.format(
-                f"{what} for member '{{}}' who was excluded from the start membership ({members_file}; see its "
-                "exceptions): not counted",
-                pl.col("member_id"),
-            ),
+            f"{what} for a member who was excluded from the start membership{members}; see its "
+            "exceptions: not counted",
             "excluded",
         ),
         (
             "_before",
             date_column,
             pl.col("date_text"),
-            pl.format(
-                f"{what} on {{}} is on or before the period start {s}: the member should not be in the start "
-                "membership; not counted",
-                pl.col("date").dt.to_string("%Y-%m-%d"),
-            ),
+            f"{what} on or before the period start {s}: the member should not be in the start "
+            "membership; not counted",
             "excluded",
         ),
         (
             "_after",
             date_column,
             pl.col("date_text"),
-            pl.format(
-                f"{what} on {{}} is outside the period ({s} to {e}): after the period end; not counted",
-                pl.col("date").dt.to_string("%Y-%m-%d"),
-            ),
+            f"{what} after the period end {e} (period {s} to {e}): not counted",
             "excluded",
         ),
     ]
@@ -186,16 +184,14 @@ def _duplicates(ok: pl.DataFrame, what: str, date_column: str) -> tuple[pl.DataF
         pl.col("date").first().over("member_id").dt.to_string("%Y-%m-%d").alias("_kept_date"),
         (pl.int_range(pl.len()).over("member_id") > 0).alias("_dup"),
     )
-    check = (
+    check: Check = (
         "_dup",
         date_column,
-        pl.col("date_text"),
         pl.format(
-            f"second {what} record for member '{{}}' (row {{}} on {{}} is kept): not counted",
-            pl.col("member_id"),
-            pl.col("_kept_row"),
-            pl.col("_kept_date"),
+            "{}; kept: row {} on {}", pl.col("date_text").fill_null(""), pl.col("_kept_row"), pl.col("_kept_date")
         ),
+        f"second {what} record for the same member (the earliest is kept, the first row on a tie): "
+        "not counted",
         "excluded",
     )
     return ranked, [check]
@@ -213,6 +209,8 @@ def check_events(
     exits_file: str = "",
     members_file: str = "",
     date_format: str | None = None,
+    deaths_headers: dict[str, str] | None = None,
+    exits_headers: dict[str, str] | None = None,
 ) -> CheckedEvents:
     """Apply the rules in the module docstring; vectorised with polars (no per-row Python loops).
 
@@ -228,6 +226,9 @@ def check_events(
         Names written into the exceptions and messages.
     date_format
         The accepted non-ISO date pattern, quoted in messages.
+    deaths_headers, exits_headers
+        Our column name -> the file's header as written (``file_column`` of the exceptions); a column
+        not listed is named by our name.
     """
     valued_ids = valued_ids.cast(pl.String)
     excluded_ids = excluded_ids.cast(pl.String).drop_nulls().unique()
@@ -240,7 +241,9 @@ def check_events(
         members_file=members_file,
         date_format=date_format,
     )
-    d_flags, d_checks = _basic_checks(deaths, what="death", date_column="date_of_death", **common)
+    d_flags, d_checks = _basic_checks(
+        deaths, what="death", date_column="date_of_death", headers=deaths_headers or {}, **common
+    )
     d_ranked, d_dup = _duplicates(d_flags.filter(~pl.col("_fail")), "death", "date_of_death")
     d_first = d_ranked.filter(~pl.col("_dup"))
 
@@ -254,7 +257,9 @@ def check_events(
                 "reason": pl.String,
             }
         )
-    x_flags, x_checks = _basic_checks(exits, what="exit", date_column="exit_date", **common)
+    x_flags, x_checks = _basic_checks(
+        exits, what="exit", date_column="exit_date", headers=exits_headers or {}, **common
+    )
     x_ranked, x_dup = _duplicates(x_flags.filter(~pl.col("_fail")), "exit", "exit_date")
     x_first = x_ranked.filter(~pl.col("_dup"))
 
@@ -272,30 +277,30 @@ def check_events(
     x_first = x_first.join(
         both.select("member_id", "_death", "_death_row"), on="member_id", how="left"
     ).with_columns((pl.col("_death") <= pl.col("date")).fill_null(False).alias("_after_death"))
-    after_exit = (
+    after_exit: Check = (
         "_after_exit",
         "date_of_death",
-        pl.col("date_text"),
         pl.format(
-            "death on {} is after the member's exit on {} ({} row {}): the member had left observation; not counted",
-            pl.col("date").dt.to_string("%Y-%m-%d"),
+            "{}; exit on {} ({} row {})",
+            pl.col("date_text"),
             pl.col("_exit").dt.to_string("%Y-%m-%d"),
             pl.lit(exits_file),
             pl.col("_exit_row"),
         ),
+        "death after the member's exit: the member had left observation; not counted",
         "excluded",
     )
-    after_death = (
+    after_death: Check = (
         "_after_death",
         "exit_date",
-        pl.col("date_text"),
         pl.format(
-            "exit on {} is on or after the member's death on {} ({} row {}): the death ends observation; exit ignored",
-            pl.col("date").dt.to_string("%Y-%m-%d"),
+            "{}; death on {} ({} row {})",
+            pl.col("date_text"),
             pl.col("_death").dt.to_string("%Y-%m-%d"),
             pl.lit(deaths_file),
             pl.col("_death_row"),
         ),
+        "exit on or after the member's death: the death ends observation; exit ignored",
         "excluded",
     )
     bad_pension = (
@@ -303,13 +308,12 @@ def check_events(
         & (pl.col("pension_text") != "")
         & (pl.col("pension_at_death").is_null() | (pl.col("pension_at_death") < 0))
     )
-    pension_warning = (
+    pension_warning: Check = (
         "_bad_pension",
         "pension_at_death",
         pl.col("pension_text"),
-        pl.format(
-            "pension_at_death '{}' is not a number >= 0: the record's pension is used", pl.col("pension_text")
-        ),
+        f"{(deaths_headers or {}).get('pension_at_death', 'pension_at_death').strip()} is not a number "
+        ">= 0: the record's pension is used",
         "warning",
     )
     d_counted = d_first.filter(~pl.col("_after_exit")).with_columns(bad_pension.alias("_bad_pension"))
@@ -317,13 +321,13 @@ def check_events(
 
     exceptions = pl.concat(
         [
-            _problems(d_flags, deaths_file, d_checks),
-            _problems(d_ranked, deaths_file, d_dup),
-            _problems(d_first, deaths_file, [after_exit]),
-            _problems(d_counted, deaths_file, [pension_warning]),
-            _problems(x_flags, exits_file, x_checks),
-            _problems(x_ranked, exits_file, x_dup),
-            _problems(x_first, exits_file, [after_death]),
+            _problems(d_flags, deaths_file, d_checks, deaths_headers),
+            _problems(d_ranked, deaths_file, d_dup, deaths_headers),
+            _problems(d_first, deaths_file, [after_exit], deaths_headers),
+            _problems(d_counted, deaths_file, [pension_warning], deaths_headers),
+            _problems(x_flags, exits_file, x_checks, exits_headers),
+            _problems(x_ranked, exits_file, x_dup, exits_headers),
+            _problems(x_first, exits_file, [after_death], exits_headers),
         ],
         how="vertical",
     ).sort(["file", "row"], maintain_order=True)

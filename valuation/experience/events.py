@@ -66,6 +66,17 @@ def read_events(
     date_format: str | None = None,
     column_map: dict[str, str] | None = None,
 ) -> pl.DataFrame:
+    """Read a deaths or exits file into typed columns (see :func:`read_events_with_headers`)."""
+    return read_events_with_headers(path, kind, date_format=date_format, column_map=column_map)[0]
+
+
+def read_events_with_headers(
+    path: str | Path,
+    kind: EventKind,
+    *,
+    date_format: str | None = None,
+    column_map: dict[str, str] | None = None,
+) -> tuple[pl.DataFrame, dict[str, str]]:
     """Read a deaths or exits file into typed columns, keeping the raw text of every checked value.
 
     Parameters
@@ -82,10 +93,11 @@ def read_events(
 
     Returns
     -------
-    polars.DataFrame
-        ``row`` (file row, header = 1), ``member_id`` (text, trimmed, null when blank), ``date_text``,
-        ``date`` (Date or null), and for deaths ``pension_text``, ``pension_at_death`` (f64 or null), for
-        exits ``reason`` (text).
+    (polars.DataFrame, dict)
+        The frame: ``row`` (file row, header = 1), ``member_id`` (text, trimmed, null when blank),
+        ``date_text``, ``date`` (Date or null), and for deaths ``pension_text``, ``pension_at_death``
+        (f64 or null), for exits ``reason`` (text). The dict: our column name -> the file's header as
+        written, for the columns the file has (exceptions name it in ``file_column``).
 
     Raises
     ------
@@ -112,6 +124,7 @@ def read_events(
             )
         seen[ours] = original
     df = df.rename(renames)
+    headers = {ours: original.replace("\ufeff", "") for ours, original in seen.items()}
     for col in REQUIRED[kind]:
         if col not in df.columns:
             raise DataError(
@@ -144,4 +157,4 @@ def read_events(
             .cast(pl.Float64, strict=False)
             .alias("pension_at_death")
         )
-    return out
+    return out, headers

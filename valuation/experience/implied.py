@@ -1,103 +1,287 @@
-"""The mortality level implied by the experience and its effect on the liability.
+"""The mortality level implied by the experience, table by table, and its effect on the liability.
 
-The implied percentage of the base table is the one that would have made A/E by amounts 100 %:
-implied = current percentage x A/E amounts, with the A/E interval carried across. The effect on the
-liability is measured by re-valuing the valuation membership with every q scaled by A/E amounts
-(``q_multiplier``) against the basis as it stands: a full re-valuation, not an approximation.
+Each mortality table entry of the basis (``[mortality.<group>.<sex>]``) is judged on the deaths of the
+members who use it: the groups with their own entry on their own, the groups that fall back to another
+entry (see :mod:`valuation.basis.mortality_entries`) together with it. For each entry:
+
+* A/E by amounts with its interval (normal, variance phi x sum w^2 E, as for the overall line);
+* a credibility factor Z = min(1, sqrt(E / n_F)) on the expected deaths E of the lives with a pension at
+  risk, n_F the limited-fluctuation standard (:mod:`valuation.experience.credibility`);
+* the implied percentage = current percentage x (Z x A/E + (1 - Z) x 1), and its range from the A/E
+  interval the same way.
+
+An entry whose members have no pension at risk (actives, whose pension is not yet in payment or
+deferred) has no A/E by amounts: it shows none, and its percentage is kept.
+
+The effect on the liability is a full re-valuation of the valuation membership on the basis with each
+entry's percentage replaced by its own implied percentage, against the basis as it stands. An entry's
+new percentage applies to everyone who uses it, spouses' reversions included.
 """
 
 from __future__ import annotations
 
 import math
+from collections.abc import Callable
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
+import polars as pl
+
 from valuation.experience.cells import RateLookup
+from valuation.experience.credibility import (
+    credibility_factor,
+    credibility_weighted,
+    full_credibility_standard,
+    standard_text,
+)
+from valuation.experience.settings import ExperienceSettings
 
 if TYPE_CHECKING:
     from valuation.basis.mortality_entries import Group
     from valuation.basis.rules import Sex
 
+#: ``table_key(group, sex)`` -> the entry a member group and sex use, ``"mortality.<entry group>.<sex>"``.
+TableKey = Callable[["Group", "Sex"], str]
 
-def _pct(x: float) -> float | None:
-    return None if x is None or not math.isfinite(x) else 100.0 * x
+#: Columns of each table's row (the by-table rows of experience.csv and ``by_table`` of the summary).
+BY_TABLE_COLUMNS: tuple[str, ...] = (
+    "table",
+    "group",
+    "sex",
+    "members",
+    "current_percentage",
+    "exposure_years",
+    "actual_lives",
+    "expected_lives",
+    "ae_lives",
+    "ae_lives_lower",
+    "ae_lives_upper",
+    "actual_amounts",
+    "expected_amounts",
+    "ae_amounts",
+    "ae_amounts_lower",
+    "ae_amounts_upper",
+    "expected_lives_at_risk",
+    "credibility",
+    "implied_percentage",
+    "lower",
+    "upper",
+    "note",
+)
+
+#: Member groups in reporting order.
+GROUP_ORDER: dict[str, int] = {"pensioner": 0, "dependant": 1, "deferred": 2, "active": 3, "spouse": 4}
+
+NO_AMOUNTS_NOTE = (
+    "no pension at risk (members not yet drawing or entitled to a pension): no A/E by amounts, and the "
+    "table percentage is kept"
+)
+
+
+def own_table_key(group: str, sex: str) -> str:
+    """The key used when no basis is given: every group and sex is taken to have its own entry."""
+    return f"mortality.{group}.{sex}"
+
+
+def _finite(x: Any) -> float | None:
+    return None if x is None or not math.isfinite(float(x)) else float(x)
+
+
+def _current(lookup: RateLookup, group: str, sex: str) -> float:
+    """The table percentage a group and sex use now, as a multiplier (1.0 = 100 %)."""
+    return round(float(getattr(lookup(group, sex), "percentage", 1.0)), 12)  # type: ignore[arg-type]
+
+
+def _row(
+    sums: dict[str, Any],
+    *,
+    table: str,
+    group: str,
+    sex: str,
+    members: list[str],
+    current: float | None,
+    n_full: float,
+) -> dict[str, Any]:
+    """One table's (or the overall) line: A/E by amounts, credibility and implied percentage."""
+    ae = _finite(sums["ae_amounts"])
+    lo = _finite(sums["ae_amounts_lower"])
+    hi = _finite(sums["ae_amounts_upper"])
+    out: dict[str, Any] = {
+        "table": table,
+        "group": group,
+        "sex": sex,
+        "members": members,
+        "current_percentage": None if current is None else round(100.0 * current, 10),
+        **{k: float(sums[k]) for k in ("exposure_years", "actual_lives", "expected_lives")},
+        **{k: _finite(sums[k]) for k in ("ae_lives", "ae_lives_lower", "ae_lives_upper")},
+        "actual_amounts": float(sums["actual_amounts"]),
+        "expected_amounts": float(sums["expected_amounts"]),
+        "ae_amounts": ae,
+        "ae_amounts_lower": lo,
+        "ae_amounts_upper": hi,
+        "expected_lives_at_risk": float(sums["expected_lives_at_risk"]),
+        "credibility": None,
+        "implied_percentage": None,
+        "lower": None,
+        "upper": None,
+        "note": None,
+    }
+    if ae is None or not sums["expected_amounts"] > 0:
+        out.update(ae_amounts=None, ae_amounts_lower=None, ae_amounts_upper=None, note=NO_AMOUNTS_NOTE)
+        return out
+    z = float(credibility_factor(sums["expected_lives_at_risk"], n_full))
+    out["credibility"] = z
+    if current is not None:
+        pct = 100.0 * current
+        out["implied_percentage"] = pct * float(credibility_weighted(ae, 1.0, z))
+        out["lower"] = None if lo is None else pct * float(credibility_weighted(lo, 1.0, z))
+        out["upper"] = None if hi is None else pct * float(credibility_weighted(hi, 1.0, z))
+    return out
 
 
 def implied_percentages(
-    ae_amounts: float,
-    lower: float,
-    upper: float,
-    groups: list[tuple[Group, Sex]],
+    by_table: pl.DataFrame,
+    overall: dict[str, Any] | None,
+    overall_at_risk: float,
+    pairs: list[tuple[Group, Sex]],
     lookup: RateLookup,
+    table_key: TableKey,
+    settings: ExperienceSettings,
 ) -> dict[str, Any]:
-    """Implied percentages of the base tables from the overall A/E by amounts.
+    """Each table's own A/E by amounts, credibility factor and credibility-weighted implied percentage.
 
     Parameters
     ----------
-    ae_amounts, lower, upper
-        Overall A/E by amounts and its interval [ratio].
-    groups
-        The (group, sex) pairs present in the data.
+    by_table
+        From :func:`valuation.experience.tables.ae_by_table` (one row an entry key).
+    overall
+        The overall row of the A/E table (None when there are no cells).
+    overall_at_risk
+        Expected deaths of all lives with a pension at risk [lives].
+    pairs
+        The (member group, sex) pairs present in the start membership.
     lookup
-        ``lookup(group, sex)`` -> the basis's mortality (its ``percentage`` is the current level, a
-        multiplier on q, 1.0 = 100 % of the table).
+        ``lookup(group, sex)`` -> the basis's mortality; its ``percentage`` is the current level.
+    table_key
+        ``table_key(group, sex)`` -> the entry key the pair uses (``Basis.mortality_key``).
+    settings
+        Gives the credibility standard (``credibility_probability``, ``credibility_tolerance``).
 
     Returns
     -------
     dict
-        ``multiplier`` (= A/E amounts) and its ``multiplier_lower``/``multiplier_upper``;
-        ``implied_percentage``, ``lower``, ``upper`` [% of the base table] when every group present uses
-        the same current percentage (else None with ``note``); ``by_table``: one entry a (group, sex) with
-        ``current_percentage``, ``implied_percentage``, ``lower``, ``upper`` [%].
+        ``credibility_standard`` (``probability``, ``tolerance``, ``full_expected_deaths`` [lives],
+        ``text``); ``by_table``: one dict an entry (:data:`BY_TABLE_COLUMNS`; percentages in %, A/E as
+        ratios, None where the members have no pension at risk); ``overall``: the same for all members
+        (implied percentage only when every table has the same current percentage); and, for the
+        headline, ``multiplier`` (overall A/E by amounts) with ``multiplier_lower``/``multiplier_upper``,
+        ``implied_percentage``, ``lower``, ``upper`` (the overall line's) and ``note``.
 
     References
     ----------
-    Common practice: scaling the table percentage by the A/E by amounts (Benjamin & Pollard, *The
-    Analysis of Mortality and Other Actuarial Statistics*, 3rd ed., on comparing experience with a
-    standard table).
+    Longley-Cook (1962), PCAS 49, and Mahler & Dean, *Credibility* (Foundations of Casualty Actuarial
+    Science, ch. 8): limited-fluctuation credibility and the credibility-weighted estimate (from
+    memory). Benjamin & Pollard, *The Analysis of Mortality and Other Actuarial Statistics*, 3rd ed.:
+    comparing experience with a standard table by A/E. Scaling the table percentage by the weighted
+    A/E is common practice.
     """
-    by_table: list[dict[str, Any]] = []
-    for group, sex in groups:
-        current = round(float(getattr(lookup(group, sex), "percentage", 1.0)), 12)
-        by_table.append(
-            {
-                "group": group,
-                "sex": sex,
-                "current_percentage": round(100.0 * current, 10),
-                "implied_percentage": _pct(current * ae_amounts),
-                "lower": _pct(current * lower),
-                "upper": _pct(current * upper),
-            }
+    p, k = settings.credibility_probability, settings.credibility_tolerance
+    n_full = full_credibility_standard(p, k)
+    members_of: dict[str, list[str]] = {}
+    current_of: dict[str, float] = {}
+    for group, sex in pairs:  # a handful of (group, sex) pairs, never one per member
+        key = table_key(group, sex)
+        members_of.setdefault(key, []).append(group)
+        current_of.setdefault(key, _current(lookup, group, sex))
+    for key, groups in members_of.items():
+        members_of[key] = sorted(groups, key=lambda g: (GROUP_ORDER.get(g, len(GROUP_ORDER)), g))
+    rows = []
+    for sums in by_table.iter_rows(named=True):  # one row a table entry
+        key = sums["table"]
+        _, entry_group, sex = key.split(".")
+        rows.append(
+            _row(
+                sums,
+                table=key,
+                group=entry_group,
+                sex=sex,
+                members=members_of.get(key, []),
+                current=current_of.get(key),
+                n_full=n_full,
+            )
         )
-    currents = {round(t["current_percentage"], 9) for t in by_table}
-    out: dict[str, Any] = {
-        "multiplier": ae_amounts if math.isfinite(ae_amounts) else None,
-        "multiplier_lower": lower if math.isfinite(lower) else None,
-        "multiplier_upper": upper if math.isfinite(upper) else None,
-        "by_table": by_table,
+    currents = {round(100.0 * c, 9) for c in current_of.values()}
+    single = next(iter(current_of.values())) if len(currents) == 1 else None
+    overall_row = (
+        _row(
+            {**overall, "expected_lives_at_risk": overall_at_risk},
+            table="all",
+            group="all",
+            sex="all",
+            members=sorted({g for g, _ in pairs}, key=lambda g: (GROUP_ORDER.get(g, len(GROUP_ORDER)), g)),
+            current=single,
+            n_full=n_full,
+        )
+        if overall is not None
+        else None
+    )
+    o = overall_row or {}
+    return {
+        "credibility_standard": {
+            "probability": p,
+            "tolerance": k,
+            "full_expected_deaths": n_full,
+            "text": standard_text(p, k),
+        },
+        "by_table": rows,
+        "overall": overall_row,
+        "multiplier": o.get("ae_amounts"),
+        "multiplier_lower": o.get("ae_amounts_lower"),
+        "multiplier_upper": o.get("ae_amounts_upper"),
+        "implied_percentage": o.get("implied_percentage"),
+        "lower": o.get("lower"),
+        "upper": o.get("upper"),
+        "note": None
+        if single is not None or not rows
+        else (
+            "current percentages differ by group and sex: each table's implied percentage comes from its "
+            "own deaths (see by_table)"
+        ),
     }
-    if len(currents) == 1 and by_table:
-        single = by_table[0]
-        out.update(
-            implied_percentage=single["implied_percentage"],
-            lower=single["lower"],
-            upper=single["upper"],
-            note=None,
-        )
-    else:
-        out.update(
-            implied_percentage=None,
-            lower=None,
-            upper=None,
-            note="current percentages differ by group and sex: see by_table (each scaled by A/E amounts)",
-        )
-    return out
+
+
+def by_table_frame(implied: dict[str, Any]) -> pl.DataFrame:
+    """``implied["by_table"]`` as a frame (:data:`BY_TABLE_COLUMNS`, members joined by ", ")."""
+    schema: dict[str, Any] = dict.fromkeys(BY_TABLE_COLUMNS, pl.Float64)
+    schema.update(table=pl.String, group=pl.String, sex=pl.String, members=pl.String, note=pl.String)
+    rows = [r | {"members": ", ".join(r.get("members") or [])} for r in implied.get("by_table") or []]
+    return pl.DataFrame([{c: r.get(c) for c in BY_TABLE_COLUMNS} for r in rows], schema=schema)
+
+
+def revalued_basis(basis: Any, by_table: list[dict[str, Any]]) -> tuple[Any, dict[str, dict[str, float]]]:
+    """The basis with each analysed entry's percentage replaced by its implied percentage.
+
+    Returns the new basis and the changes made, ``{"mortality.<group>.<sex>": {"from": %, "to": %}}``;
+    entries with no implied percentage (no pension at risk) and entries no member of the start data
+    uses are left as they are.
+    """
+    entries = {g: dict(by_sex) for g, by_sex in basis.mortality_entries.items()}
+    changes: dict[str, dict[str, float]] = {}
+    for row in by_table:
+        implied = row.get("implied_percentage")
+        _, group, sex = str(row["table"]).split(".")
+        if implied is None or sex not in entries.get(group, {}):
+            continue
+        entry = entries[group][sex]
+        entries[group][sex] = entry.model_copy(update={"percentage": implied / 100.0})
+        changes[row["table"]] = {"from": round(100.0 * entry.percentage, 10), "to": float(implied)}
+    return basis.model_copy(update={"mortality_entries": entries}), changes
 
 
 def liability_effect(
-    valuation_members_path: str | Path | None, basis: Any, multiplier: float | None
+    valuation_members_path: str | Path | None, basis: Any, by_table: list[dict[str, Any]]
 ) -> dict[str, Any]:
-    """Liability before and after scaling every q by ``multiplier`` (A/E amounts).
+    """Liability on the basis as it stands, and with each table at its own implied percentage.
 
     Parameters
     ----------
@@ -105,34 +289,43 @@ def liability_effect(
         The member file at the valuation date; None skips the calculation (the reason says so).
     basis
         The loaded basis.
-    multiplier
-        A/E by amounts [ratio]; None (no expected amounts) skips the calculation.
+    by_table
+        ``implied["by_table"]`` from :func:`implied_percentages`, keyed by the basis's entries.
 
     Returns
     -------
     dict
-        ``liability_before``, ``liability_after`` [currency], ``change_pct`` [%], ``reason`` (None when
-        calculated, else why not).
+        ``liability_before``, ``liability_after`` [currency], ``change_pct`` [%], ``basis_changes``
+        (each entry's percentage from and to [%]), ``reason`` (None when calculated, else why not).
 
     References
     ----------
     Common practice: the effect of a mortality assumption is measured by re-valuing on the changed basis
-    (here ``valuation.engine.run.value_members`` with ``q_multiplier``), as for the life expectancy
-    sensitivity of IAS 19 para. 145.
+    (here ``valuation.engine.run.value_members`` on the basis with the new percentages), as for the life
+    expectancy sensitivity of IAS 19 para. 145.
     """
-    skipped = {"liability_before": None, "liability_after": None, "change_pct": None}
+    skipped: dict[str, Any] = {"liability_before": None, "liability_after": None, "change_pct": None, "basis_changes": {}}
     if valuation_members_path is None:
         return {**skipped, "reason": "no valuation member file given: liability effect not calculated"}
-    if multiplier is None or not math.isfinite(multiplier):
+    changed, changes = revalued_basis(basis, by_table)
+    if not changes:
         return {
             **skipped,
-            "reason": "A/E by amounts is undefined (no expected amounts): liability effect not calculated",
+            "reason": "no mortality table has pension amounts at risk, so none has an implied percentage: "
+            "liability effect not calculated",
         }
     from valuation.engine.run import value_members  # the engine imports the whole stack: load it only here
     from valuation.members import read_members
 
     data = read_members(valuation_members_path, basis)
-    before = value_members(data, basis, q_multiplier=1.0, sensitivities=False).total_liability
-    after = value_members(data, basis, q_multiplier=float(multiplier), sensitivities=False).total_liability
+    before = value_members(data, basis, sensitivities=False).total_liability
+    after = value_members(data, changed, sensitivities=False).total_liability
     change = 100.0 * (after / before - 1.0) if before else None
-    return {"liability_before": before, "liability_after": after, "change_pct": change, "reason": None}
+    return {
+        "liability_before": before,
+        "liability_after": after,
+        "change_pct": change,
+        "basis_changes": changes,
+        "reason": None,
+    }
+

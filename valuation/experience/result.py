@@ -10,6 +10,7 @@ from typing import Any
 
 import polars as pl
 
+from valuation.csvout import write_csv
 from valuation.experience.settings import ExperienceSettings
 
 #: Columns of ``ExperienceResult.table`` (and experience.csv).
@@ -27,6 +28,20 @@ TABLE_COLUMNS: tuple[str, ...] = (
     "ae_amounts",
     "ae_amounts_lower",
     "ae_amounts_upper",
+)
+
+#: Columns experience.csv adds for the mortality-table rows (and the overall row): each table's own
+#: A/E by amounts with its credibility and implied percentage [%].
+TABLE_EXTRA_COLUMNS: tuple[str, ...] = (
+    "sex",
+    "table",
+    "members",
+    "current_percentage",
+    "expected_lives_at_risk",
+    "credibility",
+    "implied_percentage",
+    "implied_percentage_lower",
+    "implied_percentage_upper",
 )
 
 
@@ -53,15 +68,22 @@ class ExperienceResult:
         One row a (dimension, group): see :data:`TABLE_COLUMNS`. Ratios are decimals (1 = 100 %),
         exposure [years], amounts [currency p.a.].
     implied
-        ``implied_percentage``, ``lower``, ``upper`` [% of the base table] (or None with ``note``),
-        ``multiplier`` (A/E amounts) and its limits, ``by_table``, ``liability_before``,
-        ``liability_after`` [currency], ``change_pct`` [%] (or None with ``reason``).
+        ``by_table``: for each mortality table entry, its own A/E by amounts with interval, credibility
+        factor and credibility-weighted ``implied_percentage`` [% of the base table] (None where its
+        members have no pension at risk); ``overall``, the same for all members; ``credibility_standard``;
+        ``multiplier`` (overall A/E amounts) and its limits; ``implied_percentage``, ``lower``, ``upper``
+        of the overall line (None with ``note`` when the tables' current percentages differ);
+        ``liability_before``, ``liability_after`` [currency], ``change_pct`` [%], ``basis_changes`` (or
+        None with ``reason``). See :mod:`valuation.experience.implied`.
     exceptions
-        ``file, row, member_id, column, value, reason, severity`` for the start membership, deaths and exits.
+        ``file, row, member_id, column, file_column, value, reason, severity`` for the start membership,
+        deaths and exits.
     summary
         The content of experience.json.
     cells
         The (member, age, calendar year) cells behind the table.
+    by_table
+        ``implied["by_table"]`` as a frame (see :data:`valuation.experience.implied.BY_TABLE_COLUMNS`).
     """
 
     settings: ExperienceSettings
@@ -70,18 +92,47 @@ class ExperienceResult:
     exceptions: pl.DataFrame
     summary: dict[str, Any]
     cells: pl.DataFrame | None = None
+    by_table: pl.DataFrame | None = None
 
     def overall(self) -> dict[str, Any]:
         """The overall row of the table as a dict."""
         return self.table.filter(pl.col("dimension") == "overall").row(0, named=True)
 
+    def csv_frame(self) -> pl.DataFrame:
+        """What experience.csv holds: the overall row, one row a mortality table (dimension
+        ``mortality_table``), then the other dimensions; :data:`TABLE_COLUMNS` then
+        :data:`TABLE_EXTRA_COLUMNS` (blank where they do not apply)."""
+        schema: dict[str, Any] = dict(self.table.select(TABLE_COLUMNS).schema)
+        schema.update(dict.fromkeys(TABLE_EXTRA_COLUMNS, pl.Float64))
+        schema.update(sex=pl.String, table=pl.String, members=pl.String)
+        rename = {"lower": "implied_percentage_lower", "upper": "implied_percentage_upper"}
+
+        def rows_of(d: dict[str, Any], dimension: str, group: str) -> dict[str, Any]:
+            d = {rename.get(k, k): v for k, v in d.items()}
+            if isinstance(d.get("members"), list):
+                d["members"] = ", ".join(d["members"])
+            return {c: d.get(c) for c in schema} | {"dimension": dimension, "group": group}
+
+        base = self.table.select(TABLE_COLUMNS)
+        overall = base.filter(pl.col("dimension") == "overall").to_dicts()
+        o = (self.implied or {}).get("overall") or {}
+        head = [rows_of(r | {k: v for k, v in o.items() if k in schema or k in rename}, "overall", r["group"])
+                for r in overall]
+        by_table = [rows_of(t, "mortality_table", t["group"]) for t in (self.implied or {}).get("by_table") or []]
+        first = pl.DataFrame(head + by_table, schema=schema)
+        rest = base.filter(pl.col("dimension") != "overall")
+        return pl.concat([first, rest], how="diagonal_relaxed").select(list(schema))
+
     def write(self, out_dir: str | Path) -> None:
-        """Write experience.json, experience.csv and (when there are any) experience_exceptions.csv."""
+        """Write experience.json, experience.csv and (when there are any) experience_exceptions.csv.
+
+        The CSV files are formula-safe (:func:`valuation.csvout.write_csv`).
+        """
         out = Path(out_dir)
         out.mkdir(parents=True, exist_ok=True)
         (out / "experience.json").write_text(
             json.dumps(clean_json(self.summary), indent=2, ensure_ascii=False) + "\n", encoding="utf-8"
         )
-        self.table.select(TABLE_COLUMNS).write_csv(out / "experience.csv")
+        write_csv(self.csv_frame(), out / "experience.csv")
         if self.exceptions.height:
-            self.exceptions.write_csv(out / "experience_exceptions.csv")
+            write_csv(self.exceptions, out / "experience_exceptions.csv")

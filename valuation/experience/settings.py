@@ -7,6 +7,7 @@ from datetime import date
 from typing import Any, Literal
 
 from valuation.errors import BasisError
+from valuation.experience.credibility import DEFAULT_PROBABILITY, DEFAULT_TOLERANCE, standard_text
 
 ExposureMethod = Literal["central", "initial"]
 
@@ -27,6 +28,29 @@ DAY_COUNT_TEXT: str = (
     "exposed days are those after the period start up to and including the period end (or the date of "
     "death or exit); exposure [years] = days / 365.25; cells by age last birthday and calendar year"
 )
+
+
+#: The command-line option of each setting that has one.
+_OPTION: dict[str, str] = {
+    "period_start": "--period-start",
+    "period_end": "--period-end",
+    "exposure": "--exposure",
+    "confidence": "--confidence",
+    "overdispersion": "--overdispersion",
+    "late_months": "--late-months",
+    "late_uplift": "--late-uplift",
+}
+
+
+def _shown(value: object) -> str:
+    """A setting's value as a person writes it (dates in ISO form, lists with commas), never a repr."""
+    if isinstance(value, date):
+        return value.isoformat()
+    if isinstance(value, tuple | list):
+        return ", ".join(_shown(v) for v in value)
+    if isinstance(value, float):
+        return f"{value:g}"
+    return str(value)
 
 
 @dataclass
@@ -50,6 +74,10 @@ class ExperienceSettings:
     pension_band_edges
         Upper edges of the pension-size bands [currency p.a.]; None = quintiles of the non-zero pensions
         rounded to two significant figures. Zero pensions form a band of their own ("nil").
+    credibility_probability, credibility_tolerance
+        The limited-fluctuation standard: full credibility when the expected deaths are enough for a
+        ``credibility_probability`` chance that A/E lies within ``credibility_tolerance`` of its true
+        value (defaults 0.90 and 0.05: 1,082 expected deaths; see :mod:`valuation.experience.credibility`).
     """
 
     period_start: date
@@ -60,31 +88,51 @@ class ExperienceSettings:
     late_months: int = 0
     late_uplift: float = 0.0
     pension_band_edges: tuple[float, ...] | None = None
+    credibility_probability: float = DEFAULT_PROBABILITY
+    credibility_tolerance: float = DEFAULT_TOLERANCE
 
     def __post_init__(self) -> None:
-        def bad(column: str, value: object, expected: str) -> BasisError:
+        def bad(setting: str, value: object, rule: str, example: str) -> BasisError:
+            option = _OPTION.get(setting)
+            where = f" ({option} on the command line)" if option else ""
             return BasisError(
-                f"experience setting {column} = {value!r}: expected {expected}",
-                column=column,
-                fix=f"give {column} as {expected}",
+                f"experience setting {setting}{where} is {_shown(value)}: it must be {rule}",
+                column=setting,
+                fix=f"give {example}",
             )
 
         if not self.period_start < self.period_end:
-            raise bad("period_end", self.period_end, f"a date after period_start {self.period_start}")
+            raise bad(
+                "period_end", self.period_end, f"a date after the period start {_shown(self.period_start)}",
+                "the period end as a later date, for example the valuation date",
+            )
         if self.exposure not in ("central", "initial"):
-            raise bad("exposure", self.exposure, "'central' or 'initial'")
+            raise bad("exposure", self.exposure, "central or initial", "central (the default) or initial")
         if not 0.0 < self.confidence < 1.0:
-            raise bad("confidence", self.confidence, "a number strictly between 0 and 1 (e.g. 0.95)")
+            raise bad("confidence", self.confidence, "a number strictly between 0 and 1", "0.95 for 95 %")
         if not self.overdispersion > 0.0:
-            raise bad("overdispersion", self.overdispersion, "a number > 0 (1 = Poisson)")
+            raise bad("overdispersion", self.overdispersion, "a number above 0", "1 for none (Poisson)")
         if self.late_months < 0:
-            raise bad("late_months", self.late_months, "a whole number of months >= 0")
+            raise bad("late_months", self.late_months, "a whole number of months, 0 or more", "0 for none")
         if self.late_uplift < 0.0:
-            raise bad("late_uplift", self.late_uplift, "a proportion >= 0 (e.g. 0.05 for 5 %)")
+            raise bad("late_uplift", self.late_uplift, "a proportion, 0 or more", "0.05 for 5 %")
+        if not 0.0 < self.credibility_probability < 1.0:
+            raise bad(
+                "credibility_probability", self.credibility_probability,
+                "a probability strictly between 0 and 1", "0.90 for 90 % (the usual standard)",
+            )
+        if not 0.0 < self.credibility_tolerance < 1.0:
+            raise bad(
+                "credibility_tolerance", self.credibility_tolerance,
+                "a proportion strictly between 0 and 1", "0.05 for within 5 % (the usual standard)",
+            )
         if self.pension_band_edges is not None:
             edges = list(self.pension_band_edges)
             if not edges or any(e <= 0 for e in edges) or edges != sorted(set(edges)):
-                raise bad("pension_band_edges", self.pension_band_edges, "increasing amounts > 0")
+                raise bad(
+                    "pension_band_edges", self.pension_band_edges, "increasing amounts above 0",
+                    "the upper edges of the bands in increasing order, for example 1000, 5000, 20000",
+                )
 
     def late_text(self) -> str:
         """The late-reporting allowance in words."""
@@ -104,4 +152,5 @@ class ExperienceSettings:
         out["exposure_method"] = EXPOSURE_TEXT[self.exposure]
         out["day_count"] = DAY_COUNT_TEXT
         out["late_reporting"] = self.late_text()
+        out["credibility_standard"] = standard_text(self.credibility_probability, self.credibility_tolerance)
         return out

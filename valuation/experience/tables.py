@@ -148,6 +148,20 @@ def ae_table(
         .otherwise(pl.col("group"))
         .alias("group")
     )
+    return with_ratios(table, confidence=confidence, overdispersion=overdispersion).select(
+        *TABLE_COLUMNS,
+        "var_amounts",
+    )
+
+
+def with_ratios(table: pl.DataFrame, *, confidence: float, overdispersion: float) -> pl.DataFrame:
+    """Add A/E by lives and by amounts with their intervals to summed rows (see :func:`ae_table`).
+
+    References
+    ----------
+    Garwood (1936) exact Poisson limits for lives; normal interval with Var = phi sum w^2 E for amounts
+    (see :mod:`valuation.experience.intervals`).
+    """
     a = table["actual_lives"].to_numpy()
     e = table["expected_lives"].to_numpy()
     lo, hi = ae_lives_interval(a, e, confidence)
@@ -164,7 +178,47 @@ def ae_table(
         pl.Series("ae_amounts", aew),
         pl.Series("ae_amounts_lower", wlo),
         pl.Series("ae_amounts_upper", whi),
-    ).select(
-        *TABLE_COLUMNS,
-        "var_amounts",
     )
+
+
+def ae_by_table(
+    cells: pl.DataFrame, table_of: pl.Series, *, confidence: float, overdispersion: float
+) -> pl.DataFrame:
+    """A/E for each mortality table entry of the basis: the cells of every group and sex that use it.
+
+    Parameters
+    ----------
+    cells
+        From :func:`valuation.experience.cells.build_cells`.
+    table_of
+        The entry each cell's (group, sex) uses, e.g. ``"mortality.pensioner.M"`` (text, one a cell).
+    confidence, overdispersion
+        As for :func:`ae_table`.
+
+    Returns
+    -------
+    polars.DataFrame
+        One row an entry, in the order of the entry keys: ``table`` and the sums and ratios of
+        :func:`ae_table`, plus ``expected_lives_at_risk`` [lives]: the expected deaths of lives with a
+        pension at risk (those that weigh in the amounts), the count credibility is judged on.
+
+    References
+    ----------
+    As :func:`ae_table`: the same sums, the same intervals, on a different partition of the cells.
+    """
+    sums = {source: cells[source].to_numpy().astype(float) for source, _ in _SUMS}
+    at_risk = np.where(sums["expected_amounts"] > 0, sums["expected_lives"], 0.0)
+    names, inverse = _factorize(table_of)
+    data: dict[str, object] = {"table": names}
+    for source, target in _SUMS:
+        data[target] = np.bincount(inverse, weights=sums[source], minlength=len(names))
+    data["expected_lives_at_risk"] = np.bincount(inverse, weights=at_risk, minlength=len(names))
+    frame = pl.DataFrame(data, schema_overrides={"table": pl.String})
+    return with_ratios(frame.sort("table"), confidence=confidence, overdispersion=overdispersion)
+
+
+def ae_overall_at_risk(cells: pl.DataFrame) -> float:
+    """Expected deaths of all lives with a pension at risk [lives] (credibility of the overall line)."""
+    e = cells["expected_lives"].to_numpy().astype(float)
+    w = cells["expected_amounts"].to_numpy().astype(float)
+    return float(np.where(w > 0, e, 0.0).sum())
