@@ -78,11 +78,18 @@ class ByAgeImprovementSpec(BaseModel):
 
 
 class TableImprovementSpec(BaseModel):
-    """A two-dimensional (age x calendar year) improvement table in a file, relative to the TOML file."""
+    """Improvement rates in a file, relative to the TOML file.
+
+    A CSV / XLSX file holds a two-dimensional table (ages in rows, calendar years as column headers). An
+    XTbML file (as downloaded from a table repository) holds rates by age and calendar year, used like
+    the CSV form with the same ``after_last_year`` rules, or rates by age alone, used like ``by_age``;
+    ``table_name`` picks a table in an XTbML file with several.
+    """
 
     model_config = STRICT
     kind: Literal["table"]
     file: str
+    table_name: str | None = None
     after_last_year: Literal["hold_last", "long_term", "zero"] = "hold_last"
     long_term_rate: float = Field(default=0.0, ge=-0.1, le=0.1)
 
@@ -127,10 +134,16 @@ ImprovementSpec = Annotated[
 class MortalityEntry(BaseModel):
     """One mortality assumption: ``percentage`` x table rates at age + ``age_rating``, improved.
 
-    ``table`` is a bundled name (``SULT``, ``DEMO_M``, ``DEMO_F``) or a file path relative to the TOML file;
-    ``table_name`` picks a column / table inside a file. ``percentage`` is a multiplier (0.95 = 95 % of the
-    table's q) and ``age_rating`` whole years added to age (+1 = rated one year older). ``base_year``
-    overrides the table's own base year for improvement.
+    ``table`` is a bundled name (``SULT``, ``DEMO_M``, ``DEMO_F``) or a file path relative to the TOML file
+    (CSV, XLSX or XTbML as downloaded); ``table_name`` picks a column / table inside a file. ``percentage``
+    is a multiplier (0.95 = 95 % of the table's q) and ``age_rating`` whole years added to age (+1 = rated
+    one year older). ``base_year`` overrides the table's own base year for improvement.
+
+    Period tables (an XTbML table by age and calendar year): without ``base_year`` each calendar year uses
+    its own rates, years before the table its first year's rates, and years after the table its last
+    year's rates carried forward by ``improvement`` (with no improvement they stay at the last year's
+    rates); with ``base_year`` (a year of the table) that year's rates apply as a static table, improved
+    from that year. See :class:`valuation.mortality.basis.MortalityBasis`.
     """
 
     model_config = STRICT
@@ -165,7 +178,9 @@ def build_improvement(spec: ImprovementSpec, base_dir: Path) -> object:
         return imp.AgeImprovement(*interpolate_knots(spec.ages, spec.rates))
     if isinstance(spec, TableImprovementSpec):
         return imp.load_improvement_table(
-            base_dir / spec.file, after_last_year=spec.after_last_year, long_term_rate=spec.long_term_rate
+            base_dir / spec.file, after_last_year=spec.after_last_year, long_term_rate=spec.long_term_rate,
+            name=spec.table_name,
+            rules_given=bool({"after_last_year", "long_term_rate"} & spec.model_fields_set),
         )
     ages, rates = interpolate_knots(spec.initial_ages, spec.initial_rates)
     return imp.ConvergenceScale(

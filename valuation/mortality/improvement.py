@@ -27,7 +27,7 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
 from valuation.errors import BasisError, TableError
-from valuation.mortality.readers import read_grid
+from valuation.mortality.readers import XTBML_SUFFIXES, read_grid
 from valuation.mortality.table import as_int_ages
 
 AfterLastYear = Literal["hold_last", "long_term", "zero"]
@@ -352,23 +352,43 @@ def load_improvement_table(
     after_last_year: AfterLastYear = "hold_last",
     long_term_rate: float = 0.0,
     sheet: str | None = None,
-) -> TwoDimensionalScale:
-    """Read a two-dimensional improvement scale from CSV or XLSX.
+    name: str | None = None,
+    rules_given: bool = False,
+) -> ImprovementScale:
+    """Read an improvement scale from CSV, XLSX or XTbML.
 
-    Layout: header row ``age, <year>, <year>, ...`` with contiguous calendar years; one row per
-    contiguous integer age; rates as decimals per annum (0.015 for 1.5 %).
+    CSV / XLSX layout: header row ``age, <year>, <year>, ...`` with contiguous calendar years; one row per
+    contiguous integer age; rates as decimals per annum (0.015 for 1.5 %). This gives a
+    :class:`TwoDimensionalScale`.
+
+    XTbML (``.xml``): a table by age and calendar year gives a :class:`TwoDimensionalScale` with the same
+    ``after_last_year`` rules; a table by age alone gives an :class:`AgeImprovement` (the same rates every
+    year; ``rules_given`` says the caller set ``after_last_year`` or ``long_term_rate``, which such a
+    scale refuses). ``name`` picks a table in a file with several (see
+    :func:`valuation.mortality.xtbml.improvement_scale`).
 
     Raises
     ------
     TableError
         Naming the file, row, age and column for a bad cell, a non-year header, non-contiguous years, or
-        a rate not strictly between -1 and 1.
+        a rate not strictly between -1 and 1; for XTbML, naming the file and the table.
 
     References
     ----------
     [MP2014] (layout of a two-dimensional scale: ages by calendar years).
     """
-    grid = read_grid(path, sheet=sheet, key="age")
+    p = Path(path)
+    if p.suffix.lower() in XTBML_SUFFIXES:
+        from valuation.mortality.xtbml import improvement_scale, read_xtbml
+
+        return improvement_scale(read_xtbml(p), name, after_last_year=after_last_year,
+                                 long_term_rate=long_term_rate, rules_given=rules_given)
+    if name is not None:
+        raise TableError(
+            f"a table name ('{name}') was given, but a CSV or XLSX improvement file holds one table", file=p,
+            fix="remove table_name from the improvement, or point it at an XTbML file",
+        )
+    grid = read_grid(p, sheet=sheet, key="age")
     years = []
     for col in grid.columns:
         try:

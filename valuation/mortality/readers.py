@@ -282,8 +282,17 @@ def load_tables(
 def load_table(path: str | Path, name: str | None = None, **kw: Any) -> MortalityTable:
     """Read one table from a file; ``name`` picks a column (CSV/XLSX) or table (XTbML).
 
-    Without ``name`` the file must hold exactly one table. Keywords go to :func:`load_tables`.
+    Without ``name`` the file must hold exactly one table. Keywords go to :func:`load_tables`. From an
+    XTbML file only the named table is read and checked, so one table of a file can be used even when
+    another table of the same file cannot.
     """
+    p = Path(path)
+    if name is not None and p.suffix.lower() in XTBML_SUFFIXES and p.is_file():
+        from valuation.mortality.xtbml import mortality_tables, read_xtbml
+
+        closing = kw.get("closing", "require")
+        _close(np.ones(1), closing)
+        return mortality_tables(read_xtbml(p), closing=closing, base_year=kw.get("base_year"), only=name)[name]
     tables = load_tables(path, **kw)
     if name is None:
         if len(tables) != 1:

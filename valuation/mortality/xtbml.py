@@ -369,7 +369,7 @@ def _name_tables(xf: XTbMLFile, main: list[XTable]) -> list[str]:
     if len(main) == 1:
         return [xf.name]
     descs = [t.description for t in main]
-    return [d if d and descs.count(d) == 1 else f"{xf.name} [{k}]" for k, d in enumerate(descs, start=1)]
+    return [d if d and descs.count(d) == 1 else f"{xf.name} [{t.number}]" for t, d in zip(main, descs, strict=True)]
 
 
 # --------------------------------------------------------------------------------------------------
@@ -486,9 +486,9 @@ def _period(xf: XTbMLFile, t: XTable, axes: tuple[XAxis, ...], closing: Closing)
 
 
 def mortality_tables(
-    xf: XTbMLFile, *, closing: Closing = "require", base_year: int | None = None
+    xf: XTbMLFile, *, closing: Closing = "require", base_year: int | None = None, only: str | None = None
 ) -> dict[str, MortalityTable]:
-    """Every mortality table of an XTbML file, validated (see the module docstring for the layouts).
+    """The mortality tables of an XTbML file, validated (see the module docstring for the layouts).
 
     Parameters
     ----------
@@ -497,14 +497,16 @@ def mortality_tables(
     closing : {"require", "set_last_to_one"}
         Closing rule, as :func:`valuation.mortality.readers.load_tables`.
     base_year : int, optional
-        Calendar year the rates describe [calendar year]; for a period table, the year whose rates the
-        table's ``qx`` holds (default: each year's own rates, see :class:`MortalityTable`).
+        Calendar year the rates describe [calendar year]; for a period table, the year whose rates apply
+        (default: each calendar year's own rates, see :class:`MortalityTable`).
+    only : str, optional
+        Build and validate only the table of this name (the others may be of a kind that is refused).
 
     Returns
     -------
     dict
         Table name -> :class:`MortalityTable`. One table: the file's TableName; several: each table's
-        description.
+        description (see :func:`table_names`).
 
     References
     ----------
@@ -518,25 +520,20 @@ def mortality_tables(
             file=xf.path, fix="use it as the improvement of a table: improvement = { kind = \"table\", "
                               f"file = \"{xf.path.name}\" }} in the basis",
         )
-    shapes = [(t, *table_shape(xf, t)) for t in xf.tables]
-    ults = [(t, ax) for t, s, ax in shapes if s == "ultimate"]
-    sels = [(t, ax) for t, s, ax in shapes if s == "select"]
-    pers = [(t, ax) for t, s, ax in shapes if s == "period"]
-    if sels and len(sels) != len(ults):
-        raise TableError(
-            f"{len(sels)} select tables (age x duration) and {len(ults)} ultimate tables: each select table "
-            "needs the ultimate table it runs into, one for one in file order", file=xf.path,
-        )
-    if pers and (ults or sels):
-        raise TableError("mixes period tables (age x calendar year) with tables by age alone; supported is "
-                         "one kind of table a file", file=xf.path)
+    roles = _roles(xf)
+    if only is not None and only not in roles:
+        raise TableError(f"no table named '{only}'", file=xf.path, column=only,
+                         fix=f"use one of {', '.join(roles) or 'no table: none of them can be read'}")
     src = xf.source()
     out: dict[str, MortalityTable] = {}
-    main = [t for t, _ in (pers or ults)]
-    names = _name_tables(xf, main)
-    if pers:
-        for (t, ax), name in zip(pers, names, strict=True):
-            min_age, y0, grid = _period(xf, t, ax, closing)
+    for name, role in roles.items():
+        if only is not None and name != only:
+            continue
+        if isinstance(role, TableError):
+            raise role
+        (mt, max_), sel_pair = role
+        if sel_pair is None and _shape(xf, mt) == "period":
+            min_age, y0, grid = _period(xf, mt, max_, closing)
             years = np.arange(y0, y0 + grid.shape[1])
             for j, y in enumerate(years):
                 validate_table(MortalityTable(f"{name}, year {y}", min_age, grid[:, j]), file=str(xf.path))
@@ -544,26 +541,83 @@ def mortality_tables(
             if base_year is not None:
                 if not y0 <= base_year <= years[-1]:
                     raise TableError(f"base year {base_year} is outside the years {y0}..{years[-1]} of the "
-                                     f"period table '{name}'", file=xf.path)
+                                     f"period table '{name}'", file=xf.path,
+                                     fix="give a base year within the table's years, or none")
                 col = base_year - y0
-            table = MortalityTable(name, min_age, grid[:, col], base_year=base_year,
-                                   source=f"{src}, {xf.table_label(t)}", year_qx=grid, first_year=y0)
-            out[name] = table
-        return out
-    for k, ((ut, uax), name) in enumerate(zip(ults, names, strict=True)):
-        min_age, q = _ultimate(xf, ut, uax)
+            out[name] = MortalityTable(name, min_age, grid[:, col], base_year=base_year,
+                                       source=f"{src}, {xf.table_label(mt)}", year_qx=grid, first_year=y0)
+            continue
+        min_age, q = _ultimate(xf, mt, max_)
         q = _close(q, closing)
         sel_first, sel = None, None
-        label = xf.table_label(ut)
-        if sels:
-            st, sax = sels[k]
+        label = xf.table_label(mt)
+        if sel_pair is not None:
+            st, sax = sel_pair
             sel_first, sel = _select(xf, st, sax, min_age, q)
-            label = f"{xf.table_label(st)} with {xf.table_label(ut)}"
+            label = f"{xf.table_label(st)} with {xf.table_label(mt)}"
         table = MortalityTable(name, min_age, q, base_year=base_year, source=f"{src}, {label}",
                                select_qx=sel, select_min_age=sel_first)
         validate_table(table, file=str(xf.path))
         out[name] = table
     return out
+
+
+_Pair = tuple[XTable, tuple[XAxis, ...]]
+_Role = tuple[_Pair, _Pair | None]
+
+
+def _shape(xf: XTbMLFile, t: XTable) -> Shape:
+    return table_shape(xf, t)[0]
+
+
+def _roles(xf: XTbMLFile) -> dict[str, _Role | TableError]:
+    """Name -> (main table, its select table or None), or the refusal for that name.
+
+    Main tables are the ultimate tables (each select table paired with the ultimate table of the same
+    place, in file order) or the period tables. A table whose kind is refused keeps its refusal under its
+    name; a file whose tables cannot be paired gives one refusal under its TableName.
+    """
+    shapes: list[tuple[XTable, Shape | None, tuple[XAxis, ...], TableError | None]] = []
+    for t in xf.tables:
+        try:
+            s, ax = table_shape(xf, t)
+            shapes.append((t, s, ax, None))
+        except TableError as exc:
+            shapes.append((t, None, t.axes, exc))
+    ults = [(t, ax) for t, s, ax, _ in shapes if s == "ultimate"]
+    sels = [(t, ax) for t, s, ax, _ in shapes if s == "select"]
+    pers = [(t, ax) for t, s, ax, _ in shapes if s == "period"]
+    bad = [(t, e) for t, _, _, e in shapes if e is not None]
+    problem: TableError | None = None
+    if sels and len(sels) != len(ults):
+        problem = TableError(
+            f"{len(sels)} select tables (age x duration) and {len(ults)} ultimate tables: each select table "
+            "needs the ultimate table it runs into, one for one in file order", file=xf.path,
+        )
+    elif pers and (ults or sels):
+        problem = TableError("mixes period tables (age x calendar year) with tables by age alone; supported "
+                             "is one kind of table a file", file=xf.path)
+    if problem is not None:
+        return {xf.name: bad[0][1] if bad else problem}
+    main: list[tuple[XTable, _Role | TableError]] = []
+    if pers:
+        main = [(t, ((t, ax), None)) for t, ax in pers]
+    else:
+        main = [(u[0], (u, sels[k] if sels else None)) for k, u in enumerate(ults)]
+    if bad and not sels:  # a refused table stands on its own (with select tables the pairing is unsure)
+        main += [(t, e) for t, e in bad]
+    elif bad:
+        return {xf.name: bad[0][1]}
+    main.sort(key=lambda m: m[0].number)
+    names = _name_tables(xf, [t for t, _ in main])
+    return dict(zip(names, [r for _, r in main], strict=True))
+
+
+def table_names(xf: XTbMLFile) -> list[str]:
+    """The names by which :func:`mortality_tables` (or an improvement's ``table_name``) picks tables."""
+    if xf.is_improvement:
+        return _name_tables(xf, list(xf.tables))
+    return list(_roles(xf))
 
 
 # --------------------------------------------------------------------------------------------------
