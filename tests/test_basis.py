@@ -199,3 +199,78 @@ def test_model_copy_variant_does_not_reuse_cached_objects() -> None:
     shifted = b.model_copy(update={"discount": b.discount.model_copy(update={"rate": 0.053})})
     assert float(shifted.discount_curve().spot(5.0)) == pytest.approx(0.053, abs=1e-12)
     assert float(b.discount_curve().spot(5.0)) == pytest.approx(0.048, abs=1e-12)
+
+
+# ---------------------------------------------------------------- messages written for people
+
+
+@pytest.mark.parametrize(
+    ("line", "expected"),
+    [
+        ('valuation_date = "31/03/2025"', 'expected a date written as YYYY-MM-DD without quotes, e.g. 2025-03-31 '
+                                          '(got "31/03/2025")'),
+        ("valuation_date = 2025-03-31T10:00:00", "(got 2025-03-31T10:00:00)"),
+        ("valuation_date = true", "(got true)"),
+    ],
+)
+def test_values_are_shown_as_written_in_toml(tmp_path: Path, line: str, expected: str) -> None:
+    """The value given is shown in the basis file's own notation (TOML), never as a Python repr."""
+    msg = error_of(tmp_path, MINIMAL.replace("valuation_date = 2025-03-31", line))
+    assert "key 'valuation_date': expected a date" in msg and expected in msg
+    assert "datetime." not in msg and "True" not in msg and "'31/03/2025'" not in msg
+
+
+def test_validator_messages_do_not_repeat_the_value(tmp_path: Path) -> None:
+    msg = error_of(tmp_path, MINIMAL + '[mapping]\ndate_format = "%d-%m"\n')
+    assert msg.count("%d-%m") == 1 and 'needs day (%d), month (%m) and year (%Y or %y) directives' in msg
+    msg = error_of(tmp_path, MINIMAL + '[benefits]\naccrual_rate = "1/0"\n')
+    assert "key 'benefits.accrual_rate': not a number or a fraction like \"1/60\" (got \"1/0\")" in msg
+    assert "expected 'udd' or 'constant_force'" in error_of(tmp_path, MINIMAL + '[conventions]\nfractional_age = "UDD"\n')
+
+
+def test_basis_not_utf8_names_the_line(tmp_path: Path) -> None:
+    """A basis saved as Latin-1 (byte 0xE9 for e-acute, ISO 8859-1 table) is named with its line."""
+    p = tmp_path / "basis.toml"
+    p.write_bytes(MINIMAL.replace('name = "t"', 'name = "Caf\xe9"').encode("latin-1"))
+    with pytest.raises(BasisError) as info:
+        load_basis(p)
+    assert str(info.value).startswith(f"{p}: the file is not UTF-8 text: line 2 holds the byte 0xE9")
+    assert info.value.fix is not None and "UTF-8" in info.value.fix
+
+
+def test_table_error_in_the_basis_says_its_fix_once(tmp_path: Path) -> None:
+    """A table file's own error, passed on as a basis error, keeps one fix (ValuationError.with_context rule)."""
+    (tmp_path / "t.csv").write_text("age,q\n60,0.1\n61,0.2\n", encoding="utf-8")  # no closing age with q = 1
+    msg = error_of(tmp_path, MINIMAL.replace('table = "SULT"', 'table = "t.csv"', 1))
+    assert msg.count("(fix:") == 1 and "mortality.default.M" in msg and "t.csv" in msg
+
+
+def test_curve_file_read_errors_say_where(tmp_path: Path) -> None:
+    """A curve file with a row longer than its header, or not UTF-8, is named with the row or line."""
+    (tmp_path / "c.csv").write_text("term,rate\n1,0.03\n5,0,04\n", encoding="utf-8")
+    msg = error_of(tmp_path, MINIMAL.replace("[discount]\nrate = 0.05", '[discount]\ncurve = "c.csv"'))
+    assert "c.csv: curve file for 'discount.curve': row 3 has 3 values but the header names 2 columns" in msg
+    assert "Schema" not in msg and "truncate_ragged_lines" not in msg
+    (tmp_path / "d.csv").write_bytes("term,rate\n1,0.03\n5,0.04 \xa7\n".encode("latin-1"))
+    msg = error_of(tmp_path, MINIMAL.replace("[discount]\nrate = 0.05", '[discount]\ncurve = "d.csv"'))
+    assert "line 3 holds the byte 0xA7" in msg
+
+
+@pytest.mark.parametrize(
+    ("lines", "expected"),
+    [
+        ("max_pension = 10.0", "'max_pension' (10.00) must be above 'large_pension' (100,000.00)"),
+        ("large_salary = 2e9", "'max_salary' (1,000,000,000.00) must be above 'large_salary'"),
+        ("tiny_pension = 200000.0", "'tiny_pension' (200,000.00) must be below 'large_pension'"),
+        ("min_working_age = 40", "thresholds.min_working_age"),
+    ],
+)
+def test_threshold_limits_are_consistent(tmp_path: Path, lines: str, expected: str) -> None:
+    assert expected in error_of(tmp_path, MINIMAL + "[thresholds]\n" + lines + "\n")
+
+
+def test_threshold_defaults() -> None:
+    """Defaults stated in the README's basis table (our choice; common practice for data checks)."""
+    t = load_basis(SULT).thresholds
+    assert (t.large_salary, t.max_pension, t.max_salary) == (500_000.0, 1e9, 1e9)
+    assert (t.min_working_age, t.min_spouse_age, t.max_spouse_age_gap) == (15.0, 16.0, 30.0)

@@ -122,7 +122,11 @@ def structure_problem(path: Path) -> CsvProblem | None:
 
 
 def csv_problem(path: Path) -> CsvProblem | None:
-    """What is wrong with a CSV file a reader refused: encoding first, then structure; ``None`` if neither."""
-    if path.stat().st_size == 0:
-        return CsvProblem("the file is empty", "give a header row naming the columns, then one row a record")
-    return encoding_problem(path) or structure_problem(path)
+    """What is wrong with a CSV file a reader refused: access, encoding, then structure; ``None`` if none."""
+    try:
+        if path.stat().st_size == 0:
+            return CsvProblem("the file is empty", "give a header row naming the columns, then one row a record")
+        return encoding_problem(path) or structure_problem(path)
+    except OSError as exc:
+        return CsvProblem(f"cannot be opened ({(exc.strerror or 'not allowed').lower()})",
+                          "check that the file can be read by the user running the valuation")

@@ -8,6 +8,7 @@ import numpy as np
 import polars as pl
 
 from valuation.basis.rules import RateSpec
+from valuation.csvtext import csv_problem, utf16_problem
 from valuation.errors import BasisError
 
 
@@ -23,7 +24,14 @@ def read_curve_file(path: Path, key: str) -> tuple[np.ndarray, np.ndarray]:
     try:
         df = pl.read_csv(path, infer_schema=False)
     except (pl.exceptions.PolarsError, OSError, UnicodeDecodeError) as exc:
-        raise BasisError(f"cannot read curve file for '{key}': {exc}", file=path, fix=fix) from exc
+        problem = csv_problem(path)
+        if problem is None:
+            raise BasisError(f"cannot read the curve file for '{key}' as CSV", file=path, fix=fix) from exc
+        raise BasisError(f"curve file for '{key}': {problem.reason}", file=path, fix=problem.fix) from exc
+    with path.open("rb") as fh:
+        found = utf16_problem(fh.read(4096))
+    if found is not None:
+        raise BasisError(f"curve file for '{key}': {found.reason}", file=path, fix=found.fix)
     df = df.rename({c: c.strip().lower() for c in df.columns})
     for col in ("term", "rate"):
         if col not in df.columns:

@@ -5,12 +5,14 @@ from __future__ import annotations
 import tomllib
 import types
 import typing
+from datetime import date, datetime, time
 from pathlib import Path
 from typing import Any
 
 from pydantic import BaseModel, ValidationError
 
 from valuation.basis.model import Basis
+from valuation.csvtext import encoding_problem
 from valuation.errors import BasisError
 
 _FIX = "correct the key named above; every key and its allowed values are described in assumptions/demo_basis.toml"
@@ -94,11 +96,26 @@ def describe(err: dict[str, Any]) -> str:
     if kind == "missing":
         return f"key '{key}' is required"
     msg = str(err.get("msg", "")).removeprefix("Value error, ")
+    if msg.startswith("Input should be "):
+        msg = "expected " + msg.removeprefix("Input should be ")
+    if kind.startswith(("date_", "datetime_")):
+        msg = "expected a date written as YYYY-MM-DD without quotes, e.g. 2025-03-31"
     given = err.get("input")
-    shown = "" if isinstance(given, dict | list) or given is None else f" (got {given!r})"
+    shown = "" if isinstance(given, dict | list) or given is None else f" (got {toml_text(given)})"
     if "[key]" in loc:
-        shown = f" (got key {loc[loc.index('[key]') - 1]!r})"
+        shown = f" (got key {toml_text(loc[loc.index('[key]') - 1])})"
     return f"key '{key}': {msg}{shown}"
+
+
+def toml_text(value: Any) -> str:
+    """A value as it is written in a TOML file: ``"text"``, ``true``, ``2025-03-31``, ``0.05``."""
+    if isinstance(value, bool):
+        return "true" if value else "false"
+    if isinstance(value, str):
+        return '"' + value.replace("\\", "\\\\").replace('"', '\\"') + '"'
+    if isinstance(value, datetime | date | time):
+        return value.isoformat()
+    return str(value)
 
 
 def basis_error(exc: ValidationError, path: Path) -> BasisError:
@@ -129,8 +146,18 @@ def load_basis(path: str | Path) -> Basis:
     if not p.is_file():
         raise BasisError("basis file not found", file=p, fix="give the path of a .toml assumptions file")
     try:
-        data = tomllib.loads(p.read_text(encoding="utf-8"))
-    except (tomllib.TOMLDecodeError, UnicodeDecodeError) as exc:
+        text = p.read_text(encoding="utf-8")
+    except UnicodeDecodeError as exc:
+        problem = encoding_problem(p)
+        reason = problem.reason if problem is not None else "the file is not UTF-8 text"
+        raise BasisError(reason, file=p,
+                         fix="save the basis file as UTF-8 text (choose UTF-8 as the encoding when saving)") from exc
+    except OSError as exc:
+        raise BasisError(f"cannot be opened ({(exc.strerror or 'not allowed').lower()})", file=p,
+                         fix="check that the file can be read by the user running the valuation") from exc
+    try:
+        data = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
         raise BasisError(f"not valid TOML: {exc}", file=p, fix="check the syntax at the line given") from exc
     if "source_path" in data:
         raise BasisError("unknown key 'source_path' (misspelt?)", file=p, fix=_FIX)

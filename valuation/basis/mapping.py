@@ -47,5 +47,5 @@ class ColumnMapping(BaseModel):
         if v is None:
             return v
         if "%d" not in v or "%m" not in v or ("%Y" not in v and "%y" not in v):
-            raise ValueError(f"date_format {v!r} needs day, month and year directives, e.g. \"%d/%m/%Y\"")
+            raise ValueError("needs day (%d), month (%m) and year (%Y or %y) directives, e.g. \"%d/%m/%Y\"")
         return v

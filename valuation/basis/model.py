@@ -44,7 +44,7 @@ from valuation.basis.rules import (
     Thresholds,
     TrancheRule,
 )
-from valuation.errors import BasisError, ValuationError
+from valuation.errors import BasisError, ValuationError, describe
 from valuation.members.schema import OUR_COLUMNS, known_columns, tranche_column
 
 _TRANCHE_NAME = re.compile(r"^[a-z][a-z0-9_]*$")
@@ -80,7 +80,7 @@ class BenefitDesign(BaseModel):
             try:
                 return float(Fraction(v.replace(" ", "")))
             except (ValueError, ZeroDivisionError):
-                raise ValueError(f"accrual_rate {v!r} is not a number or a fraction like \"1/60\"") from None
+                raise ValueError("not a number or a fraction like \"1/60\"") from None
         return v
 
 
@@ -150,10 +150,10 @@ class Basis(BaseModel):
         for name in v:
             if not _TRANCHE_NAME.match(name):
                 raise ValueError(
-                    f"tranche name {name!r} must be lower-case letters, digits and '_' starting with a letter"
+                    f"tranche name '{name}' must be lower-case letters, digits and '_' starting with a letter"
                 )
             if tranche_column(name) in OUR_COLUMNS:
-                raise ValueError(f"tranche name {name!r} clashes with column '{tranche_column(name)}'")
+                raise ValueError(f"tranche name '{name}' clashes with column '{tranche_column(name)}'")
         return v
 
     @model_validator(mode="after")
@@ -166,7 +166,7 @@ class Basis(BaseModel):
                 f"(allowed: {', '.join(names)})"
             )
         if chosen is not None and chosen not in self.tranches:
-            raise ValueError(f"benefits.default_tranche {chosen!r} is not a declared tranche "
+            raise ValueError(f"benefits.default_tranche \"{chosen}\" is not a declared tranche "
                              f"(allowed: {', '.join(names)})")
         for group in GROUPS:
             for sex in ("M", "F"):
@@ -259,10 +259,10 @@ class Basis(BaseModel):
         Fallback rule: the group's own entry, else (spouse only) the dependant entry, else ``default``.
         """
         if group not in GROUPS:
-            raise BasisError(f"unknown mortality group {group!r} (allowed: {', '.join(GROUPS)})",
+            raise BasisError(f"unknown mortality group '{group}' (allowed: {', '.join(GROUPS)})",
                              file=self.source_path)
         if sex not in ("M", "F"):
-            raise BasisError(f"unknown sex {sex!r} (allowed: M, F)", file=self.source_path)
+            raise BasisError(f"unknown sex '{sex}' (allowed: M, F)", file=self.source_path)
         found = entry_key(self.mortality_entries, group, sex)
         assert found is not None  # guaranteed by validation
         return f"mortality.{found}.{sex}"
@@ -297,7 +297,8 @@ class Basis(BaseModel):
                 fix = getattr(exc, "fix", None) or (
                     "give a bundled table name (SULT, DEMO_M, DEMO_F) or a table file path relative to the "
                     "basis file, and a valid improvement")
-                raise BasisError(f"key '{key}': {exc}", file=self.source_path, fix=fix) from exc
+                said = str(exc.args[0]) if isinstance(exc, KeyError) and exc.args else describe(exc)
+                raise BasisError(f"key '{key}': {said}", file=self.source_path, fix=fix) from exc
             self._cache[cache_key] = (entry, mb)  # holding the entry keeps its id unique
         return self._cache[cache_key][1]
 
