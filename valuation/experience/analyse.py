@@ -174,6 +174,8 @@ def analyse_records(
         table_key,
         settings,
     )
+    # the liability effect needs the valuation member file: see analyse_experience
+    implied.update(liability_effect(None, None, []))
 
     exceptions = pl.concat(
         [

@@ -72,6 +72,9 @@ BY_TABLE_COLUMNS: tuple[str, ...] = (
 #: Member groups in reporting order.
 GROUP_ORDER: dict[str, int] = {"pensioner": 0, "dependant": 1, "deferred": 2, "active": 3, "spouse": 4}
 
+#: Table entries in reporting order (the groups' own entries first, the shared default last).
+ENTRY_ORDER: dict[str, int] = {**GROUP_ORDER, "default": len(GROUP_ORDER)}
+
 NO_AMOUNTS_NOTE = (
     "no pension at risk (members not yet drawing or entitled to a pension): no A/E by amounts, and the "
     "table percentage is kept"
@@ -172,7 +175,8 @@ def implied_percentages(
     dict
         ``credibility_standard`` (``probability``, ``tolerance``, ``full_expected_deaths`` [lives],
         ``text``); ``by_table``: one dict an entry (:data:`BY_TABLE_COLUMNS`; percentages in %, A/E as
-        ratios, None where the members have no pension at risk); ``overall``: the same for all members
+        ratios, None where the members have no pension at risk), in the order of :data:`ENTRY_ORDER`
+        then men before women; ``overall``: the same for all members
         (implied percentage only when every table has the same current percentage); and, for the
         headline, ``multiplier`` (overall A/E by amounts) with ``multiplier_lower``/``multiplier_upper``,
         ``implied_percentage``, ``lower``, ``upper`` (the overall line's) and ``note``.
@@ -196,7 +200,12 @@ def implied_percentages(
     for key, groups in members_of.items():
         members_of[key] = sorted(groups, key=lambda g: (GROUP_ORDER.get(g, len(GROUP_ORDER)), g))
     rows = []
-    for sums in by_table.iter_rows(named=True):  # one row a table entry
+    ordered = by_table.with_columns(
+        pl.col("table").str.split(".").list.get(1).replace_strict(ENTRY_ORDER, default=len(ENTRY_ORDER),
+                                                                  return_dtype=pl.Int64).alias("_g"),
+        (pl.col("table").str.split(".").list.get(2) != "M").alias("_s"),
+    ).sort("_g", "_s", "table")
+    for sums in ordered.iter_rows(named=True):  # one row a table entry
         key = sums["table"]
         _, entry_group, sex = key.split(".")
         rows.append(

@@ -214,13 +214,51 @@ def implied_notes(implied: dict[str, Any]) -> list[str]:
     """Plain sentences on the implied mortality level and the liability effect of an experience analysis
     (none when there is nothing to explain)."""
     out = []
+    std = implied.get("credibility_standard") or {}
+    if std and implied.get("by_table"):
+        n_full = fmt.number(std.get("full_expected_deaths"))
+        out.append(
+            f"Each mortality table is judged on its own deaths, with a weight for how far they can be trusted "
+            f"(credibility): full weight at {n_full} expected deaths, enough for a "
+            f"{fmt.rate(std.get('probability'), 0)} chance that the ratio is within "
+            f"{fmt.rate(std.get('tolerance'), 0)} of its true value (limited-fluctuation credibility, "
+            f"Longley-Cook 1962); below that, the square root of the expected deaths divided by {n_full}. "
+            "The rest of the weight stays with the current percentage."
+        )
     if implied.get("implied_percentage") is None and implied.get("by_table"):
         out.append("The current percentages of the table differ by group and sex, so there is no single implied "
-                   "percentage: each group's is its current percentage times the A/E by amounts (table below).")
+                   "percentage: each table's comes from its own deaths.")
+    shared = [t for t in implied.get("by_table") or [] if t.get("group") == "default"]
+    if shared:
+        out.append("Member groups without a table of their own in the basis are judged together on the default "
+                   "table they use.")
+    none = [table_label(t) for t in implied.get("by_table") or [] if t.get("ae_amounts") is None]
+    if none:
+        out.append(f"No pension is at risk for {'; '.join(none)}: there is no A/E by pension, and the table "
+                   "percentage is kept.")
     reason = implied.get("reason")
     if reason:
         out.append(f"Liability effect not calculated: {_plain_reason(reason)}.")
     return out
+
+
+def table_members(row: dict[str, Any]) -> str:
+    """Who an experience table row covers, in words: ``Pensioners``, ``Default table (deferred members,
+    active members)``, ``All members``."""
+    group = str(row.get("group"))
+    if group == "all":
+        return "All members"
+    if group == "default":
+        who = ", ".join(STATUS_LABELS.get(m, m).lower() for m in row.get("members") or [])
+        return f"Default table ({who})" if who else "Default table"
+    return STATUS_LABELS.get(group, group.capitalize() + "s")
+
+
+def table_label(row: dict[str, Any]) -> str:
+    """:func:`table_members` and the sex: ``Pensioners, men``."""
+    if row.get("group") == "all":
+        return "All members"
+    return f"{table_members(row)}, {SEX_LABELS.get(str(row.get('sex')), str(row.get('sex'))).lower()}"
 
 
 def _plain_reason(reason: str) -> str:

@@ -36,13 +36,33 @@ EXPERIENCE_LABELS = {
     "expected_amounts": "expected deaths [pension, currency p.a.]",
     "ae_amounts": "A/E amounts", "ae_amounts_lower": "A/E amounts lower", "ae_amounts_upper": "A/E amounts upper",
 }
-#: The implied percentages by table, in plain words.
+#: Each mortality table's row, in plain words (the analysis's keys -> the sheet's headers).
 BY_TABLE_LABELS = {
     "group": "members", "sex": "sex", "current_percentage": "current percentage of table",
-    "implied_percentage": "implied percentage of table", "lower": "lower", "upper": "upper",
+    "actual_amounts": "actual deaths [pension, currency p.a.]",
+    "expected_amounts": "expected deaths [pension, currency p.a.]",
+    "ae_amounts": "A/E by amounts", "ae_amounts_lower": "A/E lower", "ae_amounts_upper": "A/E upper",
+    "expected_lives_at_risk": "expected deaths of lives with a pension",
+    "credibility": "credibility factor", "implied_percentage": "implied percentage of table",
+    "lower": "lower", "upper": "upper", "note": "note",
 }
 _BY_TABLE_SCHEMA = {"group": pl.String, "sex": pl.String, "current_percentage": pl.Float64,
-                    "implied_percentage": pl.Float64, "lower": pl.Float64, "upper": pl.Float64}
+                    "actual_amounts": pl.Float64, "expected_amounts": pl.Float64, "ae_amounts": pl.Float64,
+                    "ae_amounts_lower": pl.Float64, "ae_amounts_upper": pl.Float64,
+                    "expected_lives_at_risk": pl.Float64, "credibility": pl.Float64,
+                    "implied_percentage": pl.Float64, "lower": pl.Float64, "upper": pl.Float64,
+                    "note": pl.String}
+#: Columns held in percent by the analysis (divided by 100 on the sheet).
+_IN_PERCENT = ("current_percentage", "implied_percentage", "lower", "upper")
+_BY_TABLE_FORMATS = {
+    **dict.fromkeys(_IN_PERCENT, PERCENT), "actual_amounts": xc.MONEY, "expected_amounts": xc.MONEY,
+    "ae_amounts": PERCENT, "ae_amounts_lower": PERCENT, "ae_amounts_upper": PERCENT,
+    "expected_lives_at_risk": xc.LIVES, "credibility": PERCENT,
+}
+#: Shown in place of a figure that does not exist (no pension at risk).
+NONE_SHOWN = "\u2014"
+#: The note on a row whose members have no pension at risk.
+NO_AMOUNTS_TEXT = "no pension at risk: no A/E by amounts; table percentage kept"
 
 
 def _fraction(percent: Any) -> float | None:
@@ -51,8 +71,10 @@ def _fraction(percent: Any) -> float | None:
 
 
 def headline_rows(implied: dict[str, Any]) -> list[tuple[str, Any, str | None]]:
-    """The overall A/E by amounts, the implied percentage of the table and the liability effect, as
-    (label, value, number format) rows; percentages as fractions."""
+    """The overall A/E by amounts, the implied percentage of the table (when the tables share one), the
+    credibility standard and the liability effect, as (label, value, number format) rows; percentages as
+    fractions."""
+    std = implied.get("credibility_standard") or {}
     rows: list[tuple[str, Any, str | None]] = [
         ("A/E by amounts (weighted by pension)", implied.get("multiplier"), PERCENT),
         ("  lower", implied.get("multiplier_lower"), PERCENT),
@@ -60,22 +82,38 @@ def headline_rows(implied: dict[str, Any]) -> list[tuple[str, Any, str | None]]:
         ("Implied percentage of table", _fraction(implied.get("implied_percentage")), PERCENT),
         ("  lower", _fraction(implied.get("lower")), PERCENT),
         ("  upper", _fraction(implied.get("upper")), PERCENT),
+        ("Full credibility at [expected deaths]", std.get("full_expected_deaths"), xc.LIVES),
         ("Liability on the valuation basis [currency]", implied.get("liability_before"), xc.MONEY),
-        ("Liability, q scaled by A/E amounts [currency]", implied.get("liability_after"), xc.MONEY),
+        ("Liability, each table at its implied percentage [currency]", implied.get("liability_after"),
+         xc.MONEY),
         ("Change in liability", _fraction(implied.get("change_pct")), PERCENT),
     ]
     return [r for r in rows if r[1] is not None]
 
 
 def by_table_frame(implied: dict[str, Any]) -> pl.DataFrame:
-    """The implied percentage for each (group, sex) with plain group names; percentages as fractions."""
-    frame = pl.DataFrame(implied.get("by_table") or [], schema=_BY_TABLE_SCHEMA)
-    pct = [c for c in _BY_TABLE_SCHEMA if _BY_TABLE_SCHEMA[c] == pl.Float64]
-    return frame.with_columns(
-        pl.col("group").replace(content.STATUS_LABELS),
-        pl.col("sex").replace(content.SEX_LABELS),
-        *[(pl.col(c) / 100.0) for c in pct],
+    """One row a mortality table, then the overall line: who it covers in words, its own A/E by amounts
+    and interval, credibility factor and implied percentage; percentages as fractions."""
+    rows = [*(implied.get("by_table") or []), *([implied["overall"]] if implied.get("overall") else [])]
+    frame = pl.DataFrame(
+        [{c: r.get(c) for c in _BY_TABLE_SCHEMA}
+         | {"group": content.table_members(r), "sex": content.SEX_LABELS.get(str(r.get("sex")), "All"),
+            "note": NO_AMOUNTS_TEXT if r.get("ae_amounts") is None else None}
+         for r in rows],
+        schema=_BY_TABLE_SCHEMA,
     )
+    return frame.with_columns(*[(pl.col(c) / 100.0) for c in _IN_PERCENT])
+
+
+def _mark_missing(ws: Worksheet, frame: pl.DataFrame, top: int) -> None:
+    """Write :data:`NONE_SHOWN` where a figure does not exist: no pension at risk (no A/E by amounts), or
+    no single current percentage on the overall line."""
+    for j, name in enumerate(frame.columns, start=1):
+        if frame.schema[name] != pl.Float64:
+            continue
+        for i, missing in enumerate(frame[name].is_null().to_list(), start=top + 1):
+            if missing:
+                xc.put(ws, i, j, NONE_SHOWN)
 
 
 def experience_sheet(ws: Worksheet, experience: Any) -> None:
@@ -100,11 +138,13 @@ def experience_sheet(ws: Worksheet, experience: Any) -> None:
         top += 1
     top += 1
     by_table = by_table_frame(implied)
-    if by_table.height:
-        xc.put(ws, top, 1, "Implied percentage of the table, by group and sex").font = xc.TITLE_FONT
-        formats = dict.fromkeys(by_table.columns[2:], PERCENT)
-        top = xc.write_frame(ws, by_table, top=top + 1, formats=formats, labels=BY_TABLE_LABELS,
-                             table="ImpliedByTable") + 2
+    if implied.get("by_table"):
+        xc.put(ws, top, 1, "Each mortality table's own experience, credibility and implied percentage"
+               ).font = xc.TITLE_FONT
+        last = xc.write_frame(ws, by_table, top=top + 1, formats=_BY_TABLE_FORMATS, labels=BY_TABLE_LABELS,
+                              table="ImpliedByTable")
+        _mark_missing(ws, by_table, top + 1)
+        top = last + 2
     ages = chart_bands(content.ae_by_age(experience)).select(
         "group", "exposure_years", "actual_lives", "expected_lives", "ae_lives", "ae_lives_lower", "ae_lives_upper")
     xc.put(ws, top, 1, f"By age band (bands with at least {MIN_EXPECTED:g} expected death; all bands below)"

@@ -70,9 +70,11 @@ def _experience(experience: ExperienceResult | None) -> dict[str, Any] | None:
         "chart": Markup(charts.ae_by_age(bands)) if content.chart_bands(bands).height else None,
         "min_expected": content.MIN_EXPECTED,
         "implied": implied,
-        "by_table": [t | {"group_label": content.STATUS_LABELS.get(t["group"], t["group"]),
-                          "sex_label": content.SEX_LABELS.get(t["sex"], t["sex"])}
-                     for t in implied.get("by_table") or []],
+        "notes": content.implied_notes(implied),
+        "by_table": [t | {"group_label": content.table_members(t),
+                          "sex_label": content.SEX_LABELS.get(t["sex"], "All")}
+                     for t in [*(implied.get("by_table") or []),
+                               *([implied["overall"]] if implied.get("overall") else [])]],
         "period": f"{settings.period_start.isoformat()} to {settings.period_end.isoformat()}",
         "confidence": settings.confidence,
     }
