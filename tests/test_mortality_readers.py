@@ -188,3 +188,39 @@ def test_csv_copy_keeps_provenance(tmp_path):
     shutil.copy(DATA / "small.csv", tmp_path / "copy.csv")
     t = load_table(tmp_path / "copy.csv", name="F")
     assert t.source == "CSV file copy.csv, column 'F'"
+
+
+# ---------------------------------------------------------------- messages written for people
+
+
+def test_no_closing_age_fix_is_in_terms_of_the_file(tmp_path):
+    """The fix names the file's last age, not a Python argument of the reader."""
+    path = write_csv(tmp_path / "t.csv", "age,M\n60,0.01\n61,0.02\n62,0.5")
+    with pytest.raises(TableError) as e:
+        load_tables(path)
+    assert e.value.fix == "add a row after age 62 for the closing age, with q = 1 (no life survives it)"
+    assert "set_last_to_one" not in str(e.value) and "closing=" not in str(e.value)
+
+
+def test_grid_file_problems_say_where(tmp_path):
+    """RFC 4180 layout: every row has the header's number of values; the file is UTF-8 (RFC 3629), so a
+    Latin-1 byte (0xE9, e-acute in ISO 8859-1) is named with its line."""
+    path = write_csv(tmp_path / "t.csv", "age,M,F\n60,0.01,0.02\n61,0.02,0.03,0.9\n62,1,1")
+    with pytest.raises(TableError) as e:
+        load_tables(path)
+    assert (e.value.row, e.value.reason) == (3, "row 3 has 4 values but the header names 3 columns")
+    path = write_csv(tmp_path / "d.csv", "age,M,M\n60,0.01,0.02\n61,1,1")
+    with pytest.raises(TableError) as e:
+        load_tables(path)
+    assert e.value.reason == "the header row names 'M' twice (columns 2 and 3)" and "['M']" not in str(e.value)
+    (tmp_path / "l.csv").write_bytes("age,M\n60,0.01\n61,1 \xe9\n".encode("latin-1"))
+    with pytest.raises(TableError, match="line 3 holds the byte 0xE9"):
+        load_tables(tmp_path / "l.csv")
+    (tmp_path / "u.csv").write_bytes("age,M\n60,0.01\n61,1\n".encode("utf-16"))
+    with pytest.raises(TableError, match="the file is UTF-16 text, not UTF-8"):
+        load_tables(tmp_path / "u.csv")
+    (tmp_path / "x.xlsx").write_bytes(b"not a workbook")
+    with pytest.raises(TableError) as e:
+        load_tables(tmp_path / "x.xlsx")
+    assert e.value.reason.startswith("cannot be read as an XLSX workbook (it may be damaged")
+    assert "zip" not in str(e.value).lower()

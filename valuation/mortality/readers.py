@@ -24,6 +24,7 @@ from typing import Any, Literal
 import numpy as np
 import polars as pl
 
+from valuation.csvtext import csv_problem, utf16_problem
 from valuation.errors import TableError
 from valuation.mortality.table import MortalityTable
 
@@ -52,8 +53,18 @@ class Grid:
 
 
 def _raw_csv(path: Path) -> list[tuple[int, list[str]]]:
-    with path.open(newline="", encoding="utf-8-sig") as fh:
-        return [(i, [c.strip() for c in r]) for i, r in enumerate(csv.reader(fh), start=1)]
+    try:
+        with path.open("rb") as raw:
+            found = utf16_problem(raw.read(4096))
+        if found is None:
+            with path.open(newline="", encoding="utf-8-sig") as fh:
+                return [(i, [c.strip() for c in r]) for i, r in enumerate(csv.reader(fh), start=1)]
+    except (UnicodeDecodeError, csv.Error, OSError) as exc:
+        found = csv_problem(path)
+        if found is None:
+            raise TableError("cannot be read as CSV", file=path,
+                             fix="open it in a spreadsheet program and save it again as 'CSV UTF-8'") from exc
+    raise TableError(found.reason, file=path, fix=found.fix)
 
 
 def _raw_xlsx(path: Path, sheet: str | None) -> list[tuple[int, list[str]]]:
@@ -62,7 +73,10 @@ def _raw_xlsx(path: Path, sheet: str | None) -> list[tuple[int, list[str]]]:
     try:
         wb = openpyxl.load_workbook(path, read_only=True, data_only=True)
     except Exception as exc:  # openpyxl raises several unrelated types for a broken file
-        raise TableError(f"cannot open as an XLSX workbook ({exc})", file=path) from exc
+        raise TableError(
+            "cannot be read as an XLSX workbook (it may be damaged, protected by a password, or not an XLSX "
+            "file)", file=path, fix="open it in Excel and save it again as .xlsx, or save the table as CSV UTF-8",
+        ) from exc
     try:
         if sheet is not None and sheet not in wb.sheetnames:
             raise TableError(
@@ -118,9 +132,18 @@ def read_grid(path: str | Path, *, sheet: str | None = None, key: str = "age") -
     for j, n in enumerate(names, start=2):
         if not n:
             raise TableError(f"column {j} has no header", file=p, row=header_row)
-    dup = sorted({n for n in names if names.count(n) > 1})
-    if dup:
-        raise TableError(f"duplicate column headers {dup}", file=p, row=header_row)
+    dup = next((n for n in names if names.count(n) > 1), None)
+    if dup is not None:
+        first, second = (j for j, n in enumerate(header, start=1) if n == dup)
+        raise TableError(f"the header row names '{dup}' twice (columns {first} and {second})", file=p,
+                         row=header_row, column=dup, fix="give each table column its own header")
+    for i, r in body:
+        if any(r[width:]):
+            raise TableError(
+                f"row {i} has {len(r) - [bool(c) for c in reversed(r)].index(True)} values but the header "
+                f"names {width} columns", file=p, row=i,
+                fix="remove the extra values, or add a header for the extra column",
+            )
     rows = np.array([i for i, _ in body])
     cells = [(r + [""] * width)[:width] for _, r in body]
     cols = list(zip(*cells, strict=True))
@@ -197,7 +220,7 @@ def validate_table(table: MortalityTable, *, file: str, first_row: int | None = 
         raise TableError(
             f"no closing age: q = {q[-1]:g} at the last age {table.max_age}; expected q = 1",
             file=file, row=row(k), column=table.name,
-            fix="add a closing age with q = 1, or read with closing='set_last_to_one'",
+            fix=f"add a row after age {table.max_age} for the closing age, with q = 1 (no life survives it)",
         )
     s = table.select_qx
     if s is not None:
@@ -212,7 +235,7 @@ def validate_table(table: MortalityTable, *, file: str, first_row: int | None = 
 
 def _close(qx: np.ndarray, closing: Closing) -> np.ndarray:
     if closing not in ("require", "set_last_to_one"):
-        raise ValueError(f"closing must be 'require' or 'set_last_to_one', not {closing!r}")
+        raise ValueError(f"closing must be 'require' or 'set_last_to_one', not '{closing}'")
     qx = np.array(qx, dtype=np.float64)
     if closing == "set_last_to_one":
         qx[-1] = 1.0  # stated closing rule: the last age given becomes the closing age
