@@ -274,3 +274,21 @@ def test_threshold_defaults() -> None:
     t = load_basis(SULT).thresholds
     assert (t.large_salary, t.max_pension, t.max_salary) == (500_000.0, 1e9, 1e9)
     assert (t.min_working_age, t.min_spouse_age, t.max_spouse_age_gap) == (15.0, 16.0, 30.0)
+
+
+@pytest.mark.parametrize(
+    ("text", "line", "expected"),
+    [
+        ('name = "t"\nname = "u"\n', 2,
+         'this key already has a value (give each key once in its table) (the line reads: name = "u")'),
+        ("[discount]\nrate = 0.05\n[discount]\n", 3,
+         "the table [discount] is declared twice (the line reads: [discount])"),
+        ('name = "t\n', 1, 'the line ends inside quoted text (a closing " is missing)'),
+        ("valuation_date = 31/03/2025\n", 1, "dates are written YYYY-MM-DD"),
+    ],
+)
+def test_toml_syntax_errors_in_words(tmp_path: Path, text: str, line: int, expected: str) -> None:
+    """TOML v1.0.0 rules (toml.io): a key is defined once, a table is declared once, strings are quoted."""
+    msg = error_of(tmp_path, text)
+    assert f"not valid TOML at line {line}, column " in msg and expected in msg
+    assert "('" not in msg and "\\n" not in msg  # no Python tuple or string reprs

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import re
 import tomllib
 import types
 import typing
@@ -118,6 +119,37 @@ def toml_text(value: Any) -> str:
     return str(value)
 
 
+_TOML_WORDS: tuple[tuple[str, str], ...] = (
+    (r"^Cannot declare \((.*)\) twice$", "the table [{key}] is declared twice"),
+    (r"^Cannot overwrite a value$", "this key already has a value (give each key once in its table)"),
+    (r"^Illegal character '\\n'$", "the line ends inside quoted text (a closing \" is missing)"),
+    (r"^Invalid value$", "the value after '=' is missing or not a TOML value (text needs double quotes)"),
+    (r"^Expected newline or end of document after a statement$",
+     "unexpected text after the value (text needs double quotes; dates are written YYYY-MM-DD)"),
+)
+
+
+def toml_problem(message: str, text: str) -> str:
+    """A TOML syntax error in words, with the line it is on and what that line reads."""
+    m = re.search(r"\s*\(at line (\d+), column (\d+)\)\s*$", message)
+    at_end = re.search(r"\s*\(at end of document\)\s*$", message)
+    cut = m or at_end
+    head = message[: cut.start()] if cut else message
+    for pattern, words in _TOML_WORDS:
+        hit = re.match(pattern, head)
+        if hit:
+            key = ".".join(re.findall(r"'([^']*)'", hit.group(1))) if hit.groups() else ""
+            head = words.format(key=key)
+            break
+    if m is None:
+        return f"not valid TOML{' at the end of the file' if at_end else ''}: {head}"
+    line, column = int(m.group(1)), int(m.group(2))
+    lines = text.splitlines()
+    shown = lines[line - 1].strip() if 0 < line <= len(lines) else ""
+    reads = f" (the line reads: {shown})" if shown else ""
+    return f"not valid TOML at line {line}, column {column}: {head}{reads}"
+
+
 def basis_error(exc: ValidationError, path: Path) -> BasisError:
     """A :class:`BasisError` listing every validation problem of a basis file."""
     problems = [describe(dict(e)) for e in exc.errors()]
@@ -158,7 +190,7 @@ def load_basis(path: str | Path) -> Basis:
     try:
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
-        raise BasisError(f"not valid TOML: {exc}", file=p, fix="check the syntax at the line given") from exc
+        raise BasisError(toml_problem(str(exc), text), file=p, fix="correct the syntax of that line") from exc
     if "source_path" in data:
         raise BasisError("unknown key 'source_path' (misspelt?)", file=p, fix=_FIX)
     try:

@@ -214,7 +214,7 @@ def read_header(path: str | Path) -> list[str]:
         except (OSError, ValueError, pa.ArrowException) as exc:
             raise _parquet_unreadable(p) from exc
     raise DataError("reading the header alone needs a CSV or Parquet file", file=p,
-                    fix="read an XLSX file whole with read_text_frame")
+                    fix="save the member data as CSV or Parquet to read it in chunks")
 
 
 def scan_column(path: str | Path, column: str) -> pl.DataFrame:
@@ -258,7 +258,7 @@ def iter_text_frames(path: str | Path, chunk_rows: int) -> Iterator[pl.DataFrame
     p, kind = _existing(path)
     if kind == "xlsx":
         raise DataError("reading in chunks needs a CSV or Parquet file", file=p,
-                        fix="read an XLSX file whole with read_text_frame")
+                        fix="save the member data as CSV or Parquet to read it in chunks")
     headers = read_header(p)
     try:
         if kind == "csv":
