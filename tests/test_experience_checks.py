@@ -195,3 +195,26 @@ def test_column_mapping_and_duplicate_mapped_columns(tmp_path: Path) -> None:
     g.write_text("Ref,member_id,Died\nP001,P001,2022-05-10\n")
     with pytest.raises(DataError, match="two columns map to 'member_id'"):
         read_events(g, "deaths", column_map={"ref": "member_id", "died": "date_of_death"})
+
+
+@pytest.mark.parametrize(
+    ("name", "content", "text", "fix"),
+    [
+        ("empty.csv", b"", "deaths file is empty", "give a header row (member_id, date_of_death"),
+        ("latin.csv", "member_id,date_of_death\n\u00e9,2022-01-01\n".encode("latin-1"), "is not UTF-8 text",
+         "save it again as CSV UTF-8"),
+        ("semi.csv", b"member_id;date_of_death\nP1;2022-01-01\n", "the columns are not separated by commas "
+         "(one header reads 'member_id;date_of_death')", "save the file as CSV with commas"),
+        ("bad.parquet", b"\x00\x01 not parquet", "cannot be read as a Parquet table", "save it again as CSV"),
+    ],
+)
+def test_unreadable_event_files_say_what_to_do(tmp_path: Path, name: str, content: bytes, text: str,
+                                               fix: str) -> None:
+    """A file that cannot be used is a message naming the file and the fix, with no library internals."""
+    path = tmp_path / name
+    path.write_bytes(content)
+    with pytest.raises(DataError) as info:
+        read_events(path, "deaths")
+    msg = str(info.value)
+    assert msg.startswith(str(path)) and text in msg and fix in msg
+    assert msg.count("(fix:") == 1 and "Error" not in msg and "polars" not in msg.lower()

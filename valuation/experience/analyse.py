@@ -161,9 +161,14 @@ def analyse_records(
         },
         schema={"group": pl.String, "sex": pl.String, "table": pl.String},
     )
-    table_of = cells.select("group", "sex").join(keys, on=["group", "sex"], how="left", maintain_order="left")
+    table_of = (
+        cells.select(pl.col("group").cast(pl.String), pl.col("sex").cast(pl.String))
+        .join(keys, on=["group", "sex"], how="left", maintain_order="left")["table"]
+        if cells.height
+        else pl.Series("table", [], pl.String)
+    )
     by_table = ae_by_table(
-        cells, table_of["table"], confidence=settings.confidence, overdispersion=settings.overdispersion
+        cells, table_of, confidence=settings.confidence, overdispersion=settings.overdispersion
     )
     implied = implied_percentages(
         by_table,

@@ -28,6 +28,17 @@ OPTIONAL: dict[str, tuple[str, ...]] = {
 DATE_COLUMN: dict[str, str] = {"deaths": "date_of_death", "exits": "exit_date"}
 
 
+_KIND_NAMES = {".csv": "CSV", ".txt": "CSV", ".parquet": "Parquet", ".xlsx": "XLSX", ".xlsm": "XLSX"}
+
+
+def _is_utf8(path: Path) -> bool:
+    try:
+        path.read_bytes().decode("utf-8")
+    except (UnicodeDecodeError, OSError):
+        return False
+    return True
+
+
 def _read_text_frame(path: Path) -> pl.DataFrame:
     suffix = path.suffix.lower()
     try:
@@ -46,7 +57,17 @@ def _read_text_frame(path: Path) -> pl.DataFrame:
     except DataError:
         raise
     except Exception as exc:  # polars/fastexcel raise several types for unreadable files
-        raise DataError(f"cannot be read: {exc}", file=path, fix="check the file is a valid table") from exc
+        if suffix in (".csv", ".txt") and not _is_utf8(path):
+            raise DataError(
+                "is not UTF-8 text", file=path,
+                fix="save it again as CSV UTF-8 (in a spreadsheet: Save As, CSV UTF-8)",
+            ) from exc
+        raise DataError(
+            f"cannot be read as a {_KIND_NAMES.get(suffix, suffix)} table",
+            file=path,
+            fix="open it in a spreadsheet and save it again as CSV (UTF-8), XLSX or Parquet, one row a record "
+            "under one header row",
+        ) from exc
     return df.with_columns(pl.all().cast(pl.String))
 
 
@@ -107,6 +128,11 @@ def read_events_with_headers(
     path = Path(path)
     if not path.is_file():
         raise DataError(f"{kind} file not found", file=path, fix=f"give the path of the {kind} file")
+    if path.stat().st_size == 0:
+        raise DataError(
+            f"{kind} file is empty", file=path,
+            fix=f"give a header row ({', '.join(REQUIRED[kind] + OPTIONAL[kind])}) and one row a record",
+        )
     df = _read_text_frame(path)
     lookup = {k.strip().lower(): v.strip().lower() for k, v in (column_map or {}).items()}
     renames: dict[str, str] = {}
@@ -119,19 +145,27 @@ def read_events_with_headers(
             raise DataError(
                 f"two columns map to '{ours}' ('{seen[ours]}' and '{original}')",
                 file=path,
-                column=ours,
-                fix="keep one of them or change the basis column mapping",
+                column=original,
+                fix="keep one of them, or change [mapping.columns] in the basis",
             )
         seen[ours] = original
     df = df.rename(renames)
     headers = {ours: original.replace("\ufeff", "") for ours, original in seen.items()}
     for col in REQUIRED[kind]:
         if col not in df.columns:
+            if len(seen) == 1 and (";" in next(iter(seen.values())) or "\t" in next(iter(seen.values()))):
+                raise DataError(
+                    "the columns are not separated by commas (one header reads "
+                    f"'{next(iter(seen.values()))}')",
+                    file=path,
+                    fix="save the file as CSV with commas between columns",
+                )
             raise DataError(
-                f"required column '{col}' is missing (found: {', '.join(df.columns) or 'none'})",
+                f"required column '{col}' is missing (found: {', '.join(seen.values()) or 'none'})",
                 file=path,
                 column=col,
-                fix=f"add a '{col}' column (headers are matched ignoring case)",
+                fix=f"add a '{col}' column (headers are matched ignoring case), or map your header to it "
+                "under [mapping.columns] in the basis",
             )
     date_col = DATE_COLUMN[kind]
     ident = pl.col("member_id").str.strip_chars()
