@@ -162,6 +162,13 @@ def _whole(s: str | None, what: str, where: str, file: Path) -> int | None:
     return int(v)
 
 
+def _is_number(s: str) -> bool:
+    try:
+        return bool(np.isfinite(float(s)))
+    except ValueError:
+        return False
+
+
 def _axis_kind(scale_type: str, name: str) -> AxisKind:
     st, nm = scale_type.lower(), name.lower()
     if "dur" in nm or nm.startswith("du") or st == "duration":  # "Duation" occurs in published files
@@ -188,7 +195,7 @@ def _refuse_dtd(data: bytes, path: Path) -> None:
         )
 
 
-def _parse_table(elem: ET.Element, number: int, fname: str, path: Path) -> XTable:
+def _parse_table(elem: ET.Element, number: int, fname: str, path: Path, ns: str = "") -> XTable:
     meta = _child(elem, "MetaData")
     desc = _text(meta, "TableDescription") or ""
     where = f"table {number} ('{desc or fname}')"
@@ -212,32 +219,45 @@ def _parse_table(elem: ET.Element, number: int, fname: str, path: Path) -> XTabl
     coords: list[tuple[int, ...]] = []
     texts: list[str] = []
 
+    def coord(t: str | None, n: int, start: int, step: int) -> int:
+        if t is None:
+            return start + n * step  # a Y without t: placed from MinScaleValue by Increment
+        try:
+            return int(t)
+        except ValueError:
+            return _whole(t, "the t attribute", where, path) or 0
+
     def walk(node: ET.Element, prefix: tuple[int, ...]) -> None:
-        level = len(prefix)
-        ax = axes[min(level, len(axes) - 1)]
-        step = ax.increment or 1
-        start = ax.min or 0
-        for n, y in enumerate(_children(node, "Y")):
-            t = _whole(y.get("t"), "Y t", where, path)
-            coords.append(prefix + (start + n * step if t is None else t,))
-            texts.append((y.text or "").strip())
-        for a in _children(node, "Axis"):
-            t = _whole(a.get("t"), "Axis t", where, path)
-            walk(a, prefix if t is None else prefix + (t,))
+        ax = axes[min(len(prefix), len(axes) - 1)]
+        ys = node.findall(ns + "Y")
+        if ys:
+            ts = [y.get("t") for y in ys]
+            try:
+                cs = [int(t) for t in ts]  # type: ignore[arg-type]
+            except (TypeError, ValueError):
+                cs = [coord(t, n, ax.min or 0, ax.increment or 1) for n, t in enumerate(ts)]
+            coords.extend([prefix + (c,) for c in cs])
+            texts.extend([(y.text or "").strip() for y in ys])
+        for a in node.findall(ns + "Axis"):
+            t = a.get("t")
+            walk(a, prefix if t is None else prefix + (coord(t, 0, 0, 1),))
 
     walk(values, ())
     depth = {len(c) for c in coords}
     if len(depth) > 1:
         raise TableError(f"{where}: its values are nested at different depths", file=path)
-    vals = np.full(len(texts), np.nan)
-    for k, s in enumerate(texts):
-        if s:
-            try:
-                vals[k] = float(s)
-            except ValueError as exc:
-                at = ", ".join(f"{a.label} {c}" for a, c in zip(axes, coords[k], strict=False))
-                raise TableError(f"{where}: non-numeric value '{s}' at {at}", file=path,
-                                 fix="use the file as downloaded, or correct that cell") from exc
+    empty = np.array([not s for s in texts], dtype=bool)
+    try:
+        vals = np.array([s or "nan" for s in texts], dtype=np.float64)
+        bad = ~empty & ~np.isfinite(vals)
+    except ValueError:  # find the cell that is not a number
+        vals = np.zeros(len(texts))
+        bad = np.array([bool(s) and not _is_number(s) for s in texts], dtype=bool)
+    if bad.any():
+        k = int(np.argmax(bad))
+        at = ", ".join(f"{a.label} {c}" for a, c in zip(axes, coords[k], strict=False))
+        raise TableError(f"{where}: non-numeric value '{texts[k]}' at {at}", file=path,
+                         fix="use the file as downloaded, or correct that cell")
     arr = np.asarray(coords, dtype=np.int64).reshape(len(coords), depth.pop() if depth else 0)
     return XTable(number, desc, scaling, tuple(axes), arr, vals / 10.0**scaling)
 
@@ -267,7 +287,8 @@ def read_xtbml(path: str | Path) -> XTbMLFile:
                          fix="give an XTbML table file")
     cc = _child(root, "ContentClassification")
     name = _text(cc, "TableName") or p.stem
-    tables = tuple(_parse_table(t, k, name, p) for k, t in enumerate(_children(root, "Table"), start=1))
+    ns = root.tag[: root.tag.rfind("}") + 1]  # "{namespace}" or ""
+    tables = tuple(_parse_table(t, k, name, p, ns) for k, t in enumerate(_children(root, "Table"), start=1))
     if not tables:
         raise TableError("the file holds no Table element", file=p)
     return XTbMLFile(
