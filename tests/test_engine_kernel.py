@@ -8,7 +8,7 @@ import pytest
 
 from tests.engine_helpers import sult_toml, write_basis
 from valuation.engine.context import Context, MortalityRows
-from valuation.engine.legs import value_leg, value_leg_numpy
+from valuation.engine.legs import Exits, value_leg, value_leg_numpy
 from valuation.engine.project import Valuer
 
 
@@ -41,6 +41,48 @@ def test_kernel_equals_array_version(tmp_path, fractional, frequency, timing, ki
         args["stop"] = np.maximum(stop, start + 1)
     else:
         args.update(rows_y=rows_y, y0=y0, growth=valuer.revalue)
+    fast = value_leg(ctx, mrows, **args)
+    slow = value_leg_numpy(ctx, mrows, **args)
+    np.testing.assert_allclose(fast.unit_pv, slow.unit_pv, rtol=1e-11, atol=1e-12)
+    np.testing.assert_allclose(fast.cashflow, slow.cashflow, rtol=1e-10, atol=1e-9)
+
+
+@pytest.mark.parametrize("rule", ["proportionate", "none_until_full_year"])
+@pytest.mark.parametrize("frequency,timing", [(12, "advance"), (2, "arrears")])
+@pytest.mark.parametrize("kind", ["own", "reversion"])
+def test_kernel_equals_array_version_with_first_increase_and_exits(tmp_path, rule, frequency, timing, kind):
+    """The same agreement with an increase date, a first-increase rule, two tranches, and for reversions
+    the withdrawal mixture and the prospective attribution of a spouse's pension on a death before the
+    start."""
+    text = sult_toml(frequency=frequency, timing=timing, increase='kind = "inflation", floor = 0.0, cap = 0.05',
+                     revaluation='kind = "fixed", rate = 0.03', inflation=0.025)
+    text = text.replace("[payment]", f'[payment]\nincrease_date = "04-06"\nfirst_increase = "{rule}"')
+    text = text.replace("[tranches.main]", '[benefits]\ndefault_tranche = "main"\n[tranches.late]\n'
+                        'increase = { kind = "fixed", rate = 0.01 }\n[tranches.main]')
+    basis = write_basis(tmp_path, text)
+    valuer = Valuer(basis)
+    ctx: Context = valuer.ctx
+    mrows: MortalityRows = valuer.mrows
+    assert valuer.first_increase is not None and ctx.increase_month == 4
+    rng = np.random.default_rng(11)
+    K, J = 30, 2
+    x0 = rng.uniform(20, 70, K)
+    y0 = np.clip(x0 + rng.normal(0, 5, K), 18, 110)
+    rows_x = mrows.rows(np.zeros(K, dtype=np.int64), 2025 - np.floor(x0).astype(np.int64))
+    rows_y = mrows.rows(np.ones(K, dtype=np.int64), 2025 - np.floor(y0).astype(np.int64))
+    start = np.where(rng.random(K) < 0.2, rng.integers(0, 3, K), rng.integers(3, 400, K)).astype(np.int64)
+    weights = rng.uniform(0, 1000, (K, J))
+    at_start = rng.uniform(0.5, 2.0, (K, J))
+    args = dict(kind=kind, rows_x=rows_x, x0=x0, start=start, weights=weights, at_start=at_start,
+                increase=valuer.increase, first_increase=valuer.first_increase)
+    if kind == "reversion":
+        S = 36
+        stay = np.cumprod(1.0 - rng.uniform(0, 0.1, (K, S - 1)), axis=1)
+        exits = Exits(np.column_stack([np.ones(K), stay]),
+                      np.column_stack([np.zeros(K), np.cumsum(rng.uniform(0, 0.05, (K, S - 1)), axis=1)]),
+                      valuer.revalue)
+        args.update(rows_y=rows_y, y0=y0, growth=valuer.ctx.salary_index()[None, :].repeat(J, axis=0),
+                    exits=exits, service=rng.uniform(0.5, 30, K))
     fast = value_leg(ctx, mrows, **args)
     slow = value_leg_numpy(ctx, mrows, **args)
     np.testing.assert_allclose(fast.unit_pv, slow.unit_pv, rtol=1e-11, atol=1e-12)

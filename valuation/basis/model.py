@@ -168,6 +168,11 @@ class Basis(BaseModel):
         if chosen is not None and chosen not in self.tranches:
             raise ValueError(f"benefits.default_tranche \"{chosen}\" is not a declared tranche "
                              f"(allowed: {', '.join(names)})")
+        if self.spouse.pre_retirement_active == "prospective_to_nra" and self.benefits.design == "career_average":
+            raise ValueError(
+                'spouse.pre_retirement_active = "prospective_to_nra" counts service to normal retirement age, '
+                'which a career-average design (benefits.design) does not use: set it to "accrued_to_death"'
+            )
         for group in GROUPS:
             for sex in ("M", "F"):
                 if entry_key(self.mortality_entries, group, sex) is None:

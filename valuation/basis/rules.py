@@ -6,6 +6,7 @@ reported instead of silently ignored. Rates are annual effective decimals (0.05 
 
 from __future__ import annotations
 
+import calendar
 from typing import Literal
 
 from pydantic import BaseModel, ConfigDict, Field, field_validator, model_validator
@@ -72,12 +73,20 @@ class SpouseAssumption(BaseModel):
     ``proportion_married`` by member sex [fraction]; ``age_difference``: the male partner is older by this
     many years [years]; ``fraction``: spouse's pension / member's pension. The spouse is of the opposite
     sex (common practice). The default is no spouse's pension.
+
+    On a death before retirement the spouse's pension is fixed at the date of death and then receives the
+    increases in payment of its tranche. ``pre_retirement_active`` sets it for a member in service:
+    ``"accrued_to_death"`` (default), the pension accrued to the death on salary at death;
+    ``"prospective_to_nra"``, the pension with service to normal retirement age on salary at death,
+    attributed to service straight-line from joining to the death (final-salary designs only). A deferred
+    member's (and a leaver's) is the deferred pension revalued to the date of death.
     """
 
     model_config = STRICT
     proportion_married: dict[Sex, float] = Field(default_factory=_no_spouse)
     age_difference: float = Field(default=3.0, ge=-20.0, le=20.0)
     fraction: float = Field(default=0.0, ge=0.0, le=1.0)
+    pre_retirement_active: Literal["accrued_to_death", "prospective_to_nra"] = "accrued_to_death"
 
     @field_validator("proportion_married")
     @classmethod
@@ -92,11 +101,43 @@ class SpouseAssumption(BaseModel):
 
 
 class PaymentAssumption(BaseModel):
-    """How pensions are paid: ``frequency`` times a year, in ``advance`` or in ``arrears``."""
+    """How pensions are paid and increased.
+
+    ``frequency`` payments a year, in ``advance`` or in ``arrears``. ``increase_date``: the scheme's annual
+    pension increase date as "MM-DD" (e.g. "04-01" for 1 April); left out, increases fall on the
+    anniversaries of the valuation date. ``first_increase``: the first increase after a pension starts
+    (a retirement after the valuation date, or a spouse's pension on a death before retirement): ``"full"``
+    (default), ``"proportionate"`` (one twelfth of the increase for each month in payment) or
+    ``"none_until_full_year"``. Pensions already in payment receive full increases.
+    """
 
     model_config = STRICT
     frequency: Literal[1, 2, 4, 12] = 12
     timing: Literal["advance", "arrears"] = "advance"
+    increase_date: str | None = None
+    first_increase: Literal["full", "proportionate", "none_until_full_year"] = "full"
+
+    @field_validator("increase_date")
+    @classmethod
+    def _month_day(cls, v: str | None) -> str | None:
+        if v is None:
+            return v
+        text = v.strip()
+        parts = text.split("-")
+        ok = len(parts) == 2 and all(p.isdigit() and len(p) == 2 for p in parts)
+        month, day = (int(parts[0]), int(parts[1])) if ok else (0, 0)
+        if not ok or not 1 <= month <= 12 or not 1 <= day <= calendar.monthrange(2001, month)[1]:
+            raise ValueError('give the month and day as "MM-DD", e.g. "04-01" for 1 April '
+                             "(29 February is not allowed: it is missing in most years)")
+        return text
+
+    @property
+    def increase_month_day(self) -> tuple[int, int] | None:
+        """The increase date as (month, day), or None for the anniversary of the valuation date."""
+        if self.increase_date is None:
+            return None
+        month, day = self.increase_date.split("-")
+        return int(month), int(day)
 
 
 class CommutationAssumption(BaseModel):

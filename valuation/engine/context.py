@@ -4,7 +4,9 @@ All time-dependent quantities live on one monthly grid anchored at the valuation
 (months after the valuation date) stands for time ``tau / 12`` [years]. Payment dates, retirement dates and
 guarantee ends are rounded to that grid (to the nearest month; common practice), which makes the
 expected cash-flow vector exact on the grid, so present values, durations and the single equivalent
-discount rate of the cash flows agree with the member-by-member values to rounding.
+discount rate of the cash flows agree with the member-by-member values to rounding. Pension increases step
+once a year on the grid month of the scheme's increase date (:func:`increase_month`); revaluation in
+deferment runs continuously from the valuation date.
 
 References
 ----------
@@ -14,7 +16,10 @@ References
 
 from __future__ import annotations
 
+import calendar
 from dataclasses import dataclass, field
+from datetime import date
+from typing import Literal
 
 import numpy as np
 from numpy.typing import NDArray
@@ -28,33 +33,111 @@ MAX_AGE = 120
 GRID_MONTHS = 12 * (MAX_AGE + 1) + 12
 
 
-def increase_index(
-    kind: str, rate: float, floor: float, cap: float | None, inflation: RateCurve, months: int
-) -> NDArray[np.float64]:
-    """Index of a pension increasing in payment, on the monthly grid (1 at the valuation date).
+def increase_month(valuation_date: date, increase_date: tuple[int, int] | None) -> int:
+    """Grid month [months after the valuation date] of the first pension increase after the valuation date.
 
-    Increases are granted at each anniversary of the valuation date. A fixed rule grows by ``rate`` each
-    year; an inflation-linked rule grows by the year's forward inflation rate from the inflation curve,
-    limited to [floor, cap] year by year (the usual form of limited price indexation: common practice).
+    Increases fall on the scheme's increase date (month, day) every year; ``None`` means the anniversary of
+    the valuation date. The pension in the data includes any increase falling on the valuation date itself,
+    so the first increase is the first increase date strictly after it. Payments sit on the grid dates
+    valuation date + tau calendar months (the day kept, or the month's last day); an increase applies to
+    every payment on or after its date, so it steps at the first grid date on or after it, in months
+    1 to 12.
 
     References
     ----------
-    Forward rates from a spot curve: f_k = (1 + s_k)^k / (1 + s_{k-1})^(k-1) - 1, [DHW] section 11.3.
+    Common practice (annual increases to pensions in payment on a fixed date, paid from that date on).
     """
-    years = np.arange(0, months // 12 + 2)
+    if increase_date is None:
+        return 12
+    month, day = increase_date
+    vy, vm, vd = valuation_date.year, valuation_date.month, valuation_date.day
+    year = vy if (month, day) > (vm, vd) else vy + 1
+    months = (year - vy) * 12 + (month - vm)
+    grid_day = min(vd, calendar.monthrange(year, month)[1])
+    return months if grid_day >= day else months + 1
+
+
+def increase_steps(first_month: int, months: int) -> NDArray[np.int64]:
+    """Grid months on which increases fall: ``first_month``, then every 12 months, within the grid."""
+    return np.arange(first_month, months, 12, dtype=np.int64)
+
+
+def increase_index(
+    kind: str,
+    rate: float,
+    floor: float,
+    cap: float | None,
+    inflation: RateCurve,
+    months: int,
+    first_month: int = 12,
+) -> NDArray[np.float64]:
+    """Index of a pension increasing in payment, on the monthly grid (1 at the valuation date).
+
+    Increases are granted once a year on the grid months ``first_month``, ``first_month + 12``, ... (see
+    :func:`increase_month`; 12 = the anniversaries of the valuation date). A fixed rule grows by ``rate``
+    each time; an inflation-linked rule grows by the inflation of the year before the increase date, the
+    forward rate over [T - 1, T] from the inflation curve for an increase at T [years] (over the first year
+    [0, 1] when that year would start before the valuation date: the tool has no past inflation), limited
+    to [floor, cap] (the usual form of limited price indexation: common practice).
+
+    References
+    ----------
+    Forward rates from a spot curve: f = (1 + s_b)^b / (1 + s_a)^a - 1 over [a, b], [DHW] section 11.3.
+    """
+    steps = increase_steps(first_month, months)
     if kind == "none":
-        yearly = np.ones(len(years))
+        yearly = np.ones(len(steps) + 1)
     elif kind == "fixed":
-        yearly = (1.0 + rate) ** years.astype(float)
+        yearly = (1.0 + rate) ** np.arange(len(steps) + 1, dtype=float)
     else:
-        growth = inflation.growth_factors(years.astype(float))
-        fwd = growth[1:] / growth[:-1] - 1.0
+        begin = np.maximum(steps - 12, 0) / 12.0
+        points, where = np.unique(np.concatenate([begin, begin + 1.0]), return_inverse=True)
+        growth = inflation.growth_factors(points)
+        fwd = growth[where[len(steps):]] / growth[where[: len(steps)]] - 1.0
         fwd = np.maximum(fwd, floor)
         if cap is not None:
             fwd = np.minimum(fwd, cap)
         yearly = np.concatenate([[1.0], np.cumprod(1.0 + fwd)])
     tau = np.arange(months)
-    return yearly[tau // 12]
+    return yearly[(tau - first_month) // 12 + 1]
+
+
+FirstIncrease = Literal["full", "proportionate", "none_until_full_year"]
+
+
+def first_increase_factor(
+    index: NDArray[np.float64], first_month: int, rule: FirstIncrease
+) -> NDArray[np.float64] | None:
+    """Factor on a pension starting at grid month s from its first increase on, per start month.
+
+    ``index`` is :func:`increase_index` for each tranche, (J, M). A pension that starts at s has its first
+    increase on the first increase month T after s, having been paid for n = T - s months (1 to 12):
+
+    - ``full``: the whole year's increase (1 + r); no factor (``None`` is returned);
+    - ``proportionate``: n/12 of the year's increase, 1 + r n / 12, i.e. the factor (1 + r n / 12) / (1 + r);
+    - ``none_until_full_year``: no increase until a full year in payment, i.e. 1 / (1 + r) when n < 12.
+
+    The later increases are the scheme's full yearly increases. r is the increase the index grants at T.
+
+    References
+    ----------
+    Common practice (scheme rules on the first increase after retirement: a full increase, one twelfth of
+    the increase for each month in payment, or none until the pension has been paid for a year).
+    """
+    if rule == "full":
+        return None
+    J, M = index.shape
+    s = np.arange(M)
+    nxt = np.where(s < first_month, first_month, first_month + 12 * ((s - first_month) // 12 + 1))
+    n = nxt - s
+    on_grid = nxt < M
+    at = np.minimum(nxt, M - 1)
+    ratio = np.where(on_grid, index[:, at] / index[:, at - 1], 1.0)  # 1 + r at the first increase
+    if rule == "proportionate":
+        factor = (1.0 + (ratio - 1.0) * n / 12.0) / ratio
+    else:
+        factor = np.where(n < 12, 1.0 / ratio, 1.0)
+    return np.asarray(factor, dtype=np.float64)
 
 
 def revaluation_index(
@@ -139,6 +222,8 @@ class Context:
     fractional: str
     v: NDArray[np.float64] = field(init=False)
     months: int = GRID_MONTHS
+    #: Grid month of the first pension increase (see :func:`increase_month`); later ones every 12 months.
+    increase_month: int = 12
 
     def __post_init__(self) -> None:
         self.v = self.discount.discount_factors(np.arange(self.months) / 12.0)

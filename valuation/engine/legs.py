@@ -6,7 +6,13 @@ A *leg* is a stream of pension payments on the monthly grid. Two kinds cover eve
   pension in payment, the retirement month for a deferred or active member) until an optional stop month
   (a child's pension end age).
 - ``reversion``: paid to a spouse after the member's death while the spouse is alive,
-  tp_y (1 - tp_x) [DHW eq. 9.18, independent lives], from the end of any guarantee.
+  tp_y (1 - tp_x) [DHW eq. 9.18, independent lives], from the end of any guarantee. For a death at or after
+  the start month the spouse's pension follows the member's pension; for a death before it (a deferred or
+  active member), the amount is fixed at the death and from then on receives the increases in payment of
+  its tranche, so the expected payment at tau sums over the month of death d:
+  tp_y [sum_{d < start, d <= tau} (F(d) - F(d-1)) G(d) I(d, tau) + (F(tau) - F(start - 1)) A I(start, tau)],
+  F(t) = 1 - tp_x, G the amount fixed at death, A the amount at the start, I(s, tau) the increases of a
+  pension starting at s.
 
 Both are computed on *keys*: the distinct combinations of survival row, exact age and dates. Members that
 share a key share every unit value; the engine multiplies by each member's amounts afterwards.
@@ -29,6 +35,37 @@ from valuation.survival import lx_at
 
 #: Keys are processed in blocks of at most this many cells (keys x payment dates) to bound memory.
 BLOCK_CELLS = 4_000_000
+#: Withdrawals happen at mid-year: grid months 6, 18, 30, ... (see ``project.Valuer._active``).
+EXIT_OFFSET = 6
+
+
+def exits_before(d: NDArray[np.int64] | int) -> NDArray[np.int64] | int:
+    """Number of mid-year exit dates strictly before grid month ``d`` (d >= 0)."""
+    return (d + (12 - EXIT_OFFSET - 1)) // 12
+
+
+def next_increase(s: NDArray[np.int64], first_month: int) -> NDArray[np.int64]:
+    """The first increase month strictly after grid month ``s`` (increases on ``first_month`` + 12 k)."""
+    return np.where(s < first_month, first_month, first_month + 12 * ((s - first_month) // 12 + 1))
+
+
+@dataclass
+class Exits:
+    """Withdrawal before the start, for the amount of a spouse's pension on a death before it (actives).
+
+    A member who dies in grid month d has passed ``m = exits_before(d)`` exit dates. ``in_service[k, m]``
+    is the probability of being still in service then; the spouse's pension is then ``growth[j, d]`` (per
+    unit of the member's base amount). ``left[k, m]`` sums, over those exit dates, the probability of
+    leaving on it times the leaver's pension factor at exit divided by ``growth_left`` at exit; the spouse of
+    a leaver gets that pension revalued to the death: ``left[k, m] * growth_left[j, d]``.
+    """
+
+    in_service: NDArray[np.float64]  # (K, S)
+    left: NDArray[np.float64]  # (K, S)
+    growth_left: NDArray[np.float64]  # (J, M)
+
+    def take(self, idx: NDArray[np.int64]) -> "Exits":
+        return Exits(self.in_service[idx], self.left[idx], self.growth_left)
 
 
 @dataclass
@@ -73,6 +110,22 @@ def payment_window(
     return first.astype(np.int64), np.minimum(end, ctx.months)
 
 
+def _death_amount(
+    growth: NDArray[np.float64], j: int, d: NDArray[np.int64], s: NDArray[np.int64],
+    exits: Exits | None, service: NDArray[np.float64] | None, idx: NDArray[np.int64],
+) -> NDArray[np.float64]:
+    """Spouse's pension fixed at a death in grid month d before the start, per unit of base, (Kb, D)."""
+    g = growth[j][d][None, :] * np.ones((len(idx), 1))
+    if service is not None:
+        # prospective pension to the start, attributed straight-line from joining to the death
+        svc = service[idx, None]
+        g = g * (svc + s[:, None] / 12.0) / (svc + np.maximum(d, 1)[None, :] / 12.0)
+    if exits is not None:
+        m = np.minimum(exits_before(d), exits.in_service.shape[1] - 1)
+        g = g * exits.in_service[idx][:, m] + exits.growth_left[j][d][None, :] * exits.left[idx][:, m]
+    return g
+
+
 def value_leg_numpy(
     ctx: Context,
     mrows: MortalityRows,
@@ -84,7 +137,10 @@ def value_leg_numpy(
     weights: NDArray[np.float64],
     at_start: NDArray[np.float64],
     increase: NDArray[np.float64],
+    first_increase: NDArray[np.float64] | None = None,
     growth: NDArray[np.float64] | None = None,
+    exits: Exits | None = None,
+    service: NDArray[np.float64] | None = None,
     stop: NDArray[np.int64] | None = None,
     guarantee: NDArray[np.int64] | None = None,
     rows_y: NDArray[np.int64] | None = None,
@@ -107,10 +163,23 @@ def value_leg_numpy(
         times any share kept after commutation), (K, J).
     increase
         In-payment increase index per tranche on the monthly grid, (J, M); the amount at month tau >= start
-        is base * at_start * increase[tau] / increase[start].
+        is base * at_start * increase[tau] / increase[start] (times ``first_increase``).
+    first_increase
+        Factor on a pension starting at month s from its first increase (the first increase month after s,
+        ``ctx.increase_month`` + 12 k) on, per tranche and start month, (J, M); None for a full first
+        increase. Applies to the pension from ``start`` and to a spouse's pension starting at a death
+        before ``start``.
     growth
-        Reversions only: the factor on the base amount for a death before ``start`` at month tau, (J, M)
-        (revaluation or salary growth to the date of payment); ignored when start is 0.
+        Reversions only: the spouse's pension, per unit of base, fixed at a death in month d < start (d is
+        the grid month ending the month of death), (J, M): revaluation, or salary growth, to the death.
+        From d on it receives the increases in payment of its tranche. None when no start is after 0.
+    exits
+        Reversions only: withdrawal before the start (actives), see :class:`Exits`; None for none.
+    service
+        Reversions only: service to date [years], (K,), for a prospective spouse's pension on a death in
+        service: the amount ``growth`` is multiplied by (service + start / 12) / (service + d / 12), the
+        pension with service to the start attributed straight-line from joining to the death; None for the
+        pension accrued to date.
     stop
         Own legs: the first month with no payment (a child's pension end age), (K,); None for life.
     guarantee
@@ -121,7 +190,8 @@ def value_leg_numpy(
 
     References
     ----------
-    [DHW] eq. (5.12) and section 9.5; guaranteed annuities [DHW] section 5.6.
+    [DHW] eq. (5.12) and section 9.5; guaranteed annuities [DHW] section 5.6; attribution of a benefit on
+    death to service, IAS 19 *Employee Benefits* para 70.
     """
     K, J = weights.shape
     M = ctx.months
@@ -136,6 +206,7 @@ def value_leg_numpy(
     order = np.argsort(count, kind="stable")
     lx0 = _l(mrows, rows_x, x0, ctx.fractional)
     ly0 = _l(mrows, rows_y, y0, ctx.fractional) if kind == "reversion" else None  # type: ignore[arg-type]
+    e = ctx.increase_month
 
     sorted_count = count[order]
     pos = 0
@@ -155,21 +226,51 @@ def value_leg_numpy(
         t_years = tau / 12.0
         lx = _l(mrows, rows_x[idx, None], x0[idx, None] + t_years, ctx.fractional)
         px = lx / lx0[idx, None]
+        s_idx = start[idx]
+        pre_start = None
         if kind == "own":
             surv = np.where(tau < guar[idx, None], 1.0, px)
         else:
             ly = _l(mrows, rows_y[idx, None], y0[idx, None] + t_years, ctx.fractional)  # type: ignore[index]
             py = ly / ly0[idx, None]  # type: ignore[index]
-            surv = py * (1.0 - px) * (tau >= guar[idx, None])
+            # deaths from the start month on: F(tau) - F(start - 1), F(t) = 1 - tp_x, F(-1) = F(0) = 0
+            l_before = _l(mrows, rows_x[idx], x0[idx] + np.maximum(s_idx - 1, 0) / 12.0, ctx.fractional)
+            f_before = np.where(s_idx >= 1, 1.0 - l_before / lx0[idx], 0.0)
+            after = (tau >= s_idx[:, None]) * (tau >= guar[idx, None])
+            surv = py * ((1.0 - px) - f_before[:, None]) * after
+            if growth is not None and np.any(s_idx >= 2):
+                pre_start = np.where(valid, py * (tau >= guar[idx, None]), 0.0) / ctx.frequency
         surv = np.where(valid, surv, 0.0) / ctx.frequency
         disc = ctx.v[tau]
-        s_idx = start[idx]
+        if first_increase is not None:
+            from_first = tau >= next_increase(s_idx, e)[:, None]
+        if pre_start is not None:
+            # deaths in months d = 1 .. start - 1, fixed at G(d), increased from d on
+            D = int(s_idx.max())
+            d = np.arange(D)
+            l_d = _l(mrows, rows_x[idx, None], x0[idx, None] + d[None, :] / 12.0, ctx.fractional)
+            f_d = 1.0 - l_d / lx0[idx, None]
+            dF = np.zeros_like(f_d)
+            dF[:, 1:] = np.diff(f_d, axis=1)
+            dF *= (d[None, :] >= 1) & (d[None, :] < s_idx[:, None])
+            last_pre = np.minimum(tau, s_idx[:, None] - 1)  # deaths d <= tau and d < start
+            prev_step = np.where(tau >= e, e + 12 * ((tau - e) // 12), -1)  # last increase month <= tau
+            had_first = np.minimum(prev_step - 1, s_idx[:, None] - 1)  # deaths before it had their first
         for jj in range(J):
             inc = increase[jj]
             amount = at_start[idx, jj, None] * inc[tau] / inc[s_idx, None]
-            if kind == "reversion" and growth is not None:
-                amount = np.where(tau < s_idx[:, None], growth[jj][tau], amount)
+            if first_increase is not None:
+                amount = np.where(from_first, amount * first_increase[jj][s_idx][:, None], amount)
             paid = surv * amount
+            if pre_start is not None:
+                unit = dF * _death_amount(growth, jj, d, s_idx, exits, service, idx) / inc[d][None, :]  # type: ignore[arg-type]
+                cum = np.column_stack([np.zeros(len(idx)), np.cumsum(unit, axis=1)])  # cum[:, n] = sum d < n
+                pre = np.take_along_axis(cum, np.maximum(last_pre, -1) + 1, axis=1)
+                if first_increase is not None:
+                    cum_adj = np.column_stack([np.zeros(len(idx)),
+                                               np.cumsum(unit * (first_increase[jj][d] - 1.0), axis=1)])
+                    pre = pre + np.take_along_axis(cum_adj, np.maximum(had_first, -1) + 1, axis=1)
+                paid = paid + pre_start * inc[tau] * pre
             unit_pv[idx, jj] = (paid * disc).sum(axis=1)
             w = weights[idx, jj]
             if np.any(w):
@@ -188,7 +289,10 @@ def value_leg(
     weights: NDArray[np.float64],
     at_start: NDArray[np.float64],
     increase: NDArray[np.float64],
+    first_increase: NDArray[np.float64] | None = None,
     growth: NDArray[np.float64] | None = None,
+    exits: Exits | None = None,
+    service: NDArray[np.float64] | None = None,
     stop: NDArray[np.int64] | None = None,
     guarantee: NDArray[np.int64] | None = None,
     rows_y: NDArray[np.int64] | None = None,
@@ -198,7 +302,8 @@ def value_leg(
 
     References
     ----------
-    [DHW] eq. (5.12) and section 9.5; guaranteed annuities [DHW] section 5.6.
+    [DHW] eq. (5.12) and section 9.5; guaranteed annuities [DHW] section 5.6; attribution of a benefit on
+    death to service, IAS 19 *Employee Benefits* para 70.
     """
     from valuation.engine.kernels import leg_kernel
 
@@ -213,16 +318,27 @@ def value_leg(
     first, end = payment_window(ctx, kind, x0, start, stop, y0)
     ry = rows_y if rows_y is not None else np.zeros(K, dtype=np.int64)
     yy = y0 if y0 is not None else np.zeros(K)
-    grow = growth if growth is not None else np.ones((J, M))
+    dummy = np.ones((1, 1))
+    grow = growth if growth is not None else dummy
+    adj = first_increase if first_increase is not None else dummy
+    in_service = exits.in_service if exits is not None else dummy
+    left = exits.left if exits is not None else dummy
+    grow_left = exits.growth_left if exits is not None else dummy
+    svc = service if service is not None else np.zeros(1)
     blocks = np.zeros((max(1, min(K // 256, 16)), M))
+    f64 = np.float64
     leg_kernel(
         mrows.lx, mrows.q_rows, ctx.fractional == "udd", reversion, int(ctx.frequency), int(ctx.step),
-        np.ascontiguousarray(rows_x, dtype=np.int64), np.ascontiguousarray(x0, dtype=np.float64),
-        np.ascontiguousarray(ry, dtype=np.int64), np.ascontiguousarray(yy, dtype=np.float64),
+        np.ascontiguousarray(rows_x, dtype=np.int64), np.ascontiguousarray(x0, dtype=f64),
+        np.ascontiguousarray(ry, dtype=np.int64), np.ascontiguousarray(yy, dtype=f64),
         first.astype(np.int64), end.astype(np.int64), np.ascontiguousarray(start, dtype=np.int64), guar,
-        np.ascontiguousarray(at_start, dtype=np.float64), np.ascontiguousarray(increase, dtype=np.float64),
-        np.ascontiguousarray(grow, dtype=np.float64), growth is not None,
-        ctx.v, np.ascontiguousarray(weights, dtype=np.float64), unit_pv, blocks,
+        np.ascontiguousarray(at_start, dtype=f64), np.ascontiguousarray(increase, dtype=f64),
+        np.ascontiguousarray(adj, dtype=f64), first_increase is not None, int(ctx.increase_month),
+        np.ascontiguousarray(grow, dtype=f64), growth is not None,
+        np.ascontiguousarray(in_service, dtype=f64), np.ascontiguousarray(left, dtype=f64),
+        np.ascontiguousarray(grow_left, dtype=f64), exits is not None,
+        np.ascontiguousarray(svc, dtype=f64), service is not None,
+        ctx.v, np.ascontiguousarray(weights, dtype=f64), unit_pv, blocks,
     )
     return LegResult(unit_pv, blocks.sum(axis=0))
 

@@ -8,11 +8,20 @@ unit values multiplied back by each member's amounts. Benefit rules by status:
   after the guarantee.
 - dependant: own pension for life, or to ``pension_end_age`` (a child's pension).
 - deferred: pension revalued to retirement per tranche, part commuted for cash at retirement, then paid for
-  life with increases; a spouse's pension on death before or after retirement.
+  life with increases; a spouse's pension on death before or after retirement. On a death before
+  retirement the spouse's pension is fixed at the death (the pension revalued to the date of death) and
+  then receives the increases in payment of its tranche.
 - active: projected unit credit (IAS 19 paras 67-69): accrued service times accrual rate times salary
   projected to the date of exit (or the accrued pension for career-average designs), exits by withdrawal
   (to a deferred pension revalued to retirement) or retirement; a spouse's pension and an optional lump sum
-  on death in service.
+  on death in service. A spouse's pension on a death before retirement is fixed at the death: for a member
+  who has left, the deferred pension revalued to the death; in service, the pension accrued to death on
+  salary at death, or (basis choice) the prospective pension with service to normal retirement age
+  attributed straight-line from joining to the death (IAS 19 para 70); then increases in payment.
+- increases in payment fall on the scheme's increase date; the first increase of a pension that starts
+  after the valuation date (a retirement, or a spouse's pension on a death before retirement) is full,
+  proportionate to the months in payment, or none until a full year (basis choice). Pensions in payment
+  at the valuation date (and their spouses' pensions) receive full increases.
 
 References
 ----------
@@ -32,9 +41,17 @@ import numpy as np
 import polars as pl
 from numpy.typing import NDArray
 
-from valuation.engine.context import MAX_AGE, Context, MortalityRows, increase_index, revaluation_index
+from valuation.engine.context import (
+    MAX_AGE,
+    Context,
+    MortalityRows,
+    first_increase_factor,
+    increase_index,
+    increase_month,
+    revaluation_index,
+)
 from valuation.engine.kernels import death_in_service_kernel
-from valuation.engine.legs import dedupe, sum_by_key, value_leg
+from valuation.engine.legs import Exits, dedupe, sum_by_key, value_leg
 from valuation.engine.results import STATUSES
 from valuation.engine.scenario import BASE, GROUPS, SEXES, Scenario, curves, mortality_for
 from valuation.survival import age_at, lx_at
@@ -94,6 +111,7 @@ class Valuer:
         self.valuation_date = np.datetime64(vd, "D")
         self.year = vd.year
         disc, infl, growth = curves(basis, scenario)
+        first_month = increase_month(vd, basis.payment.increase_month_day)
         self.ctx = Context(
             valuation_year=self.year,
             frequency=int(basis.payment.frequency),
@@ -102,13 +120,17 @@ class Valuer:
             inflation=infl,
             salary_growth=growth,
             fractional=basis.fractional_age,
+            increase_month=first_month,
         )
         self.tranches = list(basis.tranches)
         M = self.ctx.months
         self.increase = np.vstack(
-            [increase_index(r.increase.kind, r.increase.rate, r.increase.floor, r.increase.cap, infl, M)
+            [increase_index(r.increase.kind, r.increase.rate, r.increase.floor, r.increase.cap, infl, M,
+                            first_month)
              for r in basis.tranches.values()]
         )
+        #: factor from the first increase on, for pensions starting after the valuation date (None: full)
+        self.first_increase = first_increase_factor(self.increase, first_month, basis.payment.first_increase)
         self.revalue = np.vstack(
             [revaluation_index(r.revaluation.kind, r.revaluation.rate, r.revaluation.floor, r.revaluation.cap, infl, M)
              for r in basis.tranches.values()]
@@ -187,7 +209,11 @@ class Valuer:
         at_start = np.ones((N, J))
         at_start_sp = np.ones((N, J))
         growth: NDArray[np.float64] | None = None
+        exits: tuple[Exits, NDArray[np.int64]] | None = None
+        service: NDArray[np.float64] | None = None
         with_spouse = status != "dependant"
+        # pensions that start after the valuation date take the first-increase rule; those in payment do not
+        first_inc = self.first_increase if status in ("deferred", "active") else None
 
         if status == "pensioner":
             if "guarantee_end" in df.columns:
@@ -207,7 +233,9 @@ class Valuer:
                 at_start_sp = self.revalue[:, start].T  # (N, J)
                 growth = self.revalue
             else:
-                base, at_start_sp, growth, dis_lump, dis_cf, dis_unit = self._active(df, x0, rows_x, start)
+                base, at_start_sp, growth, exits, dis_lump, dis_cf, dis_unit = self._active(df, x0, rows_x, start)
+                if basis.spouse.pre_retirement_active == "prospective_to_nra":
+                    service = df["service_years"].fill_null(0.0).to_numpy().astype(float)
                 lump += dis_lump
                 cash += dis_cf
             at_start = at_start_sp * keep
@@ -230,7 +258,8 @@ class Valuer:
         res = value_leg(
             ctx, self.mrows, kind="own", rows_x=rows_x[first], x0=x0[first], start=start[first],
             weights=sum_by_key(inv, len(first), base), at_start=at_start[first], increase=self.increase,
-            stop=None if stop is None else stop[first], guarantee=None if guar is None else guar[first],
+            first_increase=first_inc, stop=None if stop is None else stop[first],
+            guarantee=None if guar is None else guar[first],
         )
         own = base * res.unit_pv[inv]
         cash += res.cashflow
@@ -264,11 +293,16 @@ class Valuer:
             keycols = [rows_x, x0, rows_y, y0, start] + [at_start_sp[:, j] for j in range(J)]
             if guar is not None:
                 keycols.append(guar)
+            if service is not None:
+                keycols.append(service)
             first, inv = dedupe(*keycols)
             res = value_leg(
                 ctx, self.mrows, kind="reversion", rows_x=rows_x[first], x0=x0[first], start=start[first],
                 weights=sum_by_key(inv, len(first), weight), at_start=at_start_sp[first], increase=self.increase,
-                growth=growth, guarantee=None if guar is None else guar[first], rows_y=rows_y[first], y0=y0[first],
+                first_increase=first_inc, growth=growth,
+                exits=None if exits is None else exits[0].take(exits[1][first]),
+                service=None if service is None else service[first],
+                guarantee=None if guar is None else guar[first], rows_y=rows_y[first], y0=y0[first],
             )
             spouse = weight * res.unit_pv[inv]
             cash += res.cashflow
@@ -277,14 +311,18 @@ class Valuer:
     def _active(self, df: pl.DataFrame, x0: NDArray, rows_x: NDArray, start: NDArray) -> tuple:
         """Projected unit credit for actives.
 
-        Returns the base amounts (N, J), the factor on them at retirement (N, J), the growth index for a
-        spouse's pension on death before retirement (J, M), and the death-in-service lump sums (PV per member
-        and cash flows).
+        Returns the base amounts (N, J), the factor on them at retirement (N, J), the factor on them for a
+        spouse's pension fixed at a death in service before retirement (J, M), the withdrawal before a death
+        (:class:`~valuation.engine.legs.Exits` by key, and each member's key; None for career-average
+        designs), and the death-in-service lump sums (PV per member, cash flows, next year's unit).
 
         Withdrawal and death are independent decrements: the member survives on the mortality table alone,
-        and the withdrawal hazard decides the form of the benefit at retirement (common practice). A leaver
-        in year i (at mid-year) keeps accrual x service x salary projected to i + 1/2, revalued in deferment
-        to retirement with the default tranche's rule [DHW 10.5-10.6].
+        and the withdrawal hazard decides the form of the benefit (common practice). A leaver in year i (at
+        mid-year) keeps accrual x service x salary projected to i + 1/2, revalued in deferment to retirement,
+        or to an earlier death for the spouse's pension, with the default tranche's rule [DHW 10.5-10.6].
+        A member still in service at death leaves a spouse's pension on the pension accrued to date on
+        salary at death (the unit credit, IAS 19 paras 67-70). Career-average pensions revalue alike in and
+        out of service, so withdrawal does not change them.
         """
         basis, ctx = self.basis, self.ctx
         N, J = df.height, len(self.tranches)
@@ -314,6 +352,7 @@ class Valuer:
         stay_before = np.column_stack([np.ones(K), stay[:, :-1]]) if n_int else np.ones((K, 0))
         stay_to_ret = stay[:, -1] if n_int else np.ones(K)
 
+        exits: tuple[Exits, NDArray[np.int64]] | None = None
         if basis.benefit_design == "career_average":
             base = np.column_stack([df[f"pension_{t}"].fill_null(0.0).to_numpy().astype(float) for t in self.tranches])
             at_ret = self.revalue[:, start].T
@@ -328,6 +367,12 @@ class Valuer:
             at_ret = np.zeros((N, J))
             at_ret[:, dj] = factor[inv]
             growth = np.vstack([ctx.salary_index()] * J)
+            # a death in month d follows m = exits_before(d) exit dates: in service with stay after m
+            # exits; a leaver's pension revalued from exit to the death
+            in_service = np.column_stack([np.ones(K), stay])
+            left_unit = stay_before * w * (1.0 + g) ** mid[None, :] / rev[mid_m][None, :]
+            left = np.column_stack([np.zeros(K), np.cumsum(left_unit, axis=1)])
+            exits = (Exits(in_service, left, np.vstack([rev] * J)), inv)
 
         # Lump sum on death in service: multiple x salary projected to the mid-year of death [DHW 10.8].
         # It does not grow with service, so it is attributed to service straight-line from joining to the
@@ -348,4 +393,4 @@ class Valuer:
                                     mid, np.ascontiguousarray(v_mid), dis_unit, flows)
             dis_pv = service * dis_unit  # the attributed part: service / (s + t) of each amount
             np.add.at(dis_cf, mid_m, flows)
-        return base, at_ret, growth, dis_pv, dis_cf, dis_unit
+        return base, at_ret, growth, exits, dis_pv, dis_cf, dis_unit

@@ -111,21 +111,35 @@ def cashflow_measures(cash: np.ndarray, curve: Any) -> dict[str, float]:
 
 
 def _yearly(cash: np.ndarray, curve: Any) -> pl.DataFrame:
+    """Expected payments by projection year: nominal by status and in total, the year's discount factor and
+    the discounted total.
+
+    The payments sit on the monthly grid, so a year's discounted total is the sum of its monthly payments
+    each discounted to the valuation date. ``discount_factor`` is that sum divided by the year's nominal
+    total (the payment-weighted factor of the year's months), so that on every row
+    total x discount_factor = discounted_total, and the discounted totals add up to the liability. A year
+    with no payments shows the mid-year factor.
+
+    References
+    ----------
+    PV = sum_t v^t CF_t [DHW 2013, section 2.2]; IAS 19 para 147(c) (maturity profile of the obligation).
+    """
     months = cash.shape[1]
     n_years = months // 12
     by_year = cash[:, : n_years * 12].reshape(len(STATUSES), n_years, 12).sum(axis=2)
     v = curve.discount_factors(_month_times(months))[: n_years * 12]
-    disc = (cash[:, : n_years * 12] * v).reshape(len(STATUSES), n_years, 12).sum(axis=2)
+    disc_total = (cash[:, : n_years * 12].sum(axis=0) * v).reshape(n_years, 12).sum(axis=1)
     total = by_year.sum(axis=0)
     last = int(np.flatnonzero(total > 1e-9).max()) + 1 if np.any(total > 1e-9) else 1
+    total, disc_total = total[:last], disc_total[:last]
+    mid_year = curve.discount_factors(np.arange(last) + 0.5)
+    factor = np.divide(disc_total, total, out=mid_year.copy(), where=total > 0)
     data: dict[str, Any] = {"year": np.arange(1, last + 1)}
     for i, st in enumerate(STATUSES):
         data[st] = by_year[i, :last]
-    data["total"] = total[:last]
-    data["discount_factor"] = curve.discount_factors(np.arange(last) + 0.5)
-    for i, st in enumerate(STATUSES):
-        data[f"discounted_{st}"] = disc[i, :last]
-    data["discounted_total"] = disc.sum(axis=0)[:last]
+    data["total"] = total
+    data["discount_factor"] = factor
+    data["discounted_total"] = disc_total
     return pl.DataFrame(data)
 
 
