@@ -74,12 +74,20 @@ def test_utf16_file_is_refused_not_misread(tmp_path: Path) -> None:
         (HEADER + GOOD + 'A2,"pensioner,F,1950-06-01,6000\nA3,active,M,1980-01-01,0\n',
          "row 3 has a double quote out of place"),
         ("", "the file is empty"),
+        ("\n" + HEADER + GOOD, "line 1 is empty"),
     ],
 )
 def test_broken_csv_says_which_row(tmp_path: Path, text: str, reason: str) -> None:
     path = tmp_path / "m.csv"
     path.write_text(text, encoding="utf-8")
     assert error_of(path).reason.startswith(reason)
+
+
+def test_lines_ended_by_a_carriage_return_alone(tmp_path: Path) -> None:
+    """Classic Mac OS text ends lines with CR alone; read as CSV it would be one long header."""
+    path = tmp_path / "m.csv"
+    path.write_bytes((HEADER + GOOD).replace("\n", "\r").encode())
+    assert error_of(path).reason == "the lines of the file end with a carriage return alone (an old Mac text format)"
 
 
 def test_ragged_row_found_while_streaming(tmp_path: Path) -> None:

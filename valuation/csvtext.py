@@ -40,6 +40,17 @@ def utf16_problem(head: bytes) -> CsvProblem | None:
     return None
 
 
+def head_problem(head: bytes) -> CsvProblem | None:
+    """A problem seen in the file's first bytes: UTF-16 text, or lines ended by a carriage return alone."""
+    found = utf16_problem(head)
+    if found is None and b"\r" in head and b"\n" not in head:
+        found = CsvProblem(
+            "the lines of the file end with a carriage return alone (an old Mac text format)",
+            "save the file again as 'CSV UTF-8 (Comma delimited)', which ends lines the usual way",
+        )
+    return found
+
+
 def first_non_utf8(path: Path) -> tuple[int, int] | None:
     """Line number (from 1) and value of the first byte of ``path`` that is not valid UTF-8, or ``None``.
 
@@ -66,7 +77,7 @@ def encoding_problem(path: Path) -> CsvProblem | None:
     """A problem if the file is not UTF-8 text: UTF-16, or the line of its first byte that is not UTF-8."""
     with path.open("rb") as fh:
         head = fh.read(4096)
-    found = utf16_problem(head)
+    found = head_problem(head)
     if found is not None:
         return found
     bad = first_non_utf8(path)
@@ -118,6 +129,8 @@ def structure_problem(path: Path) -> CsvProblem | None:
             )
     if width is None:
         return CsvProblem("the file is empty", "give a header row naming the columns, then one row a record")
+    if width == 0:
+        return CsvProblem("line 1 is empty", "put the header row (the column names) on the first line", row=1)
     return None
 
 

@@ -8,7 +8,7 @@ import numpy as np
 import polars as pl
 
 from valuation.basis.rules import RateSpec
-from valuation.csvtext import csv_problem, utf16_problem
+from valuation.csvtext import csv_problem, head_problem
 from valuation.errors import BasisError
 
 
@@ -29,7 +29,7 @@ def read_curve_file(path: Path, key: str) -> tuple[np.ndarray, np.ndarray]:
             raise BasisError(f"cannot read the curve file for '{key}' as CSV", file=path, fix=fix) from exc
         raise BasisError(f"curve file for '{key}': {problem.reason}", file=path, fix=problem.fix) from exc
     with path.open("rb") as fh:
-        found = utf16_problem(fh.read(4096))
+        found = head_problem(fh.read(4096))
     if found is not None:
         raise BasisError(f"curve file for '{key}': {found.reason}", file=path, fix=found.fix)
     df = df.rename({c: c.strip().lower() for c in df.columns})

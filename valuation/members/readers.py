@@ -21,7 +21,7 @@ import pyarrow as pa
 import pyarrow.parquet as pq
 
 from valuation.basis.mapping import ColumnMapping
-from valuation.csvtext import CsvProblem, csv_problem, header_fields, utf16_problem
+from valuation.csvtext import CsvProblem, csv_problem, head_problem, header_fields
 from valuation.errors import DataError
 from valuation.members.schema import OUR_COLUMNS, TRANCHE_PREFIX
 
@@ -78,17 +78,19 @@ def _csv_headers(p: Path) -> list[str]:
     """The display headers of a CSV file (see :func:`display_headers`), read by us, not by polars."""
     with p.open("rb") as fh:
         head = fh.read(4096)
-    problem = utf16_problem(head)
+    problem = head_problem(head)
+    fields = None
     if problem is None:
         try:
             fields = header_fields(p)
         except (UnicodeDecodeError, csv.Error):
             problem = csv_problem(p)
-            fields = None
         else:
             if fields is None:
                 problem = CsvProblem("the file is empty",
                                      "give a header row naming the columns, then one row a record")
+            elif not fields:
+                problem = CsvProblem("line 1 is empty", "put the header row (the column names) on the first line")
     if problem is not None or fields is None:
         raise _csv_unreadable(p, problem)
     return display_headers(fields, p)
@@ -156,6 +158,8 @@ def read_text_frame(path: str | Path) -> pl.DataFrame:
             df = pl.read_csv(p, infer_schema=False, encoding="utf8")
         except (pl.exceptions.PolarsError, OSError, ValueError) as exc:
             raise _csv_unreadable(p) from exc
+        if df.width != len(headers):
+            raise _csv_unreadable(p)
         df = _named(df, headers)
     elif kind == "xlsx":
         df = _read_xlsx(p)
@@ -268,6 +272,8 @@ def iter_text_frames(path: str | Path, chunk_rows: int) -> Iterator[pl.DataFrame
             pf = pq.ParquetFile(p)
             batches = (pl.DataFrame(pl.from_arrow(b)) for b in pf.iter_batches(batch_size=chunk_rows))
         for frame in _rebatch(batches, chunk_rows):
+            if frame.width != len(headers):
+                raise _csv_unreadable(p) if kind == "csv" else _parquet_unreadable(p)
             yield _named(frame, headers).with_columns(pl.all().cast(pl.String))
     except (pl.exceptions.PolarsError, OSError, ValueError, pa.ArrowException) as exc:
         raise (_csv_unreadable(p) if kind == "csv" else _parquet_unreadable(p)) from exc
