@@ -166,3 +166,20 @@ def test_formula_like_text_stays_literal(tmp_path: Path) -> None:
     text = out.read_text(encoding="utf-8")
     assert "@SUM(A1)" in text and "+cmd" in text
     assert pl.read_csv(out, infer_schema=False)["member_id"].to_list() == ["@SUM(A1)"]
+
+
+def test_retirement_age_warning_states_what_the_valuation_does(tmp_path: Path) -> None:
+    """The warning says a member past the retirement age is valued as retiring at the valuation date: a
+    deferred member aged 70 with retirement age 60 or 69 is valued exactly as a pensioner of the same age,
+    sex and pension (the engine starts the pension at max(retirement age - age, 0), engine/project.py)."""
+    from valuation.engine.run import value_members
+
+    rows = [{"member_id": k, "status": s, "sex": "F", "date_of_birth": "1955-01-01", "pension": "1000",
+             "retirement_age": nra} for k, s, nra in (("D1", "deferred", "60"), ("D2", "deferred", "69"),
+                                                       ("P1", "pensioner", None))]
+    md = read_members(write_csv(tmp_path / "m.csv", rows), BASIS)
+    assert BASIS.mortality_key("deferred", "F") == BASIS.mortality_key("pensioner", "F")
+    assert md.exceptions.filter(pl.col("column") == "retirement_age")["row"].to_list() == [2, 3]
+    value = dict(value_members(md, BASIS, sensitivities=False).members.select("member_id", "liability").iter_rows())
+    assert value["D1"] == pytest.approx(value["P1"], rel=1e-12)
+    assert value["D2"] == pytest.approx(value["P1"], rel=1e-12)
