@@ -38,9 +38,8 @@ def test_html_shows_each_tables_own_figures_and_a_dash_for_actives() -> None:
     experience = _run()
     rows = _by_table_rows(render_html(make_result(), experience))
     header, body = rows[0], {(r[0], r[1]): r for r in rows[1:]}
-    assert header == ["Members", "Sex", "Now (% of table)", "Actual (pension ceasing)",
-                      "Expected (pension ceasing)", "A/E by pension", "Range", "Credibility",
-                      "Pointed to by the experience"]
+    assert header == ["Members", "Sex", "Now", "Actual", "Expected", "A/E", "Range", "Credibility",
+                      "Points to"]
     pens = next(t for t in experience.implied["by_table"] if t["table"] == "mortality.pensioner.M")
     # formatted independently of the report's helpers: whole percent, as the page prints them
     assert body[("Pensioners", "Men")][2:] == [

@@ -242,15 +242,18 @@ def implied_notes(implied: dict[str, Any]) -> list[str]:
     return out
 
 
+_SHORT_GROUP = {"pensioner": "pensioners", "dependant": "dependants", "deferred": "deferred", "active": "actives"}
+
+
 def table_members(row: dict[str, Any]) -> str:
-    """Who an experience table row covers, in words: ``Pensioners``, ``Default table (deferred members,
-    active members)``, ``All members``."""
+    """Who an experience table row covers, in words: ``Pensioners``, ``Default table: deferred,
+    actives``, ``All members``."""
     group = str(row.get("group"))
     if group == "all":
         return "All members"
     if group == "default":
-        who = ", ".join(STATUS_LABELS.get(m, m).lower() for m in row.get("members") or [])
-        return f"Default table ({who})" if who else "Default table"
+        who = ", ".join(_SHORT_GROUP.get(m, m) for m in row.get("members") or [])
+        return f"Default table: {who}" if who else "Default table"
     return STATUS_LABELS.get(group, group.capitalize() + "s")
 
 
