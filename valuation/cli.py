@@ -252,7 +252,8 @@ def _experience_line(res: Any) -> str:
 #: Experience options and their defaults (``None`` on the parser, so that a value given without the
 #: experience analysis is noticed rather than ignored).
 EXPERIENCE_DEFAULTS: dict[str, Any] = {"exits": None, "exposure": "central", "confidence": 0.95,
-                                       "overdispersion": 1.0, "late_months": 0, "late_uplift": 0.0}
+                                       "overdispersion": 1.0, "late_months": 0, "late_uplift": 0.0,
+                                       "credibility_probability": 0.90, "credibility_tolerance": 0.05}
 
 
 def _experience(args: argparse.Namespace, basis: Any) -> Any:
@@ -263,6 +264,7 @@ def _experience(args: argparse.Namespace, basis: Any) -> Any:
         period_start=args.period_start, period_end=args.period_end,
         exposure=opt["exposure"], confidence=opt["confidence"], overdispersion=opt["overdispersion"],
         late_months=opt["late_months"], late_uplift=opt["late_uplift"],
+        credibility_probability=opt["credibility_probability"], credibility_tolerance=opt["credibility_tolerance"],
     )
     return analyse_experience(args.start_members, args.deaths, basis, settings, exits_path=opt["exits"],
                               valuation_members_path=args.members)
@@ -356,6 +358,12 @@ def _experience_options(sp: Any) -> None:
                     help="final months with late-reported deaths (default 0)")
     sp.add_argument("--late-uplift", type=non_negative_float, default=None,
                     help="uplift to deaths in those months, e.g. 0.05 (default 0)")
+    sp.add_argument("--credibility-probability", type=probability, default=None,
+                    help="limited-fluctuation credibility: probability of being within the tolerance for full "
+                         "credibility (default 0.90)")
+    sp.add_argument("--credibility-tolerance", type=probability, default=None,
+                    help="limited-fluctuation credibility: relative tolerance for full credibility (default 0.05; "
+                         "with 0.90, 1,082 expected deaths)")
 
 
 def _overwrite(sp: argparse.ArgumentParser, what: str) -> None:
