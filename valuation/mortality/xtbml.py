@@ -195,10 +195,10 @@ def _refuse_dtd(data: bytes, path: Path) -> None:
         )
 
 
-def _parse_table(elem: ET.Element, number: int, fname: str, path: Path, ns: str = "") -> XTable:
+def _parse_table(elem: ET.Element, number: int, count: int, fname: str, path: Path, ns: str = "") -> XTable:
     meta = _child(elem, "MetaData")
     desc = _text(meta, "TableDescription") or ""
-    where = f"table {number} ('{desc or fname}')"
+    where = f"table '{fname}'" if count == 1 else f"table {number} of {count} ('{desc or fname}')"
     scaling = _whole(_text(meta, "ScalingFactor"), "ScalingFactor", where, path) or 0
     axes = []
     for ad in [] if meta is None else _children(meta, "AxisDef"):
@@ -288,7 +288,8 @@ def read_xtbml(path: str | Path) -> XTbMLFile:
     cc = _child(root, "ContentClassification")
     name = _text(cc, "TableName") or p.stem
     ns = root.tag[: root.tag.rfind("}") + 1]  # "{namespace}" or ""
-    tables = tuple(_parse_table(t, k, name, p, ns) for k, t in enumerate(_children(root, "Table"), start=1))
+    elems = _children(root, "Table")
+    tables = tuple(_parse_table(t, k, len(elems), name, p, ns) for k, t in enumerate(elems, start=1))
     if not tables:
         raise TableError("the file holds no Table element", file=p)
     return XTbMLFile(
