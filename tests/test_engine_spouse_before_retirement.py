@@ -29,7 +29,7 @@ from valuation.engine.run import project_records
 from valuation.mortality.laws import SULT_LAW
 
 VD = dt.date(2025, 1, 1)
-I = 0.05  # discount rate [per annum]
+RATE = 0.05  # discount rate [per annum]
 REV = 0.03  # fixed revaluation in deferment [per annum]
 INC = 0.02  # fixed increase in payment [per annum]
 RTOL = 1e-11
@@ -84,7 +84,7 @@ def _reversion(x0, y0, start, at_death, at_start, first_month=12, rule="full", m
         if tau >= start:  # deaths from the start on: the member's pension
             before = dead[start - 1] if start >= 1 else 0.0
             expected += (dead[tau] - before) * at_start * _increase(start, tau, first_month, rule)
-        pv += (1 + I) ** (-tau / 12.0) * alive_y[tau] * expected / 12.0
+        pv += (1 + RATE) ** (-tau / 12.0) * alive_y[tau] * expected / 12.0
     return pv
 
 
@@ -139,8 +139,8 @@ def _active_reference(x0, n, salary, service, g, w, accrual, prospective):
 def test_active_spouse_pension_fixed_at_death_after_withdrawal(tmp_path, choice):
     """Active, aged 45 with 10 years' service on 40,000, retiring at 65; salary growth 3.5 %, withdrawal 4 %
     a year; known spouse aged 43. A leaver's spouse follows the deferred rule."""
-    extra = (f'[salary]\ngrowth = 0.035\n[benefits]\naccrual_rate = "1/60"\nretirement_age = 65\n'
-             f'[withdrawal]\nrates = [[18, 0.04]]\n')
+    extra = ('[salary]\ngrowth = 0.035\n[benefits]\naccrual_rate = "1/60"\nretirement_age = 65\n'
+             '[withdrawal]\nrates = [[18, 0.04]]\n')
     basis = _basis(tmp_path, extra=extra)
     text = basis.source_path.read_text().replace("fraction = 0.5", f'fraction = 0.5\npre_retirement_active = "{choice}"')
     basis = write_basis(tmp_path, text, name="b2.toml")
