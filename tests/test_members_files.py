@@ -48,7 +48,9 @@ def test_not_utf8_names_the_line_of_the_first_bad_byte(tmp_path: Path) -> None:
     assert e.file == str(path)
     assert e.reason == ("the file is not UTF-8 text: line 4 holds the byte 0xE9, which UTF-8 does not allow (the "
                         "file was probably saved as Latin-1 or Windows-1252)")
-    assert e.fix == "save the file as UTF-8 text (in Excel: Save As, file type 'CSV UTF-8 (Comma delimited)')"
+    assert e.fix.startswith("save the file as UTF-8 text (in Excel: Save As, file type 'CSV UTF-8 (Comma "
+                            "delimited)')")
+    assert "--encoding" in e.fix
 
 
 def test_not_utf8_found_past_the_first_read_block(tmp_path: Path) -> None:

@@ -157,6 +157,30 @@ def _headline(result: Any) -> str:
     return "\n".join(lines)
 
 
+def _input_format(args: argparse.Namespace) -> Any:
+    """The member file's format from --delimiter, --encoding and --sheet."""
+    from valuation.members.readers import InputFormat
+
+    return InputFormat(delimiter=args.delimiter, encoding=args.encoding, sheet=args.sheet)
+
+
+def delimiter(text: str) -> str:
+    """A CSV delimiter: one character, or the word ``tab``."""
+    value = "\t" if text.lower() in ("tab", "\\t", "\t") else text
+    if len(value) != 1 or value in "\"\r\n":
+        raise argparse.ArgumentTypeError(f"'{text}' is not one character (for example ';' or tab)")
+    return value
+
+
+def _format_options(sp: argparse.ArgumentParser) -> None:
+    g = sp.add_argument_group("member file format (when it is not comma-separated UTF-8, or not the first sheet)")
+    g.add_argument("--delimiter", type=delimiter, default=",",
+                   help="character between values in a CSV file: ';', '|' or tab (default ',')")
+    g.add_argument("--encoding", default="utf-8",
+                   help="text encoding of a CSV file, e.g. cp1252 or latin-1 (default utf-8)")
+    g.add_argument("--sheet", help="worksheet of an XLSX file, by name (default: the first sheet)")
+
+
 def _default_out(stem: str, when: date) -> Path:
     """``outputs/<stem>-<date>``, or the first free ``-2``, ``-3``... beside it: defaults never collide."""
     from valuation.engine.write import free_folder
@@ -197,7 +221,7 @@ def cmd_run(args: argparse.Namespace) -> int:
             result = _run_streaming(args, basis, out, inputs, progress)
         else:
             progress("reading", 0, 1)
-            data = read_members(args.members, basis)
+            data = read_members(args.members, basis, _input_format(args))
             _say(args, data.reconciliation_text())
             _warn_ignored(args, data.ignored_columns)
             _exclusion_gate(args, basis, args.members, data.read, data.valued, data.excluded)
@@ -229,7 +253,8 @@ def _run_streaming(
     with atomic_folder(out, overwrite=args.overwrite, inputs=inputs) as tmp:
         result = value_file_streaming(args.members, basis, chunk_rows=args.chunk_size,
                                       member_results_path=tmp / "members.parquet",
-                                      sensitivities=not args.no_sensitivities, progress=progress)
+                                      sensitivities=not args.no_sensitivities, progress=progress,
+                                      fmt=_input_format(args))
         r = result.summary["records"]
         _say(args, f"records read {r['read']:,} = valued {r['valued']:,} + excluded {r['excluded']:,}")
         _warn_ignored(args, r.get("ignored_columns") or [])
@@ -279,7 +304,7 @@ def cmd_check(args: argparse.Namespace) -> int:
     if args.exceptions:
         check_output_file(args.exceptions, overwrite=args.overwrite)
     basis = load_basis(args.basis)
-    data = read_members(args.members, basis)
+    data = read_members(args.members, basis, _input_format(args))
     _say(args, data.reconciliation_text())
     _warn_ignored(args, data.ignored_columns)
     if data.exceptions.height:
@@ -412,6 +437,7 @@ def build_parser() -> argparse.ArgumentParser:
     g.add_argument("--period-start", type=iso_date, help="period start (ISO date YYYY-MM-DD)")
     g.add_argument("--period-end", type=iso_date, help="period end (ISO date YYYY-MM-DD), usually the valuation date")
     _experience_options(g)
+    _format_options(r)
     common(r)
     r.set_defaults(parser=r, func=cmd_run)
 
@@ -422,6 +448,7 @@ def build_parser() -> argparse.ArgumentParser:
     c.add_argument("members", type=existing_file, help="member data file (CSV, XLSX or Parquet)")
     c.add_argument("--exceptions", help="write the exceptions list to this new CSV file")
     _overwrite(c, "an existing --exceptions file")
+    _format_options(c)
     common(c)
     c.set_defaults(parser=c, func=cmd_check)
 

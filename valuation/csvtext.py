@@ -18,10 +18,36 @@ from dataclasses import dataclass
 from pathlib import Path
 
 #: What to do about a file that is not UTF-8 text.
-UTF8_FIX = "save the file as UTF-8 text (in Excel: Save As, file type 'CSV UTF-8 (Comma delimited)')"
+UTF8_FIX = ("save the file as UTF-8 text (in Excel: Save As, file type 'CSV UTF-8 (Comma delimited)'), or name "
+            "its encoding with --encoding (for example --encoding cp1252)")
 
 _UTF16_BOMS = (codecs.BOM_UTF16_LE, codecs.BOM_UTF16_BE)
 _CHUNK = 1 << 20  # [bytes] read at a time when scanning a file
+
+
+def transcode_to_utf8(source: Path, target: Path, encoding: str) -> CsvProblem | None:
+    """Write ``source`` (text in ``encoding``) to ``target`` as UTF-8, in chunks; a problem if it cannot be read.
+
+    The problem names the line of the first byte that ``encoding`` does not allow.
+    """
+    decoder = codecs.getincrementaldecoder(encoding)()
+    line = 1
+    with source.open("rb") as src, target.open("w", encoding="utf-8", newline="") as out:
+        while True:
+            chunk = src.read(_CHUNK)
+            final = not chunk
+            pending = decoder.getstate()[0]
+            try:
+                out.write(decoder.decode(chunk, final=final))
+            except UnicodeDecodeError as exc:
+                data = pending + chunk
+                at = line + data.count(b"\n", 0, exc.start)
+                return CsvProblem(
+                    f"line {at} holds the byte 0x{data[exc.start]:02X}, which is not {encoding} text",
+                    "give the file's real encoding with --encoding (for example utf-8, cp1252 or latin-1)", row=at)
+            line += chunk.count(b"\n")
+            if final:
+                return None
 
 
 @dataclass(frozen=True)
@@ -51,12 +77,13 @@ def head_problem(head: bytes) -> CsvProblem | None:
     return found
 
 
-def first_non_utf8(path: Path) -> tuple[int, int] | None:
-    """Line number (from 1) and value of the first byte of ``path`` that is not valid UTF-8, or ``None``.
+def first_non_utf8(path: Path, encoding: str = "utf-8") -> tuple[int, int] | None:
+    """Line number (from 1) and value of the first byte of ``path`` that is not valid in ``encoding``
+    (UTF-8 unless said), or ``None``.
 
     Reads the file in chunks with an incremental decoder, so memory stays small for any file size.
     """
-    decoder = codecs.getincrementaldecoder("utf-8")()
+    decoder = codecs.getincrementaldecoder(encoding)()
     line = 1
     with path.open("rb") as fh:
         while True:
@@ -90,16 +117,16 @@ def encoding_problem(path: Path) -> CsvProblem | None:
     )
 
 
-def header_fields(path: Path) -> list[str] | None:
+def header_fields(path: Path, delimiter: str = ",") -> list[str] | None:
     """The header row's fields as written (quotes removed, a byte-order mark dropped); ``None`` if empty.
 
     Raises ``UnicodeDecodeError`` if the header is not UTF-8 and ``csv.Error`` if its quoting is broken.
     """
     with path.open(newline="", encoding="utf-8-sig") as fh:
-        return next(csv.reader(fh, strict=True), None)
+        return next(csv.reader(fh, strict=True, delimiter=delimiter), None)
 
 
-def structure_problem(path: Path) -> CsvProblem | None:
+def structure_problem(path: Path, delimiter: str = ",") -> CsvProblem | None:
     """The first record with more values than the header, or broken quoting; else ``None``.
 
     Fewer values than the header are allowed (the missing ones are empty). Reads the whole file once.
@@ -107,7 +134,7 @@ def structure_problem(path: Path) -> CsvProblem | None:
     width = None
     row, last_line = 0, 0
     with path.open(newline="", encoding="utf-8-sig") as fh:
-        reader = csv.reader(fh, strict=True)
+        reader = csv.reader(fh, strict=True, delimiter=delimiter)
         try:
             for row, fields in enumerate(reader, start=1):
                 if width is None:
@@ -134,12 +161,12 @@ def structure_problem(path: Path) -> CsvProblem | None:
     return None
 
 
-def csv_problem(path: Path) -> CsvProblem | None:
+def csv_problem(path: Path, delimiter: str = ",") -> CsvProblem | None:
     """What is wrong with a CSV file a reader refused: access, encoding, then structure; ``None`` if none."""
     try:
         if path.stat().st_size == 0:
             return CsvProblem("the file is empty", "give a header row naming the columns, then one row a record")
-        return encoding_problem(path) or structure_problem(path)
+        return encoding_problem(path) or structure_problem(path, delimiter)
     except OSError as exc:
         return CsvProblem(f"cannot be opened ({(exc.strerror or 'not allowed').lower()})",
                           "check that the file can be read by the user running the valuation")

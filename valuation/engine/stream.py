@@ -32,6 +32,8 @@ from valuation.members.data import (
 )
 from valuation.members.parse import clean_text
 from valuation.members.readers import (
+    DEFAULT_FORMAT,
+    InputFormat,
     file_kind,
     header_targets,
     iter_text_frames,
@@ -80,19 +82,19 @@ def _discard(members: pl.DataFrame) -> None:
     """Member sink that keeps nothing (streaming without a per-member results file)."""
 
 
-def file_duplicates(path: Path, basis: Any) -> tuple[pl.DataFrame, int | None]:
+def file_duplicates(path: Path, basis: Any, fmt: InputFormat = DEFAULT_FORMAT) -> tuple[pl.DataFrame, int | None]:
     """Duplicated member ids of a whole CSV or Parquet file, from its ``member_id`` column alone.
 
     Returns the :func:`~valuation.members.data.duplicate_ids` frame and the number of records, or an
     empty frame and ``None`` when the file has no ``member_id`` column (validating the first chunk then
     reports the missing column).
     """
-    targets = header_targets(read_header(path), basis.mapping, path)
+    targets = header_targets(read_header(path, fmt), basis.mapping, path)
     source = next((k for k, v in targets.items() if v == "member_id"), None)
     if source is None:
         return duplicate_ids(pl.DataFrame(schema={"row": pl.Int64, "member_id": pl.String})), None
     ids = (
-        scan_column(path, source)
+        scan_column(path, source, fmt)
         .rename({source: "member_id"})
         .with_columns(clean_text(["member_id"]))
         .with_row_index("row", offset=FIRST_ROW)
@@ -101,16 +103,18 @@ def file_duplicates(path: Path, basis: Any) -> tuple[pl.DataFrame, int | None]:
     return duplicate_ids(ids), ids.height
 
 
-def _checked_chunks(path: Path, basis: Any, chunk_rows: int, duplicates: pl.DataFrame) -> Iterator[CheckedFrame]:
+def _checked_chunks(
+    path: Path, basis: Any, chunk_rows: int, duplicates: pl.DataFrame, fmt: InputFormat = DEFAULT_FORMAT,
+) -> Iterator[CheckedFrame]:
     """Validated chunks of a CSV or Parquet file, row numbers offset to the file's."""
     first = FIRST_ROW
-    for text in iter_text_frames(path, chunk_rows):
+    for text in iter_text_frames(path, chunk_rows, fmt):
         checked = validate_frame(map_headers(text, basis.mapping, path), basis, path, first_row=first,
                                  duplicates=duplicates, headers=text.columns)
         first += text.height
         yield checked
     if first == FIRST_ROW:  # no records: validate the header alone (missing columns are still fatal)
-        header = pl.DataFrame(schema={c: pl.String for c in read_header(path)})
+        header = pl.DataFrame(schema={c: pl.String for c in read_header(path, fmt)})
         yield validate_frame(map_headers(header, basis.mapping, path), basis, path, duplicates=duplicates,
                              headers=header.columns)
 
@@ -123,6 +127,7 @@ def value_file_streaming(
     member_results_path: str | Path | None = None,
     sensitivities: bool = True,
     progress: Progress | None = None,
+    fmt: InputFormat = DEFAULT_FORMAT,
 ) -> ValuationResult:
     """Value a scheme's member file on ``basis`` without holding the whole file in memory.
 
@@ -143,6 +148,8 @@ def value_file_streaming(
     progress : callable, optional
         Called as ``progress(stage, done, total)`` with stage ``"checking ids"`` then ``"valuing"``
         (chunks done of the expected number).
+    fmt : InputFormat, optional
+        The CSV delimiter and encoding, or the XLSX sheet, where they are not the usual ones.
 
     Returns
     -------
@@ -176,17 +183,17 @@ def value_file_streaming(
     ignored: list[str] = []
     try:
         if kind == "xlsx":
-            text = read_text_frame(p)
+            text = read_text_frame(p, fmt)
             chunks: Iterator[CheckedFrame] = iter([
                 validate_frame(map_headers(text, basis.mapping, p), basis, p, headers=text.columns)])
             n_chunks = None
         else:
             if progress:
                 progress("checking ids", 0, 1)
-            dups, n_records = file_duplicates(p, basis)
+            dups, n_records = file_duplicates(p, basis, fmt)
             if progress:
                 progress("checking ids", 1, 1)
-            chunks = _checked_chunks(p, basis, chunk_rows, dups)
+            chunks = _checked_chunks(p, basis, chunk_rows, dups, fmt)
             n_chunks = max(1, -(-n_records // chunk_rows)) if n_records is not None else None
         done = 0
         for checked in chunks:

@@ -17,7 +17,7 @@ from valuation.basis.model import Basis
 from valuation.errors import DataError
 from valuation.members.checks import build_checks
 from valuation.members.parse import clean_text, parse_all, parsed
-from valuation.members.readers import as_written, map_headers, read_text_frame
+from valuation.members.readers import DEFAULT_FORMAT, InputFormat, as_written, map_headers, read_text_frame
 from valuation.members.schema import (
     DATE_COLUMNS,
     GROUP_OF_STATUS,
@@ -344,7 +344,7 @@ def sum_counts(parts: list[pl.DataFrame]) -> pl.DataFrame:
     return counts.sort(pl.col("status").replace_strict(order, return_dtype=pl.Int64))
 
 
-def read_members(path: str | Path, basis: Basis) -> MemberData:
+def read_members(path: str | Path, basis: Basis, fmt: InputFormat = DEFAULT_FORMAT) -> MemberData:
     """Read one scheme's member file (CSV, XLSX or Parquet) and validate every record.
 
     Parameters
@@ -354,6 +354,8 @@ def read_members(path: str | Path, basis: Basis) -> MemberData:
         ``[mapping]`` (column names, status and sex codes, date format).
     basis : Basis
         The assumptions basis: valuation date, tranches, mortality tables (closing ages), thresholds.
+    fmt : InputFormat, optional
+        The CSV delimiter and encoding, or the XLSX sheet, where they are not the usual ones.
 
     Returns
     -------
@@ -373,7 +375,7 @@ def read_members(path: str | Path, basis: Basis) -> MemberData:
         ``pension_<name>`` column names a tranche the basis does not declare.
     """
     p = Path(path)
-    text = read_text_frame(p)
+    text = read_text_frame(p, fmt)
     checked = validate_frame(map_headers(text, basis.mapping, p), basis, p, headers=text.columns)
     return MemberData(
         path=p, records=checked.records, exceptions=checked.exceptions, read=checked.read,

@@ -10,9 +10,13 @@ of a fixed number of records, so a very large file never has to be held in memor
 
 from __future__ import annotations
 
+import codecs
 import csv
 import difflib
+import tempfile
 from collections.abc import Iterable, Iterator, Sequence
+from contextlib import contextmanager
+from dataclasses import dataclass
 from pathlib import Path
 from typing import Literal
 
@@ -21,12 +25,71 @@ import pyarrow as pa
 import pyarrow.parquet as pq
 
 from valuation.basis.mapping import ColumnMapping
-from valuation.csvtext import CsvProblem, csv_problem, head_problem, header_fields
+from valuation.csvtext import CsvProblem, csv_problem, head_problem, header_fields, transcode_to_utf8
 from valuation.errors import DataError
 from valuation.members.schema import OUR_COLUMNS, TRANCHE_PREFIX
 
 FileKind = Literal["csv", "xlsx", "parquet"]
 _KINDS: dict[str, FileKind] = {".csv": "csv", ".txt": "csv", ".xlsx": "xlsx", ".parquet": "parquet"}
+
+@dataclass(frozen=True)
+class InputFormat:
+    """How a member file is written, where it is not the usual form.
+
+    Attributes
+    ----------
+    delimiter : str
+        The one character between values in a CSV file (``,`` by default; ``;`` and tab are common).
+    encoding : str
+        The CSV file's text encoding (``utf-8`` by default; a byte-order mark is dropped). Any encoding
+        Python knows (``cp1252``, ``latin-1``, ``utf-16``...) is read by converting the file to UTF-8 first.
+    sheet : str or None
+        The worksheet of an XLSX file to read, by name (default: the first sheet).
+    """
+
+    delimiter: str = ","
+    encoding: str = "utf-8"
+    sheet: str | None = None
+
+    @property
+    def is_utf8(self) -> bool:
+        return codecs.lookup(self.encoding).name == "utf-8" or self.encoding.lower().replace("_", "-") == "utf-8-sig"
+
+    def check(self, kind: FileKind, path: Path) -> None:
+        """Raise if a setting does not apply to this kind of file or is not a usable value."""
+        if len(self.delimiter) != 1 or self.delimiter in "\"\r\n":
+            raise DataError(f"the delimiter must be one character other than a quote or a line end, not "
+                            f"'{self.delimiter}'", file=path, fix="for example --delimiter ';' or --delimiter tab")
+        try:
+            codecs.lookup(self.encoding)
+        except LookupError:
+            raise DataError(f"'{self.encoding}' is not a known text encoding", file=path,
+                            fix="for example --encoding utf-8, cp1252 or latin-1") from None
+        if kind != "csv" and (self.delimiter != "," or not self.is_utf8):
+            raise DataError(f"a delimiter or an encoding applies to CSV files, and this is a {kind.upper()} file",
+                            file=path, fix="leave out --delimiter and --encoding")
+        if kind != "xlsx" and self.sheet is not None:
+            raise DataError(f"a sheet applies to XLSX workbooks, and this is a {kind.upper()} file", file=path,
+                            fix="leave out --sheet")
+
+
+#: The usual form: comma-separated UTF-8, the first sheet of a workbook.
+DEFAULT_FORMAT = InputFormat()
+
+
+@contextmanager
+def _utf8_source(p: Path, fmt: InputFormat) -> Iterator[Path]:
+    """``p`` itself when it is UTF-8, else a temporary UTF-8 copy (removed afterwards)."""
+    if fmt.is_utf8:
+        yield p
+        return
+    with tempfile.TemporaryDirectory(prefix="valuation-utf8-") as folder:
+        copy = Path(folder) / p.name
+        problem = transcode_to_utf8(p, copy, fmt.encoding)
+        if problem is not None:
+            raise DataError(problem.reason, file=p, fix=problem.fix)
+        yield copy
+
 
 #: What to do when a CSV file cannot be read and nothing more precise was found.
 _CSV_FIX = "open the file in a spreadsheet program and save it again as 'CSV UTF-8 (Comma delimited)'"
@@ -74,17 +137,21 @@ def display_headers(written: Sequence[str | None], path: Path) -> list[str]:
     return out
 
 
-def _csv_headers(p: Path) -> list[str]:
-    """The display headers of a CSV file (see :func:`display_headers`), read by us, not by polars."""
-    with p.open("rb") as fh:
+def _csv_headers(p: Path, src: Path | None = None, delimiter: str = ",") -> list[str]:
+    """The display headers of a CSV file (see :func:`display_headers`), read by us, not by polars.
+
+    ``src`` is the file to read (a UTF-8 copy of ``p``, or ``p`` itself); messages name ``p``.
+    """
+    src = src or p
+    with src.open("rb") as fh:
         head = fh.read(4096)
     problem = head_problem(head)
     fields = None
     if problem is None:
         try:
-            fields = header_fields(p)
+            fields = header_fields(src, delimiter)
         except (UnicodeDecodeError, csv.Error):
-            problem = csv_problem(p)
+            problem = csv_problem(src, delimiter)
         else:
             if fields is None:
                 problem = CsvProblem("the file is empty",
@@ -93,13 +160,26 @@ def _csv_headers(p: Path) -> list[str]:
                 problem = CsvProblem("line 1 is empty", "put the header row (the column names) on the first line")
     if problem is not None or fields is None:
         raise _csv_unreadable(p, problem)
+    _delimiter_hint(fields, delimiter, p)
     return display_headers(fields, p)
 
 
-def _csv_unreadable(p: Path, problem: CsvProblem | None = None) -> DataError:
+def _delimiter_hint(fields: list[str], delimiter: str, p: Path) -> None:
+    """A header row read as one column that holds another usual delimiter: the file uses that one."""
+    if len(fields) != 1:
+        return
+    for other, name in ((";", "';'"), ("\t", "tab"), ("|", "'|'"), (",", "','")):
+        if other != delimiter and fields[0].count(other) >= 2:
+            shown = "a tab" if other == "\t" else f"'{other}'"
+            raise DataError(f"the header row reads as one column; the values seem to be separated by {shown}, "
+                            f"not '{delimiter}'", file=p, row=1, fix=f"add --delimiter {name}")
+
+
+def _csv_unreadable(p: Path, problem: CsvProblem | None = None, src: Path | None = None,
+                    delimiter: str = ",") -> DataError:
     """The error for a CSV file that cannot be read, saying where and why when that can be found."""
     if problem is None:
-        problem = csv_problem(p)
+        problem = csv_problem(src or p, delimiter)
     if problem is None:
         return DataError("cannot be read as CSV", file=p, fix=_CSV_FIX)
     return DataError(problem.reason, file=p, fix=problem.fix)
@@ -112,22 +192,26 @@ def _named(df: pl.DataFrame, headers: list[str]) -> pl.DataFrame:
     return df
 
 
-def _read_xlsx(p: Path) -> pl.DataFrame:
-    """The first sheet of a workbook as text, header in its first row; trailing empty rows dropped.
+def _read_xlsx(p: Path, sheet: str | None = None) -> pl.DataFrame:
+    """A sheet of a workbook (the first, or ``sheet`` by name) as text, header in its first row; trailing
+    empty rows dropped.
 
     Empty rows inside the data are kept (as records with every cell empty) so that row numbers stay
     those of the sheet.
     """
+    if sheet is not None:
+        _check_sheet(p, sheet)
+    which: dict[str, object] = {"sheet_name": sheet} if sheet is not None else {"sheet_id": 1}
     try:
-        grid = pl.read_excel(p, sheet_id=1, has_header=False, infer_schema_length=0, drop_empty_rows=False,
-                             drop_empty_cols=False, raise_if_empty=False)
+        grid = pl.read_excel(p, has_header=False, infer_schema_length=0, drop_empty_rows=False,  # type: ignore[call-overload]
+                             drop_empty_cols=False, raise_if_empty=False, **which)
     except Exception as exc:  # the workbook engine raises types of its own for a damaged or protected file
         raise DataError(
             "cannot be read as an XLSX workbook (it may be damaged, protected by a password, or not an "
             "XLSX file)", file=p, fix="open it in Excel and save it again as .xlsx, or save it as CSV UTF-8",
         ) from exc
     if grid.height == 0:
-        raise DataError("the first sheet is empty", file=p,
+        raise DataError(f"the sheet '{sheet}' is empty" if sheet else "the first sheet is empty", file=p,
                         fix="put the header row (column names) in row 1 of the first sheet, records below it")
     grid = grid.with_columns(pl.all().cast(pl.String))
     headers = display_headers(list(grid.row(0)), p)
@@ -138,7 +222,24 @@ def _read_xlsx(p: Path) -> pl.DataFrame:
     return _named(body.head(keep), headers)
 
 
-def read_text_frame(path: str | Path) -> pl.DataFrame:
+def _check_sheet(p: Path, sheet: str) -> None:
+    """Raise unless the workbook has a sheet named ``sheet``; the message lists the sheets it has."""
+    import fastexcel
+
+    try:
+        names = fastexcel.read_excel(str(p)).sheet_names
+    except Exception as exc:  # the workbook engine raises types of its own for a damaged file
+        raise DataError("cannot be read as an XLSX workbook (it may be damaged, protected by a password, or not "
+                        "an XLSX file)", file=p, fix="open it in Excel and save it again as .xlsx") from exc
+    if sheet not in names:
+        close = difflib.get_close_matches(sheet, names, n=1)
+        hint = f" (did you mean '{close[0]}'?)" if close else ""
+        listed = ", ".join("'" + n + "'" for n in names)
+        raise DataError(f"the workbook has no sheet named '{sheet}'{hint}; its sheets: {listed}", file=p,
+                        fix="give one of those names with --sheet")
+
+
+def read_text_frame(path: str | Path, fmt: InputFormat = DEFAULT_FORMAT) -> pl.DataFrame:
     """All columns of a member file as text (``pl.String``), headers as written.
 
     CSV is read as UTF-8 (a byte-order mark is dropped); XLSX reads the first sheet with the header in its
@@ -152,17 +253,19 @@ def read_text_frame(path: str | Path) -> pl.DataFrame:
         quoting, a damaged workbook...), or two columns carry the same header; the message says where.
     """
     p, kind = _existing(path)
+    fmt.check(kind, p)
     if kind == "csv":
-        headers = _csv_headers(p)
-        try:
-            df = pl.read_csv(p, infer_schema=False, encoding="utf8")
-        except (pl.exceptions.PolarsError, OSError, ValueError) as exc:
-            raise _csv_unreadable(p) from exc
-        if df.width != len(headers):
-            raise _csv_unreadable(p)
+        with _utf8_source(p, fmt) as src:
+            headers = _csv_headers(p, src, fmt.delimiter)
+            try:
+                df = pl.read_csv(src, infer_schema=False, encoding="utf8", separator=fmt.delimiter)
+            except (pl.exceptions.PolarsError, OSError, ValueError) as exc:
+                raise _csv_unreadable(p, src=src, delimiter=fmt.delimiter) from exc
+            if df.width != len(headers):
+                raise _csv_unreadable(p, src=src, delimiter=fmt.delimiter)
         df = _named(df, headers)
     elif kind == "xlsx":
-        df = _read_xlsx(p)
+        df = _read_xlsx(p, fmt.sheet)
     else:
         try:
             df = pl.read_parquet(p)
@@ -204,14 +307,16 @@ def _existing(path: str | Path) -> tuple[Path, FileKind]:
     return p, kind
 
 
-def read_header(path: str | Path) -> list[str]:
+def read_header(path: str | Path, fmt: InputFormat = DEFAULT_FORMAT) -> list[str]:
     """The column headers of a CSV or Parquet member file, as written, without reading its records.
 
     Headers are named as :func:`read_text_frame` names them (an empty header as ``(no header, column N)``).
     """
     p, kind = _existing(path)
+    fmt.check(kind, p)
     if kind == "csv":
-        return _csv_headers(p)
+        with _utf8_source(p, fmt) as src:
+            return _csv_headers(p, src, fmt.delimiter)
     if kind == "parquet":
         try:
             return display_headers(list(pq.ParquetFile(p).schema_arrow.names), p)
@@ -221,18 +326,21 @@ def read_header(path: str | Path) -> list[str]:
                     fix="save the member data as CSV or Parquet to read it in chunks")
 
 
-def scan_column(path: str | Path, column: str) -> pl.DataFrame:
+def scan_column(path: str | Path, column: str, fmt: InputFormat = DEFAULT_FORMAT) -> pl.DataFrame:
     """One column of a CSV or Parquet member file, as text, header as written (a narrow full read).
 
     ``column`` is a header as :func:`read_header` gives it.
     """
     p, kind = _existing(path)
-    position = read_header(p).index(column)
-    try:
-        lf = pl.scan_csv(p, infer_schema=False, encoding="utf8") if kind == "csv" else pl.scan_parquet(p)
-        return lf.select(pl.nth(position).cast(pl.String).alias(column)).collect()
-    except (pl.exceptions.PolarsError, OSError, ValueError) as exc:
-        raise (_csv_unreadable(p) if kind == "csv" else _parquet_unreadable(p)) from exc
+    position = read_header(p, fmt).index(column)
+    with _utf8_source(p, fmt) as src:
+        try:
+            lf = (pl.scan_csv(src, infer_schema=False, encoding="utf8", separator=fmt.delimiter) if kind == "csv"
+                  else pl.scan_parquet(p))
+            return lf.select(pl.nth(position).cast(pl.String).alias(column)).collect()
+        except (pl.exceptions.PolarsError, OSError, ValueError) as exc:
+            raise (_csv_unreadable(p, src=src, delimiter=fmt.delimiter) if kind == "csv"
+                   else _parquet_unreadable(p)) from exc
 
 
 def _rebatch(batches: Iterable[pl.DataFrame], size: int) -> Iterator[pl.DataFrame]:
@@ -251,7 +359,7 @@ def _rebatch(batches: Iterable[pl.DataFrame], size: int) -> Iterator[pl.DataFram
         yield pl.concat(buf) if len(buf) > 1 else buf[0]
 
 
-def iter_text_frames(path: str | Path, chunk_rows: int) -> Iterator[pl.DataFrame]:
+def iter_text_frames(path: str | Path, chunk_rows: int, fmt: InputFormat = DEFAULT_FORMAT) -> Iterator[pl.DataFrame]:
     """The records of a CSV or Parquet member file as text frames of ``chunk_rows`` records each.
 
     Each frame is what :func:`read_text_frame` returns for the same records (headers as written, every
@@ -263,20 +371,23 @@ def iter_text_frames(path: str | Path, chunk_rows: int) -> Iterator[pl.DataFrame
     if kind == "xlsx":
         raise DataError("reading in chunks needs a CSV or Parquet file", file=p,
                         fix="save the member data as CSV or Parquet to read it in chunks")
-    headers = read_header(p)
-    try:
-        if kind == "csv":
-            lf = pl.scan_csv(p, infer_schema=False, encoding="utf8")
-            batches: Iterable[pl.DataFrame] = lf.collect_batches(chunk_size=chunk_rows)
-        else:
-            pf = pq.ParquetFile(p)
-            batches = (pl.DataFrame(pl.from_arrow(b)) for b in pf.iter_batches(batch_size=chunk_rows))
-        for frame in _rebatch(batches, chunk_rows):
-            if frame.width != len(headers):
-                raise _csv_unreadable(p) if kind == "csv" else _parquet_unreadable(p)
-            yield _named(frame, headers).with_columns(pl.all().cast(pl.String))
-    except (pl.exceptions.PolarsError, OSError, ValueError, pa.ArrowException) as exc:
-        raise (_csv_unreadable(p) if kind == "csv" else _parquet_unreadable(p)) from exc
+    headers = read_header(p, fmt)
+    with _utf8_source(p, fmt) as src:
+        try:
+            if kind == "csv":
+                lf = pl.scan_csv(src, infer_schema=False, encoding="utf8", separator=fmt.delimiter)
+                batches: Iterable[pl.DataFrame] = lf.collect_batches(chunk_size=chunk_rows)
+            else:
+                pf = pq.ParquetFile(p)
+                batches = (pl.DataFrame(pl.from_arrow(b)) for b in pf.iter_batches(batch_size=chunk_rows))
+            for frame in _rebatch(batches, chunk_rows):
+                if frame.width != len(headers):
+                    raise (_csv_unreadable(p, src=src, delimiter=fmt.delimiter) if kind == "csv"
+                           else _parquet_unreadable(p))
+                yield _named(frame, headers).with_columns(pl.all().cast(pl.String))
+        except (pl.exceptions.PolarsError, OSError, ValueError, pa.ArrowException) as exc:
+            raise (_csv_unreadable(p, src=src, delimiter=fmt.delimiter) if kind == "csv"
+                   else _parquet_unreadable(p)) from exc
 
 
 def header_targets(columns: list[str], mapping: ColumnMapping, path: Path) -> dict[str, str]:
