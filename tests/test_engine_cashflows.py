@@ -18,15 +18,27 @@ import polars as pl
 import pytest
 
 from tests.engine_helpers import dob_for_age, members, sult_toml, write_basis
-from valuation.engine.run import RunAccumulator, value_scheme
+from valuation.basis import load_basis
+from valuation.engine.results import ValuationResult
+from valuation.engine.run import RunAccumulator
 from valuation.engine.write import write_run
+from valuation.members import read_members
 
 ROOT = Path(__file__).resolve().parents[1]
 
 
+def _value(basis, records: pl.DataFrame) -> ValuationResult:
+    acc = RunAccumulator(basis, sensitivities=False)
+    acc.add(records)
+    n = records.height
+    counts = pl.DataFrame({"status": ["all"], "read": [n], "valued": [n], "excluded": [0]})
+    return acc.finish(read=n, valued=n, excluded=0, counts=counts, exceptions=pl.DataFrame(), inputs={},
+                      started=dt.datetime.now(dt.timezone.utc), run_seconds=0.0, settings={})
+
+
 def test_demo_cashflows_file_reconciles(tmp_path):
-    res = value_scheme(ROOT / "member_data_demo" / "members.csv", ROOT / "assumptions" / "demo_basis.toml",
-                       sensitivities=False)
+    basis = load_basis(ROOT / "assumptions" / "demo_basis.toml")
+    res = _value(basis, read_members(ROOT / "member_data_demo" / "members.csv", basis).records)
     out = write_run(res, tmp_path / "run")
     cf = pl.read_csv(out / "cashflows.csv")
     assert cf.columns == ["year", "pensioner", "dependant", "deferred", "active", "total", "discount_factor",
@@ -45,11 +57,7 @@ def test_year_without_payments_shows_the_mid_year_factor(tmp_path):
     basis = write_basis(tmp_path, sult_toml(frequency=12, valuation_date="2025-01-01"))
     recs = members([{"status": "deferred", "sex": "M", "date_of_birth": dob_for_age(dt.date(2025, 1, 1), 62),
                      "pension": 1200.0}])
-    acc = RunAccumulator(basis, sensitivities=False)
-    acc.add(recs)
-    res = acc.finish(read=1, valued=1, excluded=0, counts=pl.DataFrame({"status": ["deferred"], "read": [1],
-                     "valued": [1], "excluded": [0]}), exceptions=pl.DataFrame(), inputs={},
-                     started=dt.datetime.now(dt.timezone.utc), run_seconds=0.0, settings={})
+    res = _value(basis, recs)
     cf = res.cashflows
     np.testing.assert_allclose(cf["discount_factor"][:3].to_numpy(), 1.05 ** -(np.arange(3) + 0.5), rtol=1e-14)
     assert cf["discounted_total"][:3].to_list() == [0.0, 0.0, 0.0]
