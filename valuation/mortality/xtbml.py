@@ -58,6 +58,9 @@ AxisKind = Literal["age", "duration", "year", "other"]
 #: Content types whose tables hold improvement rates rather than mortality rates.
 IMPROVEMENT_CONTENT = ("projection scale",)
 
+#: Most values an axis may run over (ages, durations or years); a larger range is a broken file.
+_MAX_AXIS = 1000
+
 #: Calendar years a year axis may hold [calendar year] (a wider range is not a calendar year).
 _YEAR_RANGE = (1700, 2300)
 
@@ -371,6 +374,8 @@ def _grid(xf: XTbMLFile, t: XTable, axes: tuple[XAxis, ...]) -> tuple[list[np.nd
             bad = int(seen[(seen < lo) | (seen > hi)][0])
             raise _refusal(xf, t, f"has a value where {a.label} {bad} is outside MinScaleValue {lo} .. "
                                   f"MaxScaleValue {hi} of its AxisDef")
+        if not 0 < hi - lo + 1 <= _MAX_AXIS:
+            raise _refusal(xf, t, f"has an axis '{a.label}' running {lo}..{hi}, which no table of rates spans")
         ranges.append(np.arange(lo, hi + 1, dtype=np.int64))
     shape = tuple(r.size for r in ranges)
     idx = tuple(coords[:, i] - ranges[i][0] for i in range(len(axes)))
