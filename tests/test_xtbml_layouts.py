@@ -357,3 +357,9 @@ def test_scale_by_name_in_a_file_of_several_and_in_the_basis(tmp_path):
                                sult.mortality("pensioner", "M").q(61, 2022) * 0.98**2, rtol=1e-14)
     with pytest.raises(TableError, match="a table name .'Male'. was given, but a CSV or XLSX improvement file"):
         load_improvement_table(DATA / "improvement_2d.csv", name="Male")
+
+
+def test_an_axis_no_table_spans_is_refused_before_reading(tmp_path):
+    path = write(tmp_path, [table([axis("Age", 0, 10**9)], {0: 0.1, 1: 1.0})], name="Broken")
+    with pytest.raises(TableError, match="table 'Broken' has an axis 'Age' running 0..1000000000, which no table"):
+        load_tables(path)
