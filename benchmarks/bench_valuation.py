@@ -74,14 +74,14 @@ def main() -> int:
         t_gen = time.perf_counter() - t0
         t1 = time.perf_counter()
         if args.stream:
-            res = value_file_streaming(path, basis, chunk_rows=args.chunk_size, sensitivities=sens,
+            res = value_file_streaming(basis, path, chunk_rows=args.chunk_size, sensitivities=sens,
                                        member_results_path=Path(tmp) / "members.parquet")
             t_read, t_value = float("nan"), time.perf_counter() - t1
         else:
             data = read_members(path, basis)
             t_read = time.perf_counter() - t1
             t2 = time.perf_counter()
-            res = value_members(data, basis, sensitivities=sens, chunk_size=args.chunk_size)
+            res = value_members(basis, data, sensitivities=sens, chunk_size=args.chunk_size)
             t_value = time.perf_counter() - t2
     records = res.summary["records"]
     total = t_value if args.stream else t_read + t_value

@@ -17,10 +17,13 @@ ROOT = Path(__file__).resolve().parents[1]
 
 def test_public_api():
     assert set(valuation.__all__) >= {"value_scheme", "value_members", "load_basis", "read_members", "write_run"}
-    params = inspect.signature(valuation.value_scheme).parameters
-    assert list(params)[:2] == ["members_path", "basis_path"]
+    # the basis first, as on the command line (`valuation run BASIS MEMBERS`)
+    assert list(inspect.signature(valuation.value_scheme).parameters)[:2] == ["basis", "members"]
     kw = inspect.signature(valuation.value_members).parameters
+    assert list(kw)[:2] == ["basis", "member_data"]
     assert {"q_multiplier", "sensitivities", "chunk_size", "progress"} <= set(kw)
+    assert list(inspect.signature(valuation.value_file_streaming).parameters)[:2] == ["basis", "members_path"]
+    assert {"reports", "experience", "overwrite"} <= set(inspect.signature(valuation.write_run).parameters)
 
 
 def test_ruff_is_clean():

@@ -134,8 +134,8 @@ def test_liability_effect_uses_each_tables_own_implied_percentage(demo, tmp_path
     new = {key: r["implied_percentage"] / 100 for key, r in rows.items()}
     basis_file = ROOT / "assumptions" / "demo_basis.toml"
     changed = _basis_with_percentages(basis_file, tmp_path / "implied_basis.toml", new)
-    direct = value_scheme(DEMO / "members.csv", changed, sensitivities=False).total_liability
-    base = value_scheme(DEMO / "members.csv", basis_file, sensitivities=False).total_liability
+    direct = value_scheme(changed, DEMO / "members.csv", sensitivities=False).total_liability
+    base = value_scheme(basis_file, DEMO / "members.csv", sensitivities=False).total_liability
     assert imp["liability_after"] == pytest.approx(direct, rel=1e-12)
     assert imp["liability_before"] == pytest.approx(base, rel=1e-12)
     assert imp["change_pct"] == pytest.approx(100 * (direct / base - 1), rel=1e-12)
@@ -143,7 +143,7 @@ def test_liability_effect_uses_each_tables_own_implied_percentage(demo, tmp_path
         k: r["implied_percentage"] for k, r in rows.items()
     }
     basis = load_basis(basis_file)
-    overall = value_members(read_members(DEMO / "members.csv", basis), basis, q_multiplier=imp["multiplier"],
+    overall = value_members(basis, read_members(DEMO / "members.csv", basis), q_multiplier=imp["multiplier"],
                             sensitivities=False).total_liability
     assert abs(overall - direct) > 1e-4 * base
 

@@ -180,6 +180,6 @@ def test_retirement_age_warning_states_what_the_valuation_does(tmp_path: Path) -
     md = read_members(write_csv(tmp_path / "m.csv", rows), BASIS)
     assert BASIS.mortality_key("deferred", "F") == BASIS.mortality_key("pensioner", "F")
     assert md.exceptions.filter(pl.col("column") == "retirement_age")["row"].to_list() == [2, 3]
-    value = dict(value_members(md, BASIS, sensitivities=False).members.select("member_id", "liability").iter_rows())
+    value = dict(value_members(BASIS, md, sensitivities=False).members.select("member_id", "liability").iter_rows())
     assert value["D1"] == pytest.approx(value["P1"], rel=1e-12)
     assert value["D2"] == pytest.approx(value["P1"], rel=1e-12)

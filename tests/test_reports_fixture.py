@@ -37,7 +37,7 @@ BASIS = ROOT / "assumptions" / "demo_basis.toml"
 @lru_cache(maxsize=1)
 def real_run() -> tuple[ValuationResult, ExperienceResult]:
     """The demo valuation of members_dirty.csv and the demo experience analysis 2022-2025, with probes."""
-    result = value_scheme(DEMO / "members_dirty.csv", BASIS)
+    result = value_scheme(BASIS, DEMO / "members_dirty.csv")
     ids = result.members["member_id"].to_list()
     others = [i for i, m in enumerate(ids) if m not in FORMULA_PROBES][: len(FORMULA_PROBES)]
     for i, probe in zip(others, FORMULA_PROBES, strict=False):

@@ -25,7 +25,7 @@ DIRTY = ROOT / "member_data_demo" / "members_dirty.csv"
 
 @pytest.fixture(scope="module")
 def demo_run(tmp_path_factory):
-    res = value_scheme(MEMBERS, BASIS)
+    res = value_scheme(BASIS, MEMBERS)
     out = write_run(res, tmp_path_factory.mktemp("run") / "demo")
     return res, out
 
@@ -75,7 +75,7 @@ def test_sensitivity_signs_and_durations(demo_run):
 
 def test_same_inputs_same_numbers(demo_run, tmp_path):
     res, out = demo_run
-    again = write_run(value_scheme(MEMBERS, BASIS), tmp_path / "again")
+    again = write_run(value_scheme(BASIS, MEMBERS), tmp_path / "again")
     a = json.loads((out / "summary.json").read_text())
     b = json.loads((again / "summary.json").read_text())
     for s in (a, b):
@@ -86,7 +86,7 @@ def test_same_inputs_same_numbers(demo_run, tmp_path):
 
 
 def test_dirty_file_reconciles(tmp_path):
-    res = value_scheme(DIRTY, BASIS, sensitivities=False)
+    res = value_scheme(BASIS, DIRTY, sensitivities=False)
     r = res.summary["records"]
     assert r["read"] == r["valued"] + r["excluded"]
     assert r["excluded"] > 0

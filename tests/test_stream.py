@@ -1,6 +1,6 @@
 """Streaming valuation agrees with the in-memory path, chunk boundaries and all.
 
-Reference: the in-memory path ``value_members(read_members(path, basis), basis)``, whose numbers are
+Reference: the in-memory path ``value_members(basis, read_members(path, basis))``, whose numbers are
 checked against published references elsewhere (test_engine_reference.py: Dickson, Hardy & Waters,
 *Actuarial Mathematics for Life Contingent Risks*, 2nd ed., SULT examples; test_members_*.py: the stated
 validation rules). Streaming only changes how records are read, so every summary number must agree to
@@ -82,9 +82,9 @@ def test_streaming_matches_in_memory(ext: str, scheme: pl.DataFrame, tmp_path: P
     # CSV in the administrator's layout (mapped headers, codes, day/month/year dates); Parquet in ours.
     frame = to_admin_format(scheme, BASIS.mapping) if ext == "csv" else scheme
     path = write_scheme(frame, tmp_path / f"members.{ext}")
-    memory = value_members(read_members(path, BASIS), BASIS, sensitivities=False)
+    memory = value_members(BASIS, read_members(path, BASIS), sensitivities=False)
     out = tmp_path / "members_out.parquet"
-    stream = value_file_streaming(path, BASIS, chunk_rows=CHUNK, member_results_path=out, sensitivities=False)
+    stream = value_file_streaming(BASIS, path, chunk_rows=CHUNK, member_results_path=out, sensitivities=False)
     _assert_same(stream, memory)
     records = stream.summary["records"]
     assert records["read"] == scheme.height == records["valued"] + records["excluded"]
@@ -98,7 +98,7 @@ def test_streaming_matches_in_memory(ext: str, scheme: pl.DataFrame, tmp_path: P
 
 def test_duplicates_in_different_chunks_are_all_excluded(scheme: pl.DataFrame, tmp_path: Path) -> None:
     path = write_scheme(scheme, tmp_path / "members.parquet")
-    stream = value_file_streaming(path, BASIS, chunk_rows=CHUNK, sensitivities=False)
+    stream = value_file_streaming(BASIS, path, chunk_rows=CHUNK, sensitivities=False)
     reason = "member_id appears more than once; every copy is excluded: ask the administrator which record is right"
     dup = stream.exceptions.filter(pl.col("reason") == reason)
     three = dup.filter(pl.col("member_id") == scheme["member_id"][THREE_COPIES[0]])
@@ -113,16 +113,16 @@ def test_duplicates_in_different_chunks_are_all_excluded(scheme: pl.DataFrame, t
 
 def test_streaming_sensitivities_match(tmp_path: Path) -> None:
     path = write_scheme(_scheme(500, seed=7), tmp_path / "members.parquet")
-    memory = value_members(read_members(path, BASIS), BASIS, sensitivities=True)
-    stream = value_file_streaming(path, BASIS, chunk_rows=150, sensitivities=True)
+    memory = value_members(BASIS, read_members(path, BASIS), sensitivities=True)
+    stream = value_file_streaming(BASIS, path, chunk_rows=150, sensitivities=True)
     assert stream.sensitivities.height == len(BASIS.sensitivities) > 0
     _assert_same(stream, memory)
 
 
 def test_xlsx_falls_back_to_whole_file_read(tmp_path: Path) -> None:
     path = write_scheme(_scheme(200, seed=8), tmp_path / "members.xlsx")
-    memory = value_members(read_members(path, BASIS), BASIS, sensitivities=False)
-    stream = value_file_streaming(path, BASIS, chunk_rows=64, sensitivities=False,
+    memory = value_members(BASIS, read_members(path, BASIS), sensitivities=False)
+    stream = value_file_streaming(BASIS, path, chunk_rows=64, sensitivities=False,
                                   member_results_path=tmp_path / "out.parquet")
     _assert_same(stream, memory)
     assert pl.read_parquet(tmp_path / "out.parquet").height == memory.members.height
@@ -131,7 +131,7 @@ def test_xlsx_falls_back_to_whole_file_read(tmp_path: Path) -> None:
 def test_progress_reports_every_chunk(tmp_path: Path) -> None:
     path = write_scheme(synth_scheme(450, seed=9, valuation_date=BASIS.valuation_date), tmp_path / "m.parquet")
     calls: list[tuple[str, int, int]] = []
-    value_file_streaming(path, BASIS, chunk_rows=100, sensitivities=False,
+    value_file_streaming(BASIS, path, chunk_rows=100, sensitivities=False,
                          progress=lambda stage, done, total: calls.append((stage, done, total)))
     valuing = [c for c in calls if c[0] == "valuing"]
     assert valuing == [("valuing", k, 5) for k in range(6)]  # 450 clean records in chunks of 100
@@ -151,14 +151,14 @@ def test_chunks_rebuild_the_whole_file(ext: str, size: int, tmp_path: Path) -> N
 def test_header_only_file_and_fatal_errors_match(tmp_path: Path) -> None:
     empty = tmp_path / "empty.csv"
     empty.write_text(",".join(BASIS.mapping.columns) + "\n", encoding="utf-8")  # every mapped header, no record
-    res = value_file_streaming(empty, BASIS, sensitivities=False)
+    res = value_file_streaming(BASIS, empty, sensitivities=False)
     assert res.summary["records"]["read"] == 0 and res.summary["liability"]["total"] == 0.0
     broken = tmp_path / "broken.csv"
     broken.write_text("member_id,status,sex\nA1,P,1\n", encoding="utf-8")
     with pytest.raises(DataError) as whole:
         read_members(broken, BASIS)
     with pytest.raises(DataError) as streamed:
-        value_file_streaming(broken, BASIS, sensitivities=False)
+        value_file_streaming(BASIS, broken, sensitivities=False)
     assert str(streamed.value) == str(whole.value)
     assert "header 'DOB' (mapped to date_of_birth under [mapping.columns] in the basis) is not in the file" in str(
         streamed.value)
@@ -167,7 +167,7 @@ def test_header_only_file_and_fatal_errors_match(tmp_path: Path) -> None:
     with pytest.raises(DataError) as whole:
         read_members(mapped, BASIS)
     with pytest.raises(DataError) as streamed:
-        value_file_streaming(mapped, BASIS, sensitivities=False)
+        value_file_streaming(BASIS, mapped, sensitivities=False)
     assert str(streamed.value) == str(whole.value)
     assert "header 'DOB' (mapped to date_of_birth under [mapping.columns] in the basis) is not in the file" in str(
         streamed.value)
@@ -178,7 +178,7 @@ def test_streamed_exceptions_name_the_header_as_written(tmp_path: Path) -> None:
     frame = to_admin_format(_scheme(300, seed=12), BASIS.mapping).rename({"DOB": "dob", "Pension pa": " PENSION PA"})
     path = write_scheme(frame, tmp_path / "members.csv")
     memory = read_members(path, BASIS).exceptions
-    stream = value_file_streaming(path, BASIS, chunk_rows=64, sensitivities=False).exceptions
+    stream = value_file_streaming(BASIS, path, chunk_rows=64, sensitivities=False).exceptions
     assert_frame_equal(stream, memory)
     dob = stream.filter(pl.col("column") == "date_of_birth")
     assert dob.height > 0 and set(dob["file_column"]) == {"dob"}

@@ -3,7 +3,7 @@
 One call for notebook users::
 
     from valuation import value_scheme
-    res = value_scheme("member_data_demo/members.csv", "assumptions/demo_basis.toml")
+    res = value_scheme("assumptions/demo_basis.toml", "member_data_demo/members.csv")
 
 See README.md for the commands and DEVELOPERS.md for the architecture.
 """
@@ -14,7 +14,7 @@ from typing import Any
 
 __version__ = "0.1.0"
 
-__all__ = ["__version__", "value_scheme", "value_members", "value_file_streaming", "load_basis",
+__all__ = ["__version__", "value_scheme", "value_members", "value_file_streaming", "load_basis", "members_from_frame",
            "read_members", "write_run"]
 
 
@@ -32,10 +32,10 @@ def __getattr__(name: str) -> Any:
         from valuation.basis import load_basis
 
         return load_basis
-    if name == "read_members":
-        from valuation.members import read_members
+    if name in ("read_members", "members_from_frame"):
+        from valuation.members import data
 
-        return read_members
+        return getattr(data, name)
     if name == "write_run":
         from valuation.engine.write import write_run
 

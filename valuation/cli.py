@@ -129,18 +129,9 @@ def _say(args: argparse.Namespace, text: str) -> None:
 
 
 def _report_writers(experience: Any = None) -> list:
-    try:
-        from valuation.reports import write_html, write_workbook
-    except ImportError:  # pragma: no cover - reports are part of the package
-        return []
+    from valuation.engine.write import report_writers
 
-    def wb(result: Any, folder: Path) -> None:
-        write_workbook(result, folder / "valuation.xlsx", experience=experience)
-
-    def html(result: Any, folder: Path) -> None:
-        write_html(result, folder / "summary.html", experience=experience)
-
-    return [wb, html]
+    return report_writers(experience)
 
 
 def _headline(result: Any) -> str:
@@ -226,7 +217,7 @@ def cmd_run(args: argparse.Namespace) -> int:
             _warn_ignored(args, data.ignored_columns)
             _exclusion_gate(args, basis, args.members, data.read, data.valued, data.excluded)
             experience = _experience(args, basis) if args.deaths else None
-            result = value_members(data, basis, sensitivities=not args.no_sensitivities, chunk_size=args.chunk_size,
+            result = value_members(basis, data, sensitivities=not args.no_sensitivities, chunk_size=args.chunk_size,
                                    progress=progress, input_files=experience_files)
             progress("writing", 0, 1)
             writers = [] if args.no_reports else _report_writers(experience)
@@ -251,7 +242,7 @@ def _run_streaming(
     from valuation.engine.write import atomic_folder, write_into
 
     with atomic_folder(out, overwrite=args.overwrite, inputs=inputs) as tmp:
-        result = value_file_streaming(args.members, basis, chunk_rows=args.chunk_size,
+        result = value_file_streaming(basis, args.members, chunk_rows=args.chunk_size,
                                       member_results_path=tmp / "members.parquet",
                                       sensitivities=not args.no_sensitivities, progress=progress,
                                       fmt=_input_format(args))

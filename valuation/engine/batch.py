@@ -150,7 +150,7 @@ def run_batch(
             if say is not None and data.excluded:
                 say(f"run '{run.name}': {data.excluded:,} of {data.read:,} records excluded (listed in its "
                     "exceptions.csv)")
-            result = value_members(data, basis, sensitivities=run.sensitivities)
+            result = value_members(basis, data, sensitivities=run.sensitivities)
             folder = tmp_root / run.name
             folder.mkdir()
             write_into(result, folder, writers() if writers else None)

@@ -62,3 +62,19 @@ class ValuationResult:
     @property
     def total_liability(self) -> float:
         return float(self.summary["liability"]["total"])
+
+    #: The frames :meth:`to_pandas` converts, in this order.
+    FRAMES = ("liabilities", "cashflows", "members", "sensitivities", "life_expectancy", "expected_deaths",
+              "exceptions")
+
+    def to_pandas(self) -> dict[str, Any]:
+        """Every table of the result as a pandas DataFrame, by name (``liabilities``, ``cashflows``,
+        ``members``, ``sensitivities``, ``life_expectancy``, ``expected_deaths``, ``exceptions``).
+
+        ``summary`` is already plain Python (a dict). Needs pandas (``pip install 'valuation[pandas]'``).
+        """
+        try:
+            import pandas  # noqa: F401
+        except ImportError:
+            raise ImportError("to_pandas needs pandas: pip install 'valuation[pandas]' (or pip install pandas)") from None
+        return {name: getattr(self, name).to_pandas() for name in self.FRAMES}

@@ -1,6 +1,6 @@
 """The valuation run: value a scheme on a basis, with sensitivities, and assemble the results.
 
-``value_scheme(members_path, basis_path)`` is the one call a notebook user needs; it returns a
+``value_scheme(basis, members)`` is the one call a notebook user needs; it returns a
 :class:`~valuation.engine.results.ValuationResult` with polars data frames. ``write_run`` writes a run
 folder (summary.json, cashflows.csv, exceptions.csv, liabilities.csv, members.parquet, ...).
 
@@ -434,9 +434,17 @@ def input_hashes(paths: Iterable[str | Path | None]) -> dict[str, str]:
     return out
 
 
+def _member_inputs(member_data: Any) -> dict[str, str]:
+    """The member records' entry in the manifest: the file's SHA-256, or the data frame's."""
+    digest = getattr(member_data, "digest", None)
+    if digest is not None:
+        return {str(member_data.path): digest}
+    return input_hashes([member_data.path])
+
+
 def value_members(
-    member_data: Any,
     basis: Any,
+    member_data: Any,
     *,
     q_multiplier: float = 1.0,
     sensitivities: bool = True,
@@ -449,6 +457,10 @@ def value_members(
     ``q_multiplier`` scales every mortality rate (used by the experience analysis to re-value at an
     implied percentage of the table). Returns the full results; nothing is written.
     """
+    from valuation.basis.model import Basis
+
+    if not isinstance(basis, Basis) and isinstance(member_data, Basis):
+        raise TypeError("value_members takes the basis first: value_members(basis, member_data)")
     started = datetime.now(timezone.utc)
     t0 = time.perf_counter()
     records: pl.DataFrame = member_data.records
@@ -470,25 +482,52 @@ def value_members(
     return acc.finish(
         read=member_data.read, valued=member_data.valued, excluded=member_data.excluded,
         counts=member_data.counts_by_status(), exceptions=member_data.exceptions,
-        inputs=input_hashes([member_data.path, basis.source_path, *input_files]), started=started,
+        inputs=_member_inputs(member_data) | input_hashes([basis.source_path, *input_files]), started=started,
         run_seconds=time.perf_counter() - t0,
         settings={"sensitivities": sensitivities, "q_multiplier": q_multiplier, "chunk_size": chunk_size},
         ignored_columns=list(getattr(member_data, "ignored_columns", []) or []),
     )
 
 
-def value_scheme(members_path: str | Path, basis_path: str | Path, **kw: Any) -> ValuationResult:
-    """Read the member file and the basis, then value the scheme (see :func:`value_members`).
+_MEMBER_SUFFIXES = (".csv", ".txt", ".xlsx", ".parquet")
+
+
+def value_scheme(basis: Any, members: Any, *, fmt: Any = None, **kw: Any) -> ValuationResult:
+    """Value a scheme: the basis first (a TOML path or a loaded ``Basis``), then the members.
+
+    Parameters
+    ----------
+    basis : str, Path or Basis
+        The assumptions basis file, or a basis from :func:`valuation.basis.load_basis`.
+    members : str, Path, polars.DataFrame, pandas.DataFrame or MemberData
+        A member file (CSV, XLSX or Parquet), a data frame with the same columns (mapped through the
+        basis's ``[mapping]`` as a file's headers are), or records already read with ``read_members``.
+    fmt : InputFormat, optional
+        A member file's delimiter and encoding, or sheet, where they are not the usual ones.
+    **kw
+        Passed to :func:`value_members` (``sensitivities``, ``chunk_size``, ``progress``...).
 
     Example
     -------
     >>> from valuation import value_scheme                      # doctest: +SKIP
-    >>> res = value_scheme("member_data_demo/members.csv", "assumptions/demo_basis.toml")  # doctest: +SKIP
+    >>> res = value_scheme("assumptions/demo_basis.toml", "member_data_demo/members.csv")  # doctest: +SKIP
     >>> res.summary["liability"]["total"]                       # doctest: +SKIP
     """
     from valuation.basis import load_basis
-    from valuation.members import read_members
+    from valuation.basis.model import Basis
+    from valuation.errors import ValuationError
+    from valuation.members.data import MemberData, members_from_frame, read_members
+    from valuation.members.readers import DEFAULT_FORMAT
 
-    basis = load_basis(basis_path)
-    data = read_members(members_path, basis)
-    return value_members(data, basis, **kw)
+    if (isinstance(basis, (str, Path)) and Path(basis).suffix.lower() in _MEMBER_SUFFIXES
+            and isinstance(members, (str, Path)) and Path(members).suffix.lower() == ".toml"):
+        raise ValuationError("the basis comes first: value_scheme(basis, members), as on the command line",
+                             file=basis, fix=f"call value_scheme('{members}', '{basis}')")
+    loaded = basis if isinstance(basis, Basis) else load_basis(basis)
+    if isinstance(members, MemberData):
+        data = members
+    elif isinstance(members, (str, Path)):
+        data = read_members(members, loaded, fmt or DEFAULT_FORMAT)
+    else:
+        data = members_from_frame(members, loaded)
+    return value_members(loaded, data, **kw)

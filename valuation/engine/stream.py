@@ -1,6 +1,6 @@
 """Streaming valuation: read, validate and value a member file chunk by chunk, in flat memory.
 
-:func:`value_file_streaming` gives the same results as ``value_members(read_members(path, basis), basis)``
+:func:`value_file_streaming` gives the same results as ``value_members(basis, read_members(path, basis))``
 but never holds more than one chunk of the member file: a first pass reads only the ``member_id`` column
 to find duplicated ids (the one check that needs the whole file), then each chunk of records is validated
 with the same rules and messages as :func:`valuation.members.read_members` (row numbers are the file's:
@@ -120,8 +120,8 @@ def _checked_chunks(
 
 
 def value_file_streaming(
-    members_path: str | Path,
     basis: Any,
+    members_path: str | Path,
     *,
     chunk_rows: int = DEFAULT_CHUNK,
     member_results_path: str | Path | None = None,
@@ -133,11 +133,11 @@ def value_file_streaming(
 
     Parameters
     ----------
+    basis : Basis
+        The assumptions basis (from ``load_basis``).
     members_path : str or Path
         The member file. CSV and Parquet are read ``chunk_rows`` records at a time; an XLSX file (small by
         nature) is read whole with :func:`~valuation.members.read_members` and valued in chunks.
-    basis : Basis
-        The assumptions basis (from ``load_basis``).
     chunk_rows : int
         Records read, validated and valued at a time [records]. Memory grows with this, not with the file.
     member_results_path : str or Path, optional
@@ -155,7 +155,7 @@ def value_file_streaming(
     -------
     ValuationResult
         The same summary, liabilities, cash flows, sensitivities, expected deaths and exceptions as
-        ``value_members(read_members(members_path, basis), basis)``, except that ``members`` is an
+        ``value_members(basis, read_members(members_path, basis))``, except that ``members`` is an
         **empty frame**: the per-member rows are in ``extra["members_path"]`` (the Parquet file, or
         ``None`` when ``member_results_path`` was not given). Duplicated ids are found across the whole
         file, so every copy is excluded with the same reason and row list as ``read_members`` gives.
@@ -171,6 +171,8 @@ def value_file_streaming(
     IAS 19 *Employee Benefits*, paras 67-69, 145 and 147, as in :mod:`valuation.engine.run` (streaming
     changes how records are read, never how they are valued).
     """
+    if isinstance(basis, (str, Path)):
+        raise TypeError("value_file_streaming takes the loaded basis first: value_file_streaming(basis, members_path)")
     started = datetime.now(timezone.utc)
     t0 = time.perf_counter()
     p = Path(members_path)

@@ -327,8 +327,8 @@ def liability_effect(
     from valuation.members import read_members
 
     data = read_members(valuation_members_path, basis)
-    before = value_members(data, basis, sensitivities=False).total_liability
-    after = value_members(data, changed, sensitivities=False).total_liability
+    before = value_members(basis, data, sensitivities=False).total_liability
+    after = value_members(changed, data, sensitivities=False).total_liability
     change = 100.0 * (after / before - 1.0) if before else None
     return {
         "liability_before": before,

@@ -12,6 +12,7 @@ from typing import Any
 _EXPORTS = {
     "MemberData": "valuation.members.data",
     "read_members": "valuation.members.data",
+    "members_from_frame": "valuation.members.data",
     "write_exceptions": "valuation.members.data",
     "synth_scheme": "valuation.members.synth",
     "to_admin_format": "valuation.members.synth",

@@ -6,9 +6,11 @@ row 2 (for Parquet, which has no header row, the same numbering is used: first r
 
 from __future__ import annotations
 
+import hashlib
 from collections.abc import Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
+from typing import Any
 
 import numpy as np
 import polars as pl
@@ -56,6 +58,8 @@ class MemberData:
     excluded: int
     ignored_columns: list[str] = field(default_factory=list)
     _status_counts: pl.DataFrame | None = None
+    #: SHA-256 of the records as given, for records that came from a data frame rather than a file.
+    digest: str | None = None
 
     def counts_by_status(self) -> pl.DataFrame:
         """Records read, valued and excluded by status, with a ``total`` row last.
@@ -381,6 +385,40 @@ def read_members(path: str | Path, basis: Basis, fmt: InputFormat = DEFAULT_FORM
         path=p, records=checked.records, exceptions=checked.exceptions, read=checked.read,
         valued=checked.records.height, excluded=checked.read - checked.records.height,
         ignored_columns=checked.ignored_columns, _status_counts=sum_counts([checked.counts]),
+    )
+
+
+def members_from_frame(frame: Any, basis: Basis, *, name: str = "(data frame)") -> MemberData:
+    """Validate member records held in a polars or pandas data frame, as :func:`read_members` does a file.
+
+    Columns are matched and mapped as a file's headers are. Every value is read as text first (dates and
+    date-times become ISO dates, numbers their decimal text), then parsed and checked by the same rules.
+    ``name`` stands for the file in exceptions and messages; rows are numbered as in a file whose header
+    is row 1 (the frame's first record is row 2).
+
+    Raises
+    ------
+    TypeError
+        ``frame`` is neither a polars nor a pandas data frame.
+    DataError
+        As :func:`read_members`: a required column is absent, a mapped header is missing...
+    """
+    if isinstance(frame, pl.DataFrame):
+        df = frame
+    elif type(frame).__module__.split(".")[0] == "pandas" and type(frame).__name__ == "DataFrame":
+        df = pl.from_pandas(frame)
+    else:
+        raise TypeError(f"members must be a file path, a polars or a pandas DataFrame, not {type(frame).__name__}")
+    df = df.with_columns(pl.col(pl.Datetime).dt.date())
+    text = df.with_columns(pl.all().cast(pl.String))
+    text.columns = [str(c) for c in text.columns]
+    p = Path(name)
+    checked = validate_frame(map_headers(text, basis.mapping, p), basis, p, headers=text.columns)
+    digest = hashlib.sha256(text.write_csv().encode("utf-8")).hexdigest()
+    return MemberData(
+        path=p, records=checked.records, exceptions=checked.exceptions, read=checked.read,
+        valued=checked.records.height, excluded=checked.read - checked.records.height,
+        ignored_columns=checked.ignored_columns, _status_counts=sum_counts([checked.counts]), digest=digest,
     )
 
 
