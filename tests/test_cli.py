@@ -24,7 +24,7 @@ MEMBERS = ROOT / "member_data_demo" / "members.csv"
 DIRTY = ROOT / "member_data_demo" / "members_dirty.csv"
 
 
-@pytest.mark.parametrize("cmd", ["run", "check", "batch", "synth", "experience"])
+@pytest.mark.parametrize("cmd", ["run", "check", "batch", "synth", "experience", "table"])
 def test_help_has_examples(cmd, capsys):
     with pytest.raises(SystemExit) as exc:
         main([cmd, "--help"])
@@ -131,3 +131,17 @@ def test_stream_option_gives_the_same_liability(tmp_path):
     assert a["liability"]["total"] == pytest.approx(b["liability"]["total"], rel=1e-12)
     assert (tmp_path / "a" / "members.parquet").exists()
     assert not [p for p in tmp_path.iterdir() if p.name.startswith(".")]
+
+
+def test_table_command_describes_and_draws(tmp_path, capsys):
+    """`valuation table` on the bundled SULT: the values it prints are the table's own (the SULT of
+    Dickson, Hardy & Waters, Actuarial Mathematics for Life Contingent Risks, App. D: q_60 = 0.003398)."""
+    sult = ROOT / "valuation" / "mortality" / "data" / "sult.csv"
+    chart = tmp_path / "q.png"
+    assert main(["table", str(sult), "--chart", str(chart)]) == 0
+    out = capsys.readouterr().out
+    assert "ages 20-120" in out and "60 0.00339821" in out
+    assert chart.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+    assert main(["table", str(sult), "--chart", str(chart)]) == 3  # never overwritten unasked
+    assert main(["table", str(sult), "--name", "NOPE"]) == 3
+    assert "NOPE" in capsys.readouterr().err

@@ -362,6 +362,24 @@ def cmd_experience(args: argparse.Namespace) -> int:
     return EXIT_OK
 
 
+def cmd_table(args: argparse.Namespace) -> int:
+    from valuation.engine.write import atomic_file, check_output_file
+    from valuation.mortality.inspect import describe_tables, table_chart
+
+    if args.chart:
+        if Path(args.chart).suffix.lower() != ".png":
+            raise ValuationError("the chart file must end in .png", file=args.chart, fix="for example --chart q.png")
+        check_output_file(args.chart, overwrite=args.overwrite)
+    elif args.overwrite:
+        args.parser.error("--overwrite applies to --chart only")
+    _print(describe_tables(args.file, args.name))
+    if args.chart:
+        with atomic_file(args.chart, overwrite=args.overwrite) as tmp:
+            table_chart(args.file, args.name, tmp)
+        _say(args, f"chart written to {args.chart}")
+    return EXIT_OK
+
+
 def _experience_options(sp: Any) -> None:
     sp.add_argument("--exits", type=existing_file, help="other exits: member_id, exit_date, reason")
     sp.add_argument("--exposure", choices=["central", "initial"], default=None,
@@ -488,6 +506,18 @@ def build_parser() -> argparse.ArgumentParser:
     _overwrite(e, "a previous experience folder in --out")
     common(e)
     e.set_defaults(parser=e, func=cmd_experience)
+    t = sub.add_parser("table", help="look at a mortality table or improvement scale file before using it",
+                       formatter_class=fmt, epilog=textwrap.dedent("""\
+        examples:
+          valuation table tables/downloaded.xml
+          valuation table tables/downloaded.xml --name "My table" --chart q.png
+        """) + EPILOG_EXIT)
+    t.add_argument("file", type=existing_file, help="table file: XTbML (.xml), CSV or XLSX")
+    t.add_argument("--name", help="only this table of a file with several (as listed)")
+    t.add_argument("--chart", help="also draw the table's rates by age to this new PNG file")
+    _overwrite(t, "an existing --chart file")
+    common(t)
+    t.set_defaults(parser=t, func=cmd_table)
     return p
 
 
