@@ -135,7 +135,8 @@ def test_stream_option_gives_the_same_liability(tmp_path):
 
 def test_table_command_describes_and_draws(tmp_path, capsys):
     """`valuation table` on the bundled SULT: the values it prints are the table's own (the SULT of
-    Dickson, Hardy & Waters, Actuarial Mathematics for Life Contingent Risks, App. D: q_60 = 0.003398)."""
+    Dickson, Hardy & Waters, Actuarial Mathematics for Life Contingent Risks, App. D: q_60 = 0.003398,
+    from memory)."""
     sult = ROOT / "valuation" / "mortality" / "data" / "sult.csv"
     chart = tmp_path / "q.png"
     assert main(["table", str(sult), "--chart", str(chart)]) == 0
