@@ -146,7 +146,7 @@ def _reversion_with_deaths_before_start(
         if tau < s_k:
             df = f - f_prev
             if df != 0.0:
-                m = min((tau + 5) // 12, n_exits - 1)
+                m = min((tau + 5) // 12, n_exits - 1)  # mid-year exits (months 6, 18, ...) before tau
                 for j in range(J):
                     g = growth[j, tau]
                     if use_service:
