@@ -2,7 +2,8 @@
 
 The TOML layout (every section optional unless marked):
 
-- ``name``, ``valuation_date`` (required);
+- ``name``, ``valuation_date`` (required); ``currency``: the ISO 4217 code of the money amounts (e.g.
+  ``"GBP"``), shown beside every amount in the reports; left out, amounts are shown without a currency;
 - ``[discount]`` and ``[inflation]`` (required): ``rate`` or ``curve`` (+ ``extrapolation``);
 - ``[salary]`` ``growth``; ``[benefits]`` ``design``, ``accrual_rate``, ``retirement_age``,
   ``death_in_service_lump_sum``, ``default_tranche``;
@@ -48,6 +49,7 @@ from valuation.errors import BasisError, ValuationError, describe
 from valuation.members.schema import OUR_COLUMNS, known_columns, tranche_column
 
 _TRANCHE_NAME = re.compile(r"^[a-z][a-z0-9_]*$")
+_CURRENCY = re.compile(r"[A-Z]{3}")
 
 
 class SalaryAssumption(BaseModel):
@@ -123,6 +125,8 @@ class Basis(BaseModel):
     source_path: Path
     name: str = Field(min_length=1)
     valuation_date: date
+    #: ISO 4217 currency code of every amount (three capital letters); None: amounts carry no currency.
+    currency: str | None = None
     discount: RateSpec
     inflation: RateSpec
     salary: SalaryAssumption = SalaryAssumption()
@@ -141,6 +145,14 @@ class Basis(BaseModel):
     _cache: dict[Any, Any] = PrivateAttr(default_factory=dict)
 
     # ---- cross-section checks ------------------------------------------------------------------------
+
+    @field_validator("currency")
+    @classmethod
+    def _currency_code(cls, v: str | None) -> str | None:
+        if v is not None and not _CURRENCY.fullmatch(v):
+            raise ValueError('give the ISO 4217 code of the currency, three capital letters such as "GBP", '
+                             '"EUR" or "USD"')
+        return v
 
     @field_validator("tranches")
     @classmethod
