@@ -301,7 +301,8 @@ class Basis(BaseModel):
             from valuation.mortality.bundled import resolve_table
 
             try:
-                table = resolve_table(entry.table, self.base_dir, entry.table_name)
+                closing = {"closing": "set_last_to_one"} if entry.closing == "at_last_age" else {}
+                table = resolve_table(entry.table, self.base_dir, entry.table_name, **closing)
                 improvement = build_improvement(entry.improvement, self.base_dir)
                 mb = MortalityBasis(
                     table,

@@ -137,7 +137,8 @@ class MortalityEntry(BaseModel):
     ``table`` is a bundled name (``SULT``, ``DEMO_M``, ``DEMO_F``) or a file path relative to the TOML file
     (CSV, XLSX or XTbML as downloaded); ``table_name`` picks a column / table inside a file. ``percentage``
     is a multiplier (0.95 = 95 % of the table's q) and ``age_rating`` whole years added to age (+1 = rated
-    one year older). ``base_year`` overrides the table's own base year for improvement.
+    one year older). ``base_year`` overrides the table's own base year for improvement. ``closing`` says
+whether a table that stops short of q = 1 is refused (``"require"``, the default) or closed at its last age.
 
     Period tables (an XTbML table by age and calendar year): without ``base_year`` each calendar year uses
     its own rates, years before the table its first year's rates, and years after the table its last
@@ -153,6 +154,10 @@ class MortalityEntry(BaseModel):
     age_rating: int = Field(default=0, ge=-20, le=20)
     improvement: ImprovementSpec = NoImprovementSpec(kind="none")
     base_year: int | None = Field(default=None, ge=1800, le=2300)
+    #: ``"require"``: the table must end with q = 1 at its last age (a closed table). ``"at_last_age"``: many
+    #: downloaded tables stop before anyone is certain to have died; the table is then closed at its last
+    #: age (q set to 1 there, everyone alive at that age dies within the year). Stated in the run's basis.
+    closing: Literal["require", "at_last_age"] = "require"
 
 
 MortalityEntries = dict[EntryGroup, dict[Literal["M", "F"], MortalityEntry]]

@@ -220,7 +220,8 @@ def validate_table(table: MortalityTable, *, file: str, first_row: int | None = 
         raise TableError(
             f"no closing age: q = {q[-1]:g} at the last age {table.max_age}; expected q = 1",
             file=file, row=row(k), column=table.name,
-            fix=f"add a row after age {table.max_age} for the closing age, with q = 1 (no life survives it)",
+            fix=f"add a row after age {table.max_age} for the closing age, with q = 1 (no life survives it), or "
+                'set closing = "at_last_age" in the basis\'s mortality entry to close the table at its last age',
         )
     s = table.select_qx
     if s is not None:
