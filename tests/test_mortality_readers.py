@@ -198,7 +198,8 @@ def test_no_closing_age_fix_is_in_terms_of_the_file(tmp_path):
     path = write_csv(tmp_path / "t.csv", "age,M\n60,0.01\n61,0.02\n62,0.5")
     with pytest.raises(TableError) as e:
         load_tables(path)
-    assert e.value.fix == "add a row after age 62 for the closing age, with q = 1 (no life survives it)"
+    assert e.value.fix.startswith("add a row after age 62 for the closing age, with q = 1 (no life survives it)")
+    assert 'closing = "at_last_age"' in e.value.fix  # the basis key, in TOML as a user writes it
     assert "set_last_to_one" not in str(e.value) and "closing=" not in str(e.value)
 
 
