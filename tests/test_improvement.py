@@ -142,7 +142,7 @@ def test_bad_parameters_raise_basis_error():
         ConstantImprovement(1.0)
     with pytest.raises(BasisError, match="at least 1 year"):
         ConvergenceScale([60], [0.03], 0.015, 2020, 0)
-    with pytest.raises(BasisError, match="'linear' or 'smooth'"):
+    with pytest.raises(BasisError, match='"linear" or "smooth"'):
         ConvergenceScale([60], [0.03], 0.015, 2020, 10, shape="cubic")  # type: ignore[arg-type]
     with pytest.raises(BasisError, match="after_last_year"):
         TwoDimensionalScale(60, [2021], [[0.01]], after_last_year="extend")  # type: ignore[arg-type]

@@ -70,7 +70,7 @@ class RateCurve:
         r = float(rate)
         if not np.isfinite(r) or r <= -1.0:
             raise BasisError(
-                f"discount rate {rate!r} is not a rate above -100%",
+                f"discount rate {float(rate):g} is not a rate above -100%",
                 column="rate",
                 fix="give an annual effective rate such as 0.045",
             )
@@ -90,7 +90,7 @@ class RateCurve:
         """
         if extrapolation not in _EXTRAPOLATION:
             raise BasisError(
-                f"extrapolation {extrapolation!r} is not one of {', '.join(_EXTRAPOLATION)}",
+                f"extrapolation \"{extrapolation}\" is not one of {', '.join(_EXTRAPOLATION)}",
                 column="extrapolation",
                 fix="use 'flat_spot' or 'flat_forward'",
             )

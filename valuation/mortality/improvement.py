@@ -42,7 +42,7 @@ def _check_rates(rates: np.ndarray, what: str) -> None:
     if bad.any():
         v = rates.flat[int(np.argmax(bad))]
         raise BasisError(
-            f"{what}: improvement rate {v!r} is not a number strictly between -1 and 1",
+            f"{what}: improvement rate {float(v):g} is not a number strictly between -1 and 1",
             column=what, fix="give rates as decimals per annum, e.g. 0.015 for 1.5 %",
         )
 
@@ -232,7 +232,7 @@ class TwoDimensionalScale(ImprovementScale):
         self.rate_values = np.asarray(rates, dtype=np.float64)
         if after_last_year not in ("hold_last", "long_term", "zero"):
             raise BasisError(
-                f"after_last_year must be 'hold_last', 'long_term' or 'zero', not {after_last_year!r}"
+                f"after_last_year must be \"hold_last\", \"long_term\" or \"zero\", not \"{after_last_year}\""
             )
         if self.years.ndim != 1 or self.years.size == 0 or (np.diff(self.years) != 1).any():
             raise BasisError("improvement years must be contiguous and ascending", column="years")
@@ -310,7 +310,7 @@ class ConvergenceScale(ImprovementScale):
         if (np.diff(self.initial_ages) != 1).any():
             raise BasisError("initial improvement ages must be contiguous and ascending", column="initial_ages")
         if shape not in ("linear", "smooth"):
-            raise BasisError(f"convergence shape must be 'linear' or 'smooth', not {shape!r}", column="shape")
+            raise BasisError(f"convergence shape must be \"linear\" or \"smooth\", not \"{shape}\"", column="shape")
         if int(convergence_years) < 1:
             raise BasisError(
                 f"convergence period must be at least 1 year, got {convergence_years}", column="convergence_years"
