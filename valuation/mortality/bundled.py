@@ -41,10 +41,10 @@ _SPECS: dict[str, tuple[str, str, Makeham, int, int, int | None, str]] = {
              "Standard Ultimate Life Table from its Makeham law A=0.00022, B=2.7e-6, c=1.124 "
              "(Dickson, Hardy & Waters, AMLCR, Appendix D); ages 20-120; closing rule q_120 = 1"),
     "DEMO_M": ("demo.csv", "DEMO_M", DEMO_LAW_MALE, 0, 120, DEMO_BASE_YEAR,
-               "Illustrative Gompertz-Makeham law A=0.0005, B=3e-5, c=1.1 (not fitted to any population); "
+               "Illustrative Gompertz-Makeham law A=0.0005, B=2.1e-5, c=1.1 (not fitted to any population); "
                "ages 0-120; closing rule q_120 = 1; base year 2020"),
     "DEMO_F": ("demo.csv", "DEMO_F", DEMO_LAW_FEMALE, 0, 120, DEMO_BASE_YEAR,
-               "Illustrative Gompertz-Makeham law A=0.0004, B=1.6e-5, c=1.1 (not fitted to any population); "
+               "Illustrative Gompertz-Makeham law A=0.0003, B=1.9e-5, c=1.1 (not fitted to any population); "
                "ages 0-120; closing rule q_120 = 1; base year 2020"),
 }
 
