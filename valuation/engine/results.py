@@ -36,8 +36,9 @@ class ValuationResult:
         liability``. ``benefit`` is one of ``member_pension, spouse_pension, lump_sum``.
     cashflows
         One row a projection year: ``year`` (1 = the first year after the valuation date), one column a
-        status (nominal expected payments in that year), ``total``, ``discount_factor`` (mid-year) and
-        ``discounted_total``.
+        status (nominal expected payments in that year), ``total``, ``discount_factor`` (the payment-weighted factor
+        of the year's monthly payments, so ``total * discount_factor == discounted_total``) and
+        ``discounted_total`` (the rows add up to the liability).
     members
         One row a valued member: ``member_id, status, sex, age, pension, liability, annuity_factor`` and
         the spouse's share ``spouse_liability``.
