@@ -9,36 +9,26 @@ when no Chromium is installed (CI installs it through .ci/run).
 from __future__ import annotations
 
 import re
-import shutil
-import subprocess
 from pathlib import Path
 
 import numpy as np
 import pytest
 from matplotlib.image import imread
 
-from tests.test_reports_fixture import real_run
+from tests.reports_tools import CHROMIUM, chromium, with_frequent_probes
+from tests.test_reports_fixture import IMG_PROBE, SCRIPT_PROBE, real_run
 from valuation.reports import write_html
 
-CHROMIUM = shutil.which("chromium") or shutil.which("chromium-browser") or (
-    "/usr/bin/chromium" if Path("/usr/bin/chromium").exists() else None)
-FLAGS = ["--headless", "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
-         "--disable-background-networking", "--disable-component-update", "--disable-sync"]
-
 pytestmark = pytest.mark.skipif(CHROMIUM is None, reason="chromium is not installed (apt-get install chromium)")
-
-
-def _run(tmp: Path, *args: str) -> subprocess.CompletedProcess:
-    profile = tmp / "profile"
-    profile.mkdir(exist_ok=True)
-    return subprocess.run([CHROMIUM, *FLAGS, f"--user-data-dir={profile}", *args], capture_output=True,
-                          text=True, timeout=90, check=False)
+_run = chromium
 
 
 @pytest.fixture(scope="module")
 def page(tmp_path_factory: pytest.TempPathFactory) -> Path:
+    """The real run's page, its probe reasons common enough to be listed (the page lists the commonest)."""
     result, experience = real_run()
-    return write_html(result, tmp_path_factory.mktemp("browser") / "summary.html", experience)
+    return write_html(with_frequent_probes(result, [SCRIPT_PROBE, IMG_PROBE]),
+                      tmp_path_factory.mktemp("browser") / "summary.html", experience)
 
 
 def test_screenshot_is_not_blank(page: Path, tmp_path: Path) -> None:

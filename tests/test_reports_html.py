@@ -10,10 +10,14 @@ escaping: text ``<`` must appear as ``&lt;`` (from memory); OWASP XSS Prevention
 
 from __future__ import annotations
 
+import html
+import re
 from html.parser import HTMLParser
 
+import polars as pl
 import pytest
 
+from tests.reports_tools import with_frequent_probes
 from tests.test_reports_fixture import (
     IMG_PROBE,
     SCRIPT_PROBE,
@@ -22,7 +26,9 @@ from tests.test_reports_fixture import (
     make_result,
     real_run,
 )
+from valuation.engine.results import ValuationResult
 from valuation.reports import write_html
+from valuation.reports.content import TOP_REASONS
 from valuation.reports.html import render_html
 
 VOID = {"area", "base", "br", "col", "embed", "hr", "img", "input", "link", "meta", "source", "track", "wbr"}
@@ -85,9 +91,14 @@ def parse(text: str) -> Page:
 
 
 @pytest.fixture(scope="module")
-def page_text(tmp_path_factory: pytest.TempPathFactory) -> str:
-    result, experience = real_run()
-    path = write_html(result, tmp_path_factory.mktemp("html") / "out" / "summary.html", experience)
+def probed() -> ValuationResult:
+    """The real run with the probe reasons made common enough to be among the reasons the page lists."""
+    return with_frequent_probes(real_run()[0], [SCRIPT_PROBE, IMG_PROBE])
+
+
+@pytest.fixture(scope="module")
+def page_text(tmp_path_factory: pytest.TempPathFactory, probed: ValuationResult) -> str:
+    path = write_html(probed, tmp_path_factory.mktemp("html") / "out" / "summary.html", real_run()[1])
     return path.read_text(encoding="utf-8")
 
 
@@ -181,15 +192,34 @@ def test_tables_show_the_result_figures(page_text: str) -> None:
     assert f"{100 * overall['ae_lives_lower']:.0f}% to {100 * overall['ae_lives_upper']:.0f}%" in text
 
 
-def test_data_section_counts_reasons_from_exceptions(page_text: str) -> None:
-    """Each reason of result.exceptions appears with its count."""
-    result = real_run()[0]
-    counts = result.exceptions.group_by("reason").len()
-    page = parse(page_text)
-    text = words(page)
-    for reason, n in counts.iter_rows():
-        assert f"{' '.join(reason.split())} {n}" in text
-    rec = result.summary["records"]
+def _reason_rows(page_html: str) -> list[tuple[str, str, int]]:
+    """(outcome, reason, records) of the "Data problems found" table."""
+    table = page_html[page_html.index("Data problems found"):]
+    table = table[:table.index("</table>")]
+    rows = []
+    for row in re.findall(r"<tr>(.*?)</tr>", table, flags=re.S):
+        cells = [html.unescape(re.sub(r"<[^>]+>", "", c)).strip() for c in re.findall(r"<td[^>]*>(.*?)</td>", row, flags=re.S)]
+        if len(cells) == 3:
+            rows.append((cells[0], " ".join(cells[1].split()), int(cells[2].replace(",", ""))))
+    return rows
+
+
+def test_data_section_counts_reasons_from_exceptions(page_text: str, probed: ValuationResult) -> None:
+    """The page lists the commonest kinds of problem (issue 9: at most TOP_REASONS, records left out first,
+    then those valued with a warning, each by count), each with its count from the exceptions."""
+    counts = (probed.exceptions.group_by("severity", "reason").len()
+              .with_columns((pl.col("severity") != "excluded").alias("warning_only"))
+              .sort(["warning_only", "len", "reason"], descending=[False, True, False]))
+    assert counts.height > TOP_REASONS  # the demo's dirty file has more kinds than the page lists
+    shown = _reason_rows(page_text)
+    expected = [("Left out" if sev == "excluded" else "Valued, with a warning", " ".join(reason.split()), n)
+                for sev, reason, n in counts.head(TOP_REASONS).select("severity", "reason", "len").iter_rows()]
+    assert shown == expected
+    assert any(SCRIPT_PROBE in reason for _, reason, _ in shown)
+    more = counts.height - TOP_REASONS
+    text = words(parse(page_text))
+    assert f"and {more} more kind{'s' if more > 1 else ''} of problem" in text
+    rec = probed.summary["records"]
     assert f"{rec['read']} records were read: {rec['valued']} were valued and {rec['excluded']} were left out" in text
 
 

@@ -1,8 +1,14 @@
 """Inline SVG charts for the HTML summary, drawn with matplotlib (Agg backend).
 
 Charts are drawn from numbers and from our own labels only (status names, years, age bands rebuilt
-from their numbers), never from text in the member data or the basis, so the SVG can be placed in the
-page as it is. Text stays text in the SVG (``svg.fonttype = "none"``) so it is searchable and small.
+from their numbers, the basis's currency code once checked to be three capital letters), never from other
+text in the member data or the basis, so the SVG can be placed in the page as it is. Text stays text in
+the SVG (``svg.fonttype = "none"``) so it is searchable and small.
+
+Each chart is an image to assistive technology (``role="img"``) with a text alternative that says what it
+shows, figures included: ``aria-label`` and, for browsers and readers that use them, ``<title>`` and
+``<desc>`` (WAI-ARIA Graphics Module, role ``graphics-document``/``img``; WCAG 2.1 success criterion 1.1.1
+Non-text Content).
 """
 
 from __future__ import annotations
@@ -13,6 +19,7 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 import polars as pl
+from markupsafe import escape
 from matplotlib import rc_context
 from matplotlib.figure import Figure
 from matplotlib.ticker import FuncFormatter, MaxNLocator
@@ -20,8 +27,9 @@ from matplotlib.ticker import FuncFormatter, MaxNLocator
 if TYPE_CHECKING:
     from matplotlib.typing import RcKeyType
 
-from valuation.engine.results import STATUSES
+from valuation.reports import format as fmt
 from valuation.reports.content import AE_AXIS_MAX, STATUS_LABELS, chart_bands
+from valuation.vocabulary import STATUSES
 
 #: Colours, one a status, in reporting order; then the accent and the grid colour.
 PALETTE: dict[str, str] = {
@@ -37,15 +45,30 @@ _RC: dict[RcKeyType, Any] = {
     "axes.spines.top": False, "axes.spines.right": False,
 }
 _BAND = re.compile(r"^\s*(\d{1,3})\s*-\s*(\d{1,3})\s*$")
+_CODE = re.compile(r"[A-Z]{3}")
+
+
+def _code(currency: str | None) -> str | None:
+    """The currency code if it is one (three capital letters), else None: only such text reaches a chart."""
+    return currency if currency and _CODE.fullmatch(currency) else None
+
+
+def _unit(currency: str | None) -> str:
+    return f" [{_code(currency)}]" if _code(currency) else ""
 
 
 def _thousands(x: float, _pos: int) -> str:
-    return f"{x / 1e6:,.1f}m" if abs(x) >= 1e6 else f"{x:,.0f}"
+    """Axis ticks: ``25m``, ``2.5m``, ``750,000``."""
+    if abs(x) >= 1e6:
+        text = f"{x / 1e6:,.1f}"
+        return (text[:-2] if text.endswith(".0") else text) + "m"
+    return f"{x:,.0f}"
 
 
-def to_svg(fig: Figure, prefix: str) -> str:
-    """The figure as an inline ``<svg>`` element: no XML prolog or metadata, width set by CSS, and every
-    id prefixed with ``prefix`` so several charts can share one page."""
+def to_svg(fig: Figure, prefix: str, alt: str = "") -> str:
+    """The figure as an inline ``<svg>`` element: no XML prolog or metadata, width set by CSS, every id
+    prefixed with ``prefix`` so several charts can share one page, and ``alt`` (what the chart shows, in
+    words) as its accessible name and description."""
     buf = io.StringIO()
     fig.savefig(buf, format="svg", bbox_inches="tight", metadata={"Date": None, "Creator": None})
     svg = buf.getvalue()
@@ -53,30 +76,60 @@ def to_svg(fig: Figure, prefix: str) -> str:
     svg = re.sub(r"<metadata>.*?</metadata>", "", svg, flags=re.S)
     svg = re.sub(r'\bid="', f'id="{prefix}-', svg)
     svg = re.sub(r'(url\(#|href="#)', rf"\g<1>{prefix}-", svg)
-    return re.sub(r'(<svg[^>]*?) width="[^"]*" height="[^"]*"', r'\1 class="chart" role="img"', svg, count=1)
+    words = str(escape(alt))
+    opening = (rf'\1 class="chart" role="img" aria-label="{words}" aria-describedby="{prefix}-desc"'
+               if alt else r'\1 class="chart" role="img"')
+    svg = re.sub(r'(<svg[^>]*?) width="[^"]*" height="[^"]*"', opening, svg, count=1)
+    if alt:
+        head = svg.index(">", svg.index("<svg")) + 1
+        svg = f'{svg[:head]}\n<title>{words}</title><desc id="{prefix}-desc">{words}</desc>{svg[head:]}'
+    return svg
 
 
-def liability_by_group(by_status: dict[str, float]) -> str:
-    """Horizontal bars of the liability [currency] of each member group."""
+def liability_by_group(by_status: dict[str, float], currency: str | None = None) -> str:
+    """Horizontal bars of the liability of each member group [currency]."""
     keys = [s for s in STATUSES if by_status.get(s)]
     values = np.array([float(by_status[s]) for s in keys])
+    total = float(values.sum()) or 1.0
+    code = _code(currency)
+    alt = "Bar chart of the liability of each member group: " + "; ".join(
+        f"{STATUS_LABELS[s]} {fmt.about_money(v, code)} ({100.0 * v / total:.0f}%)" for s, v in zip(keys, values,
+                                                                                                 strict=True)) + "."
     with rc_context(_RC):
-        fig = Figure(figsize=(7.0, 0.55 * max(len(keys), 1) + 1.0))
+        fig = Figure(figsize=(4.8, 0.36 * max(len(keys), 1) + 0.8))
         ax = fig.subplots()
         ax.barh([STATUS_LABELS[s] for s in keys], values, color=[PALETTE[s] for s in keys])
         ax.invert_yaxis()
+        ax.xaxis.set_major_locator(MaxNLocator(nbins=5))
         ax.xaxis.set_major_formatter(FuncFormatter(_thousands))
-        ax.set_xlabel("Liability [currency]")
+        ax.set_xlabel(f"Liability{_unit(code)}")
         ax.grid(axis="x", color=GRID, linewidth=0.8)
         ax.set_axisbelow(True)
-        return to_svg(fig, "by-group")
+        return to_svg(fig, "by-group", alt if keys else "Bar chart of the liability of each member group: none.")
 
 
-def payments_profile(cashflows: pl.DataFrame) -> str:
-    """Stacked columns of the expected payments [currency] by year, one colour a member group."""
+def _payments_alt(cashflows: pl.DataFrame, code: str | None) -> str:
+    if not cashflows.height or "total" not in cashflows.columns:
+        return "Column chart of the expected payments in each year after the valuation date: none are expected."
+    total = cashflows["total"].fill_null(0.0).to_numpy().astype(float)
+    years = cashflows["year"].to_numpy()
+    peak = int(total.argmax())
+    paying = np.nonzero(total > 0)[0]
+    last = int(years[paying[-1]]) if paying.size else int(years[-1])
+    groups = [STATUS_LABELS[s].lower() for s in STATUSES
+              if s in cashflows.columns and cashflows[s].fill_null(0.0).to_numpy().any()]
+    return (f"Column chart of the expected payments in each year after the valuation date, stacked by member "
+            f"group ({', '.join(groups)}): about {fmt.about_money(total[0], code)} in year {int(years[0])}, "
+            f"rising to a peak of about {fmt.about_money(total[peak], code)} in year {int(years[peak])}, then "
+            f"falling to the last payments in year {last}.")
+
+
+def payments_profile(cashflows: pl.DataFrame, currency: str | None = None) -> str:
+    """Stacked columns of the expected payments by year [currency], one colour a member group."""
     years = cashflows["year"].to_numpy() if cashflows.height else np.array([1])
+    code = _code(currency)
     with rc_context(_RC):
-        fig = Figure(figsize=(8.0, 3.4))
+        fig = Figure(figsize=(8.0, 3.0))
         ax = fig.subplots()
         bottom = np.zeros(len(years))
         for s in STATUSES:
@@ -89,13 +142,13 @@ def payments_profile(cashflows: pl.DataFrame) -> str:
             bottom += v
         ax.yaxis.set_major_formatter(FuncFormatter(_thousands))
         ax.set_xlabel("Year after the valuation date")
-        ax.set_ylabel("Expected payments [currency]")
+        ax.set_ylabel(f"Expected payments{_unit(code)}")
         ax.grid(axis="y", color=GRID, linewidth=0.8)
         ax.set_axisbelow(True)
         if ax.get_legend_handles_labels()[0]:
             ax.legend(frameon=False, ncol=4, loc="lower left", bbox_to_anchor=(0.0, 1.0))
         ax.xaxis.set_major_locator(MaxNLocator(integer=True))
-        return to_svg(fig, "payments")
+        return to_svg(fig, "payments", _payments_alt(cashflows, code))
 
 
 def band_labels(groups: list[str]) -> list[str]:
@@ -107,31 +160,63 @@ def band_labels(groups: list[str]) -> list[str]:
     return out
 
 
+def ae_axis(bands: pl.DataFrame) -> tuple[float, bool]:
+    """The top of the A/E chart's axis [%] (5 % above the highest upper limit, at least 126 %, at most
+    :data:`AE_AXIS_MAX`) and whether any charted interval runs past it."""
+    bands = chart_bands(bands)
+    hi = (bands["ae_lives_upper"].fill_null(float("nan")).to_numpy().astype(float) * 100.0 if bands.height
+          else np.array([]))
+    hi = hi[np.isfinite(hi)]
+    top = float(min(max(float(hi.max()) if hi.size else 0.0, 120.0) * 1.05, AE_AXIS_MAX))
+    return top, bool((hi > top).any())
+
+
 def ae_by_age(bands: pl.DataFrame) -> str:
     """A/E by lives for each age band with its interval as an error bar, against the 100 % line.
 
-    Only bands from :func:`chart_bands` are drawn; the axis stops at :data:`AE_AXIS_MAX` [%].
+    Only bands from :func:`chart_bands` are drawn; the axis stops at :data:`AE_AXIS_MAX` [%] at most. An
+    interval (or a ratio) that runs past the top of the axis is not clipped silently: its bar ends in an
+    arrow at the top edge, labelled with the interval's upper limit.
     """
     bands = chart_bands(bands)
     labels = band_labels(bands["group"].to_list())
-    ae = bands["ae_lives"].fill_null(float("nan")).to_numpy().astype(float)
-    lo = bands["ae_lives_lower"].fill_null(float("nan")).to_numpy().astype(float)
-    hi = bands["ae_lives_upper"].fill_null(float("nan")).to_numpy().astype(float)
+    ae = bands["ae_lives"].fill_null(float("nan")).to_numpy().astype(float) * 100.0
+    lo = bands["ae_lives_lower"].fill_null(float("nan")).to_numpy().astype(float) * 100.0
+    hi = bands["ae_lives_upper"].fill_null(float("nan")).to_numpy().astype(float) * 100.0
     x = np.arange(len(labels))
+    top, _ = ae_axis(bands)
+    past = np.isfinite(hi) & (hi > top)
     with rc_context(_RC):
-        fig = Figure(figsize=(8.0, 3.4))
+        fig = Figure(figsize=(8.0, 3.0))
         ax = fig.subplots()
         ax.axhline(100.0, color=ACCENT, linewidth=1.2, linestyle="--", label="Expected (100%)")
-        err = np.vstack([np.clip(ae - lo, 0, None), np.clip(hi - ae, 0, None)]) * 100.0
-        ax.errorbar(x, ae * 100.0, yerr=err, fmt="o", color=PALETTE["pensioner"], ecolor="#7a9a95",
+        shown = np.minimum(ae, top)
+        err = np.vstack([np.clip(shown - lo, 0, None), np.clip(np.minimum(hi, top) - shown, 0, None)])
+        ax.errorbar(x, shown, yerr=err, fmt="o", color=PALETTE["pensioner"], ecolor="#7a9a95",
                     elinewidth=2, capsize=4, label="Actual / expected (lives), with interval")
+        if past.any():
+            ax.plot(x[past], np.full(past.sum(), top), linestyle="none", marker="^", markersize=9,
+                    color=ACCENT, clip_on=False, zorder=5, label="Interval runs past the top (upper limit shown)")
+            for xi, h in zip(x[past], hi[past], strict=True):
+                ax.annotate(f"{h:.0f}%", (xi, top), xytext=(7, -4), textcoords="offset points", fontsize=8,
+                            color=INK, ha="left", va="top", annotation_clip=False)
         ax.set_xticks(x, labels)
         ax.set_xlim(-0.6, len(labels) - 0.4)
         ax.set_xlabel("Age band [years]")
         ax.set_ylabel("A/E [%]")
         ax.grid(axis="y", color=GRID, linewidth=0.8)
         ax.set_axisbelow(True)
-        top = np.nanmax(np.append(hi[np.isfinite(hi)] * 100.0, 120.0))
-        ax.set_ylim(0.0, min(top * 1.05, AE_AXIS_MAX))
-        ax.legend(frameon=False, ncol=2, loc="lower left", bbox_to_anchor=(0.0, 1.0))
-        return to_svg(fig, "ae-age")
+        ax.set_ylim(0.0, top)
+        ax.legend(frameon=False, ncol=3, loc="lower left", bbox_to_anchor=(0.0, 1.0), fontsize=8.5)
+        return to_svg(fig, "ae-age", _ae_alt(labels, ae, lo, hi, past, top))
+
+
+def _ae_alt(labels: list[str], ae: np.ndarray, lo: np.ndarray, hi: np.ndarray, past: np.ndarray,
+            top: float) -> str:
+    def pct(v: float) -> str:
+        return f"{v:.0f}%" if np.isfinite(v) else "n/a"
+
+    parts = [f"{g} {pct(a)} ({pct(lo_)} to {pct(h)}{', past the top of the axis' if p else ''})"
+             for g, a, lo_, h, p in zip(labels, ae, lo, hi, past, strict=True)]
+    return (f"Chart of actual deaths as a percentage of expected deaths (lives) for each age band, with its "
+            f"interval, against the expected 100% line; the axis runs to {top:.0f}%. " + "; ".join(parts) + ".")

@@ -10,8 +10,8 @@ from typing import Any
 
 import polars as pl
 
-from valuation.engine.results import STATUSES
 from valuation.reports import format as fmt
+from valuation.vocabulary import STATUSES
 
 #: Plain-words names of the member statuses (the engine's codes are the keys).
 STATUS_LABELS: dict[str, str] = {
@@ -29,21 +29,29 @@ AE_AXIS_MAX = 400.0
 
 @dataclass(frozen=True)
 class Headline:
-    """One headline figure: its key, label, raw value, formatted text and a sentence on its meaning."""
+    """One headline figure: its key, label, raw value, formatted text, a sentence on its meaning and the
+    money unit shown beside it (``""`` for figures that are not money)."""
 
     key: str
     label: str
     value: Any
     text: str
     meaning: str
+    unit: str = ""
 
 
 def headlines(summary: dict[str, Any]) -> list[Headline]:
-    """The headline figures of a run, each with one plain sentence on what it means."""
+    """The headline figures of a run, each with one plain sentence on what it means.
+
+    Money figures are whole units (their unit, the basis's currency code, apart); the sentences round
+    money as a person would say it (:func:`valuation.reports.format.about_money`).
+    """
     liab = summary["liability"]
     rec = summary["records"]
     dur = summary.get("duration", {})
     act = summary.get("active_measures", {})
+    code = fmt.currency_of(summary)
+    unit = code or ""
     if rec["excluded"]:
         data_words = (f"Of the {fmt.number(rec['read'])} records in the member data, {fmt.number(rec['valued'])} "
                       f"were valued and {fmt.number(rec['excluded'])} were left out because their data could not "
@@ -52,22 +60,51 @@ def headlines(summary: dict[str, Any]) -> list[Headline]:
         data_words = f"All {fmt.number(rec['read'])} records in the member data were valued."
     out = [
         Headline("total_liability", "Total liability", liab["total"], fmt.money(liab["total"]),
-                 "The amount that, invested today and earning the discount rate, would pay every pension and "
-                 "lump sum the members have earned so far, if the future turns out as assumed."),
+                 f"About {fmt.about_money(liab['total'], code)}: the amount that, invested today and earning the "
+                 "discount rate, would pay every pension and lump sum the members have earned so far, if the "
+                 "future turns out as assumed.", unit),
         Headline("duration", "Duration", dur.get("macaulay"), fmt.years(dur.get("macaulay")),
                  "The average time until the payments are made, weighted by their present value; the longer "
                  "it is, the more the liability moves when interest rates change."),
         Headline("sedr", "Single equivalent discount rate", summary.get("single_equivalent_discount_rate"),
                  fmt.rate(summary.get("single_equivalent_discount_rate")),
                  "The one flat interest rate that gives the same liability as the discount rate basis."),
-        Headline("members_valued", "Members valued", rec["valued"], fmt.number(rec["valued"]), data_words),
     ]
     if act.get("projected_obligation"):
+        projected, accrued = act.get("projected_obligation"), act.get("accrued_benefit_obligation")
+        out.append(Headline(
+            "active_obligation", "Active members: obligation", projected, fmt.money(projected),
+            "The active members' part of the total liability: their pensions for service so far, on salaries "
+            "projected to retirement or leaving (projected unit credit).", unit))
+        if accrued is not None:
+            gap = float(projected) - float(accrued)
+            out.append(Headline(
+                "accrued_benefit", "Active members: accrued benefits", accrued, fmt.money(accrued),
+                f"The same pensions on today's salaries, as if every active member left now; about "
+                f"{fmt.about_money(gap, code)} less, the cost of future pay rises on past service.", unit))
         out.append(Headline(
             "service_cost", "Cost of next year's benefits", act.get("current_service_cost"),
             fmt.money(act.get("current_service_cost")),
-            "The value of the pension that active members are expected to earn over the coming year."))
+            "The value of the pension that active members are expected to earn over the coming year.", unit))
+    out.append(Headline("members_valued", "Members valued", rec["valued"], fmt.number(rec["valued"]), data_words))
     return out
+
+
+#: The bundled mortality tables in words (valuation/mortality/data/README.md gives their provenance).
+TABLE_WORDS: dict[str, str] = {
+    "SULT": "the Standard Ultimate Life Table, a published teaching table (Dickson, Hardy and Waters)",
+    "DEMO_M": "an invented table for men, for illustration only (not drawn from any population)",
+    "DEMO_F": "an invented table for women, for illustration only (not drawn from any population)",
+}
+_FREQUENCY = {1: "yearly", 2: "half-yearly", 4: "quarterly", 12: "monthly", 52: "weekly"}
+_MONTHS = ("January", "February", "March", "April", "May", "June", "July", "August", "September", "October",
+           "November", "December")
+_FIRST_INCREASE = {
+    "full": "the first increase after a pension starts is paid in full",
+    "proportionate": "the first increase after a pension starts is one twelfth of the full increase for each "
+                     "month in payment",
+    "none": "no increase is paid until a pension has been in payment for a full year",
+}
 
 
 def _rate_words(assumptions: dict[str, Any], name: str) -> tuple[str, str] | None:
@@ -80,9 +117,31 @@ def _rate_words(assumptions: dict[str, Any], name: str) -> tuple[str, str] | Non
     return None
 
 
+def _plural(n: float, word: str) -> str:
+    return f"{fmt.number(n, 0 if float(n).is_integer() else 1)} {word}{'' if n == 1 else 's'}"
+
+
+def _spouse_words(a: dict[str, Any]) -> str | None:
+    married = a.get("proportion_married") or {}
+    if not married or not a.get("spouse_fraction"):
+        return None
+    who = {"M": "men", "F": "women"}
+    parts = " and ".join(f"{fmt.rate(v, 0)} of {who.get(k, k)}" for k, v in married.items())
+    gap = float(a.get("spouse_age_difference") or 0.0)
+    if gap > 0:
+        ages = f"a husband or male partner is taken to be {_plural(gap, 'year')} older than his wife or partner"
+    elif gap < 0:
+        ages = f"a wife or female partner is taken to be {_plural(-gap, 'year')} older than her husband or partner"
+    else:
+        ages = "partners are taken to be the same age"
+    return (f"{parts[0].upper()}{parts[1:]} are assumed to leave a spouse or partner, who receives "
+            f"{fmt.rate(a.get('spouse_fraction'), 0)} of the member's pension; {ages}.")
+
+
 def assumption_lines(summary: dict[str, Any]) -> list[tuple[str, str]]:
     """The key assumptions as (name, words) pairs, readable by a trustee."""
     a = summary.get("assumptions", {})
+    basis = (summary.get("manifest") or {}).get("basis") or {}
     lines: list[tuple[str, str]] = []
     disc = _rate_words(a, "discount")
     if disc:
@@ -97,46 +156,84 @@ def assumption_lines(summary: dict[str, Any]) -> list[tuple[str, str]]:
     if "retirement_age" in a:
         lines.append(("Retirement age", f"{fmt.number(a['retirement_age'])}, unless a member's own retirement "
                       "age is recorded."))
-    married = a.get("proportion_married") or {}
-    if married:
-        parts = ", ".join(f"{SEX_LABELS.get(k, k).lower()} {fmt.rate(v, 0)}" for k, v in married.items())
-        lines.append(("Spouses", f"Proportion with a spouse at death: {parts}; the spouse receives "
-                      f"{fmt.rate(a.get('spouse_fraction'), 0)} of the member's pension; age difference "
-                      f"{fmt.years(a.get('spouse_age_difference'))}."))
-    if "commutation_proportion" in a:
+    spouse = _spouse_words(a)
+    if spouse:
+        lines.append(("Spouses and partners", spouse))
+    if a.get("commutation_proportion"):
+        factor = (basis.get("commutation") or {}).get("factor")
+        cash = (f" for a cash sum of {fmt.number(factor, 0 if float(factor).is_integer() else 1)} times the pension "
+                "given up (the commutation factor)") if factor else " for a cash sum"
         lines.append(("Cash at retirement", f"Members give up {fmt.rate(a['commutation_proportion'], 0)} of "
-                      "their pension for a cash sum."))
+                      f"their pension{cash}."))
     if "payment_frequency" in a:
-        lines.append(("Payments", f"{fmt.number(a['payment_frequency'])} a year, paid in "
-                      f"{a.get('payment_timing', 'advance')}."))
+        freq = int(a["payment_frequency"])
+        how = _FREQUENCY.get(freq, f"{freq} times a year")
+        words = f"Pensions are paid {how}, in {a.get('payment_timing', 'advance')}"
+        payment = basis.get("payment") or {}
+        day = str(payment.get("increase_date") or "")
+        if len(day) == 5 and day[:2].isdigit() and day[3:].isdigit() and 1 <= int(day[:2]) <= 12:
+            words += f"; they increase each year on {int(day[3:])} {_MONTHS[int(day[:2]) - 1]}"
+            rule = _FIRST_INCREASE.get(str(payment.get("first_increase")))
+            if rule:
+                words += f", and {rule}"
+        lines.append(("Payments", words + "."))
     lines.extend(mortality_lines(summary))
     return lines
 
 
+def _improvement_words(imp: dict[str, Any]) -> str:
+    kind = imp.get("kind", "none")
+    if kind == "none":
+        return "no allowance for future improvements"
+    if kind == "constant":
+        return f"improving by {fmt.rate(imp.get('rate'))} a year"
+    if imp.get("long_term_rate") is not None:
+        return f"improving in future, moving to a long-term rate of {fmt.rate(imp.get('long_term_rate'))} a year"
+    return "improving in future by the scale in the basis"
+
+
+_ADJECTIVE = {"M": "male", "F": "female"}
+_GROUP_NOUN = {"pensioner": "pensioners", "dependant": "dependants", "deferred": "deferred members",
+               "active": "active members", "spouse": "spouses"}
+
+
+def _mortality_who(group: str, sex: str, entries: dict[str, Any]) -> str:
+    """Whom a mortality entry covers: ``men``, ``other women`` (the default where some groups have their
+    own), ``male pensioners``."""
+    if group == "default":
+        others = any(sex in (v or {}) for g, v in entries.items() if g != "default")
+        noun = SEX_LABELS.get(sex, sex).lower()
+        return f"other {noun}" if others else noun
+    return f"{_ADJECTIVE.get(sex, sex)} {_GROUP_NOUN.get(group, group)}"
+
+
 def mortality_lines(summary: dict[str, Any]) -> list[tuple[str, str]]:
-    """The mortality assumptions, one line a (group, sex) entry of the basis."""
+    """The mortality assumptions, one line a (group, sex) entry of the basis, then what each table is."""
     basis = summary.get("manifest", {}).get("basis") or {}
     out = []
-    for group, by_sex in (basis.get("mortality") or {}).items():
-        for sex, entry in (by_sex or {}).items():
+    tables: list[str] = []
+    entries = basis.get("mortality") or {}
+    for group in sorted(entries, key=lambda g: g == "default"):  # the groups' own tables, then the default
+        for sex, entry in (entries[group] or {}).items():
             if not isinstance(entry, dict):
                 continue
-            imp = entry.get("improvement") or {}
-            kind = imp.get("kind", "none")
-            if kind == "none":
-                imp_text = "no allowance for future improvements"
-            elif kind == "constant":
-                imp_text = f"improving by {fmt.rate(imp.get('rate'))} a year"
+            rating = int(entry.get("age_rating") or 0)
+            if rating:
+                older = "older" if rating > 0 else "younger"
+                rating_text = f", with ages taken as {_plural(abs(rating), 'year')} {older}"
             else:
-                imp_text = (f"improving in future ({kind}), long-term rate {fmt.rate(imp.get('long_term_rate'))}"
-                            " a year" if imp.get("long_term_rate") is not None else f"improving in future ({kind})")
-            rating = entry.get("age_rating") or 0
-            rating_text = f", rated {rating:+d} years" if rating else ""
-            who = f"{'All members' if group == 'default' else STATUS_LABELS.get(group, group)}, " \
-                  f"{SEX_LABELS.get(sex, sex).lower()}"
-            out.append((f"Mortality: {who}",
-                        f"{fmt.rate(entry.get('percentage'), 0)} of table {entry.get('table')}{rating_text}; "
-                        f"{imp_text}."))
+                rating_text = ""
+            table = str(entry.get("table"))
+            name = str(entry.get("table_name") or table)
+            if name not in tables:
+                tables.append(name)
+            out.append((f"Mortality: {_mortality_who(group, sex, basis.get('mortality') or {})}",
+                        f"{fmt.rate(entry.get('percentage'), 0)} of table {name}{rating_text}; "
+                        f"{_improvement_words(entry.get('improvement') or {})}."))
+    if tables:
+        said = [f"{t} is {TABLE_WORDS[t]}" if t in TABLE_WORDS else f"{t} is a table named in the basis" for t in tables]
+        out.append(("Mortality tables", "; ".join(said) + ". A percentage above 100% means more deaths than the "
+                    "table, so shorter lives."))
     return out
 
 

@@ -12,12 +12,13 @@ import polars as pl
 from openpyxl.utils import get_column_letter
 from openpyxl.worksheet.worksheet import Worksheet
 
-from valuation.engine.results import STATUSES, ValuationResult
+from valuation.engine.results import ValuationResult
 from valuation.engine.write import SMALL_SCHEME
 from valuation.reports import content
 from valuation.reports import excel_cells as xc
 from valuation.reports.excel_charts import cashflow_chart
 from valuation.reports.excel_experience import experience_sheet
+from valuation.vocabulary import STATUSES
 
 __all__ = [
     "basis_sheet", "cashflows_sheet", "deaths_sheet", "exceptions_sheet", "experience_sheet",

@@ -23,7 +23,6 @@ if TYPE_CHECKING:
     from valuation.experience.result import ExperienceResult
 
 TEMPLATES = Path(__file__).with_name("templates")
-_PERSON = {"M": "A man", "F": "A woman"}
 
 
 def _environment() -> jinja2.Environment:
@@ -34,43 +33,55 @@ def _environment() -> jinja2.Environment:
     return env
 
 
-def _payments_words(cf: pl.DataFrame) -> str:
+def _payments_words(cf: pl.DataFrame, code: str | None) -> str:
     if cf.height == 0 or "total" not in cf.columns:
         return "No payments are expected."
     total = cf["total"].to_numpy()
     peak = int(total.argmax())
     first10 = float(total[:10].sum())
     return (f"Payments are expected to be highest in year {int(cf['year'][peak])}, at about "
-            f"{fmt.money(total[peak])}, and to run for {cf.height} years in all; "
-            f"{fmt.money(first10)} is expected to be paid in the first ten years.")
+            f"{fmt.about_money(total[peak], code)}, and to run for {cf.height} years in all; about "
+            f"{fmt.about_money(first10, code)} is expected to be paid in the first ten years.")
 
 
-def _life_rows(le: pl.DataFrame) -> list[dict[str, Any]]:
-    rows = []
+#: The life-expectancy table's rows: (basis, age now) -> words.
+_LIFE_ROWS = {("cohort", 65): "Aged 65 now (cohort)", ("cohort", 45): "Aged 45 now, from age 65 (cohort)",
+              ("period", 65): "Aged 65, on this year's rates (period)"}
+
+
+def _life_table(le: pl.DataFrame) -> dict[str, Any]:
+    """Life expectancies as a table of (who) x (sex): one row a basis and age now, one column a sex."""
+    sexes = [s for s in ("M", "F") if le.height and s in le["sex"].to_list()]
+    rows: dict[tuple[str, int, int], dict[str, float]] = {}
     for r in le.iter_rows(named=True):
-        who = _PERSON.get(r["sex"], str(r["sex"]))
-        if r.get("basis") == "period":
-            what = f"{who} aged {r['at_age']}, on this year's rates (period)"
-        else:
-            what = f"{who} aged {r['age_now']} today, from age {r['at_age']} (cohort)"
-        rows.append({"who": what, "years": r["years"]})
-    return rows
+        rows.setdefault((str(r["basis"]), int(r["age_now"]), int(r["at_age"])), {})[r["sex"]] = r["years"]
+    out = []
+    for (basis, age_now, at_age), by_sex in rows.items():
+        who = _LIFE_ROWS.get((basis, age_now)) if at_age == 65 else None
+        if who is None:
+            who = (f"Aged {age_now} now, from age {at_age} (cohort)" if basis == "cohort"
+                   else f"Aged {at_age}, on this year's rates (period)")
+        out.append({"who": who, "years": [by_sex.get(s) for s in sexes]})
+    return {"sexes": [content.SEX_LABELS.get(s, s) for s in sexes], "rows": out}
 
 
-def _experience(experience: ExperienceResult | None) -> dict[str, Any] | None:
+def _experience(experience: ExperienceResult | None, code: str | None) -> dict[str, Any] | None:
     if experience is None:
         return None
     bands = content.ae_by_age(experience)
     overall = experience.table.filter(pl.col("dimension") == "overall")
     settings = experience.settings
     implied = experience.implied or {}
+    charted = content.chart_bands(bands)
     return {
         "overall": overall.row(0, named=True) if overall.height else None,
         "bands": bands.to_dicts(),
-        "chart": Markup(charts.ae_by_age(bands)) if content.chart_bands(bands).height else None,
+        "chart": Markup(charts.ae_by_age(bands)) if charted.height else None,
+        "past_axis": charts.ae_axis(bands)[1] if charted.height else False,
         "min_expected": content.MIN_EXPECTED,
         "implied": implied,
         "notes": content.implied_notes(implied),
+        "amounts_unit": f" (pensions in {code} a year)" if code else "",
         "by_table": [t | {"group_label": content.table_members(t),
                           "sex_label": content.SEX_LABELS.get(t["sex"], "All")}
                      for t in [*(implied.get("by_table") or []),
@@ -83,6 +94,7 @@ def _experience(experience: ExperienceResult | None) -> dict[str, Any] | None:
 def build_context(result: ValuationResult, experience: ExperienceResult | None = None) -> dict[str, Any]:
     """Everything the template shows, as plain values (text is escaped by the template)."""
     s = result.summary
+    code = fmt.currency_of(s)
     by_status = content.status_rows(s)
     total = float(s["liability"]["total"]) or 1.0
     for row in by_status:
@@ -91,15 +103,18 @@ def build_context(result: ValuationResult, experience: ExperienceResult | None =
     reasons = content.exception_reasons(result.exceptions)
     return {
         "s": s,
+        "currency_words": f"Amounts in {code}" if code else "The basis names no currency",
+        "unit_words": f", {code}" if code else "",
+        "money_head": lambda label, per_year=False: fmt.money_label(label, code, per_year),
         "headlines": content.headlines(s),
         "by_status": by_status,
-        "group_chart": Markup(charts.liability_by_group(s["liability"]["by_status"])),
-        "payments_chart": Markup(charts.payments_profile(result.cashflows)),
-        "payments_words": _payments_words(result.cashflows),
+        "group_chart": Markup(charts.liability_by_group(s["liability"]["by_status"], code)),
+        "payments_chart": Markup(charts.payments_profile(result.cashflows, code)),
+        "payments_words": _payments_words(result.cashflows, code),
         "assumptions": content.assumption_lines(s),
         "sensitivities": result.sensitivities.to_dicts(),
-        "life": _life_rows(result.life_expectancy),
-        "experience": _experience(experience),
+        "life": _life_table(result.life_expectancy),
+        "experience": _experience(experience, code),
         "reasons": reasons.head(content.TOP_REASONS).to_dicts(),
         "more_reasons": max(0, reasons.height - content.TOP_REASONS),
         "data_notice": content.data_notice(s),
@@ -110,7 +125,10 @@ def build_context(result: ValuationResult, experience: ExperienceResult | None =
 
 def render_html(result: ValuationResult, experience: ExperienceResult | None = None) -> str:
     """The summary page as text."""
-    return _environment().get_template("summary.html.j2").render(**build_context(result, experience))
+    env = _environment()
+    code = fmt.currency_of(result.summary)
+    env.filters["about"] = lambda value: fmt.about_money(value, code)
+    return env.get_template("summary.html.j2").render(**build_context(result, experience))
 
 
 def write_html(result: ValuationResult, path: Path, experience: ExperienceResult | None = None) -> Path:
