@@ -129,7 +129,7 @@ def test_demo_curve_file_loads(tmp_path: Path) -> None:
         (("[benefits]\ndesign = \"average\"", ""), ["benefits.design", "'final_salary' or 'career_average'"]),
         (("[tranches.main]\nincrease = { kind = \"rpi\" }", ""), ["tranches.main.increase.kind", "'none', 'fixed' or 'inflation'"]),
         (("[conventions]\nage_convention = \"nearest\"", ""), ["conventions.age_convention", "'last_birthday'"]),
-        (("[mapping.status_codes]\nR = \"retired\"", ""), ["mapping.status_codes", "active, deferred, pensioner, dependant", "retired"]),
+        (("[mapping.status_codes]\nR = \"retired\"", ""), ["mapping.status_codes", "pensioner, dependant, deferred, active", "retired"]),
         (("[benefits]\naccrual_rate = \"1/0\"", ""), ["benefits.accrual_rate", "1/60"]),
         (("[spouse]\nproportion_married = { M = 0.8 }", ""), ["spouse.proportion_married", "missing: F"]),
         (("[[sensitivities]]\nname = \"x\"\nkind = \"longevity\"\nshift = 1", ""), ["sensitivities[0].kind", "'life_expectancy'"]),

@@ -37,7 +37,7 @@ def write_csv(path: Path, rows: list[dict[str, str]]) -> Path:
 CASES = [
     # (record, column, reason fragment, severity)
     ({**GOOD_PENSIONER, "member_id": None}, "member_id", "member_id is missing", "excluded"),
-    ({**GOOD_PENSIONER, "status": "retired"}, "status", "unknown status code (expected one of active", "excluded"),
+    ({**GOOD_PENSIONER, "status": "retired"}, "status", "unknown status code (expected one of pensioner", "excluded"),
     ({**GOOD_PENSIONER, "status": None}, "status", "status is missing", "excluded"),
     ({**GOOD_PENSIONER, "sex": "U"}, "sex", "unknown sex code (expected one of M, F)", "excluded"),
     ({**GOOD_PENSIONER, "sex": None}, "sex", "sex is missing", "excluded"),

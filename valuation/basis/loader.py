@@ -15,6 +15,7 @@ from pydantic import BaseModel, ValidationError
 from valuation.basis.model import Basis
 from valuation.csvtext import encoding_problem
 from valuation.errors import BasisError
+from valuation.vocabulary import SEXES
 
 _FIX = "correct the key named above; every key and its allowed values are described in assumptions/demo_basis.toml"
 
@@ -200,6 +201,6 @@ def load_basis(path: str | Path) -> Basis:
     basis.discount_curve()
     basis.inflation_curve()
     for group in ("pensioner", "deferred", "active", "dependant", "spouse"):
-        for sex in ("M", "F"):
+        for sex in SEXES:
             basis.mortality(group, sex)  # type: ignore[arg-type]
     return basis

@@ -5,7 +5,7 @@ from __future__ import annotations
 from pydantic import BaseModel, Field, ValidationInfo, field_validator
 
 from valuation.basis.rules import STRICT
-from valuation.members.schema import SEXES, STATUSES
+from valuation.vocabulary import SEXES, STATUSES
 
 
 class ColumnMapping(BaseModel):

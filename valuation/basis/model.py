@@ -29,8 +29,6 @@ from pydantic import BaseModel, ConfigDict, Field, PrivateAttr, field_validator,
 from valuation.basis.curves import build_curve
 from valuation.basis.mapping import ColumnMapping
 from valuation.basis.mortality_entries import (
-    GROUPS,
-    Group,
     MortalityEntries,
     build_improvement,
     entry_key,
@@ -46,7 +44,7 @@ from valuation.basis.rules import (
     TrancheRule,
 )
 from valuation.errors import BasisError, ValuationError, describe
-from valuation.members.schema import OUR_COLUMNS, known_columns, tranche_column
+from valuation.vocabulary import GROUPS, OUR_COLUMNS, SEXES, Group, Sex, known_columns, tranche_column
 
 _TRANCHE_NAME = re.compile(r"^[a-z][a-z0-9_]*$")
 _CURRENCY = re.compile(r"[A-Z]{3}")
@@ -186,7 +184,7 @@ class Basis(BaseModel):
                 'which a career-average design (benefits.design) does not use: set it to "accrued_to_death"'
             )
         for group in GROUPS:
-            for sex in ("M", "F"):
+            for sex in SEXES:
                 if entry_key(self.mortality_entries, group, sex) is None:
                     raise ValueError(
                         f"no mortality for group '{group}' sex {sex}: add [mortality.default.{sex}] "
@@ -270,7 +268,7 @@ class Basis(BaseModel):
             self._cache[key] = build_curve(self.inflation, self.base_dir, "inflation")
         return self._cache[key]
 
-    def mortality_key(self, group: Group, sex: Literal["M", "F"]) -> str:
+    def mortality_key(self, group: Group, sex: Sex) -> str:
         """Dotted key of the entry a member group and sex use, e.g. ``"mortality.default.M"``.
 
         Fallback rule: the group's own entry, else (spouse only) the dependant entry, else ``default``.
@@ -278,13 +276,13 @@ class Basis(BaseModel):
         if group not in GROUPS:
             raise BasisError(f"unknown mortality group '{group}' (allowed: {', '.join(GROUPS)})",
                              file=self.source_path)
-        if sex not in ("M", "F"):
+        if sex not in SEXES:
             raise BasisError(f"unknown sex '{sex}' (allowed: M, F)", file=self.source_path)
         found = entry_key(self.mortality_entries, group, sex)
         assert found is not None  # guaranteed by validation
         return f"mortality.{found}.{sex}"
 
-    def mortality(self, group: Group, sex: Literal["M", "F"]) -> Any:
+    def mortality(self, group: Group, sex: Sex) -> Any:
         """The :class:`~valuation.mortality.basis.MortalityBasis` for a member group and sex (cached).
 
         A group without its own entry falls back to ``default`` for that sex; ``spouse`` first falls back
@@ -320,7 +318,7 @@ class Basis(BaseModel):
             self._cache[cache_key] = (entry, mb)  # holding the entry keeps its id unique
         return self._cache[cache_key][1]
 
-    def closing_age(self, group: Group, sex: Literal["M", "F"]) -> int:
+    def closing_age(self, group: Group, sex: Sex) -> int:
         """Oldest integer age [years] the group's table can value after its age rating.
 
         A life whose age (under the basis's age convention, whole years) exceeds it is beyond the table.

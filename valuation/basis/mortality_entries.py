@@ -17,10 +17,7 @@ import numpy as np
 from pydantic import BaseModel, Field, model_validator
 
 from valuation.basis.rules import STRICT
-
-Group = Literal["pensioner", "deferred", "active", "dependant", "spouse"]
-EntryGroup = Literal["default", "pensioner", "deferred", "active", "dependant", "spouse"]
-GROUPS: tuple[str, ...] = ("pensioner", "deferred", "active", "dependant", "spouse")
+from valuation.vocabulary import EntryGroup, Sex
 
 #: Fallback chain of each member group (first entry found wins).
 FALLBACK: dict[str, tuple[str, ...]] = {
@@ -160,7 +157,7 @@ whether a table that stops short of q = 1 is refused (``"require"``, the default
     closing: Literal["require", "at_last_age"] = "require"
 
 
-MortalityEntries = dict[EntryGroup, dict[Literal["M", "F"], MortalityEntry]]
+MortalityEntries = dict[EntryGroup, dict[Sex, MortalityEntry]]
 
 
 def entry_key(entries: MortalityEntries, group: str, sex: str) -> str | None:

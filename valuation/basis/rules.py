@@ -11,13 +11,11 @@ from typing import Literal
 
 from pydantic import BaseModel, ConfigDict, Field, field_validator, model_validator
 
+from valuation.vocabulary import SEXES, SensitivityKind, Sex
+
 STRICT = ConfigDict(extra="forbid", frozen=True)
 
-Sex = Literal["M", "F"]
 IndexKind = Literal["none", "fixed", "inflation"]
-SensitivityKind = Literal[
-    "discount_rate", "inflation", "salary_growth", "life_expectancy", "long_term_improvement"
-]
 
 
 class _IndexRule(BaseModel):
@@ -91,7 +89,7 @@ class SpouseAssumption(BaseModel):
     @field_validator("proportion_married")
     @classmethod
     def _both_sexes(cls, v: dict[str, float]) -> dict[str, float]:
-        missing = [s for s in ("M", "F") if s not in v]
+        missing = [s for s in SEXES if s not in v]
         if missing:
             raise ValueError(f"give a proportion for both sexes M and F (missing: {', '.join(missing)})")
         bad = {s: p for s, p in v.items() if not 0.0 <= p <= 1.0}

@@ -52,9 +52,9 @@ from valuation.engine.context import (
 )
 from valuation.engine.kernels import death_in_service_kernel
 from valuation.engine.legs import Exits, dedupe, sum_by_key, value_leg
-from valuation.engine.results import STATUSES
-from valuation.engine.scenario import BASE, GROUPS, SEXES, Scenario, curves, mortality_for
+from valuation.engine.scenario import BASE, Scenario, curves, mortality_for
 from valuation.survival import age_at, lx_at
+from valuation.vocabulary import GROUPS, SEXES, STATUSES
 
 
 @dataclass

@@ -10,8 +10,9 @@ from typing import Any
 
 import polars as pl
 
-#: Member statuses in reporting order.
-STATUSES: tuple[str, ...] = ("pensioner", "dependant", "deferred", "active")
+from valuation.vocabulary import STATUSES
+
+__all__ = ["STATUSES", "ValuationResult"]
 
 
 @dataclass

@@ -24,16 +24,16 @@ import polars as pl
 from valuation import __version__
 from valuation.discounting import present_value, single_equivalent_rate
 from valuation.engine.project import AGE_COLUMN, Projection, Valuer, with_ages
-from valuation.engine.results import STATUSES, ValuationResult
+from valuation.engine.results import ValuationResult
 from valuation.engine.scenario import (
     BASE,
-    SEXES,
     Scenario,
     cohort_expectancy_at,
     period_expectancy_at,
     scenarios_from_basis,
 )
 from valuation.manifest import file_sha256
+from valuation.vocabulary import SEXES, STATUSES
 
 #: Members are valued in chunks of this many records, which keeps memory flat for any scheme size.
 DEFAULT_CHUNK = 1_000_000

@@ -20,9 +20,7 @@ from scipy.optimize import brentq
 from valuation.discounting import RateCurve
 from valuation.expectancy import complete_expectancy
 from valuation.mortality.basis import MortalityBasis
-
-GROUPS = ("pensioner", "dependant", "deferred", "active", "spouse")
-SEXES = ("M", "F")
+from valuation.vocabulary import SEXES
 
 
 @dataclass(frozen=True)

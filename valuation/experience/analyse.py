@@ -34,7 +34,7 @@ from valuation.experience.tables import (
     default_band_edges,
     pension_band_labels,
 )
-from valuation.members.schema import GROUP_OF_STATUS
+from valuation.vocabulary import GROUP_OF_STATUS
 
 
 def _conform(df: pl.DataFrame) -> pl.DataFrame:

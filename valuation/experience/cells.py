@@ -23,8 +23,8 @@ from valuation.experience.exposure import DAYS_PER_YEAR, explode_exposure, initi
 from valuation.experience.settings import ExperienceSettings
 
 if TYPE_CHECKING:
-    from valuation.basis.mortality_entries import Group
     from valuation.basis.rules import Sex
+    from valuation.vocabulary import Group
 
 
 class Rates(Protocol):

@@ -37,8 +37,8 @@ from valuation.experience.credibility import (
 from valuation.experience.settings import ExperienceSettings
 
 if TYPE_CHECKING:
-    from valuation.basis.mortality_entries import Group
     from valuation.basis.rules import Sex
+    from valuation.vocabulary import Group
 
 #: ``table_key(group, sex)`` -> the entry a member group and sex use, ``"mortality.<entry group>.<sex>"``.
 TableKey = Callable[["Group", "Sex"], str]

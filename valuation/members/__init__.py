@@ -1,28 +1,9 @@
-"""Member data: schema, readers (CSV/XLSX/Parquet), mapping, validation and a synthetic generator.
-
-Names are imported lazily so that :mod:`valuation.basis` can use :mod:`valuation.members.schema`
-without a circular import.
-"""
+"""Member data: schema, readers (CSV/XLSX/Parquet), mapping, validation and a synthetic generator."""
 
 from __future__ import annotations
 
-from importlib import import_module
-from typing import Any
+from valuation.members.data import MemberData, members_from_frame, read_members, write_exceptions
+from valuation.members.synth import synth_scheme, to_admin_format, write_scheme
 
-_EXPORTS = {
-    "MemberData": "valuation.members.data",
-    "read_members": "valuation.members.data",
-    "members_from_frame": "valuation.members.data",
-    "write_exceptions": "valuation.members.data",
-    "synth_scheme": "valuation.members.synth",
-    "to_admin_format": "valuation.members.synth",
-    "write_scheme": "valuation.members.synth",
-}
-
-__all__ = list(_EXPORTS)
-
-
-def __getattr__(name: str) -> Any:
-    if name in _EXPORTS:
-        return getattr(import_module(_EXPORTS[name]), name)
-    raise AttributeError(f"module 'valuation.members' has no attribute {name!r}")
+__all__ = ["MemberData", "members_from_frame", "read_members", "synth_scheme", "to_admin_format",
+           "write_exceptions", "write_scheme"]

@@ -38,11 +38,10 @@ import polars as pl
 
 from valuation.basis.rules import Thresholds
 from valuation.members.parse import parsed
+from valuation.vocabulary import PAID_STATUSES
 
 TOLERANCE = 0.01  # [currency p.a.]: tranches must sum to the pension within a cent
 
-#: Statuses that must have a pension above 0.
-PAID_STATUSES = ("pensioner", "dependant", "deferred")
 
 
 @dataclass(frozen=True)

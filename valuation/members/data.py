@@ -31,6 +31,7 @@ from valuation.members.schema import (
     tranche_column,
 )
 from valuation.survival import age_at
+from valuation.vocabulary import Group
 
 EXCEPTION_SCHEMA: dict[str, type[pl.DataType]] = {
     "file": pl.String, "row": pl.Int64, "member_id": pl.String, "column": pl.String,
@@ -83,17 +84,14 @@ def _fmt_text(fmt: str | None) -> str:
     return f"a date as {fmt} or ISO YYYY-MM-DD" if fmt else "an ISO date YYYY-MM-DD"
 
 
-def _closing_expr(basis: Basis, status: pl.Expr, sex: pl.Expr, group: str | None) -> pl.Expr:
+def _closing_expr(basis: Basis, status: pl.Expr, sex: pl.Expr, group: Group | None) -> pl.Expr:
     """Closing age by (status, sex), or by sex alone for a fixed ``group`` (used for spouses)."""
     out: pl.Expr = pl.lit(None, dtype=pl.Int64)
     for s in SEXES:
         for st in STATUSES:
-            if group is None:
-                g = GROUP_OF_STATUS[st]
-                cond = (status == st) & (sex == s)
-            else:
-                g, cond = group, (sex == s)
-            out = pl.when(cond).then(pl.lit(basis.closing_age(g, s))).otherwise(out)  # type: ignore[arg-type]
+            g: Group = GROUP_OF_STATUS[st] if group is None else group
+            cond = ((status == st) & (sex == s)) if group is None else (sex == s)
+            out = pl.when(cond).then(pl.lit(basis.closing_age(g, s))).otherwise(out)
     return out
 
 

@@ -15,10 +15,12 @@ import numpy as np
 import polars as pl
 
 from valuation.basis.mapping import ColumnMapping
-from valuation.members.schema import DATE_COLUMNS, STATUSES, tranche_column
+from valuation.members.schema import DATE_COLUMNS, tranche_column
+from valuation.vocabulary import Status
 
 #: Share of records by status (active, deferred, pensioner, dependant), roughly 950/900/900/250 in 3,000.
-STATUS_MIX = (0.317, 0.300, 0.300, 0.083)
+#: Share of each status, in the order of the draws (kept, so that the same seed gives the same file).
+STATUS_MIX: dict[Status, float] = {"active": 0.317, "deferred": 0.300, "pensioner": 0.300, "dependant": 0.083}
 #: Share of dependants who are children with a pension that stops at ``pension_end_age``.
 CHILD_SHARE = 0.06
 XLSX_LIMIT = 50_000
@@ -63,7 +65,7 @@ def synth_scheme(
     """
     rng = np.random.default_rng(seed)
     val = np.datetime64(valuation_date, "D")
-    st = rng.choice(4, size=n, p=STATUS_MIX)
+    st = rng.choice(4, size=n, p=list(STATUS_MIX.values()))
     active, deferred, pensioner, dependant = (st == k for k in range(4))
     child = dependant & (rng.random(n) < CHILD_SHARE)
     age = np.select(
@@ -86,7 +88,7 @@ def synth_scheme(
     ).round(2)
     cols: dict[str, object] = {
         "member_id": None,
-        "status": np.asarray(STATUSES)[st],
+        "status": np.asarray(list(STATUS_MIX))[st],
         "sex": sex,
         "date_of_birth": dob,
         "pension": pension,
