@@ -63,11 +63,12 @@ def pdf_pages(pdf: Path) -> int:
     return int(match.group(1))
 
 
-def pdf_text(pdf: Path, first: int, last: int | None = None) -> str:
-    """The text of pages ``first`` to ``last`` (1-based) with runs of whitespace collapsed to one space."""
+def pdf_text(pdf: Path, first: int, last: int | None = None, layout: bool = False) -> str:
+    """The text of pages ``first`` to ``last`` (1-based) with runs of whitespace collapsed to one space;
+    with ``layout``, in the physical layout of the page (a row of a table on one line)."""
     assert PDFTOTEXT is not None
-    out = subprocess.run([PDFTOTEXT, "-f", str(first), "-l", str(last or first), str(pdf), "-"],
-                         capture_output=True, text=True, check=True).stdout
+    out = subprocess.run([PDFTOTEXT, *(["-layout"] if layout else []), "-f", str(first), "-l", str(last or first),
+                          str(pdf), "-"], capture_output=True, text=True, check=True).stdout
     return " ".join(out.split())
 
 

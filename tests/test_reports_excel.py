@@ -32,6 +32,7 @@ from tests.test_reports_fixture import (
     real_run,
 )
 from valuation.engine import write as engine_write
+from valuation.pipeline import write_run
 from valuation.reports import excel_sheets, write_workbook
 from valuation.reports.excel import SHEETS
 
@@ -43,7 +44,7 @@ def run_folder(tmp_path_factory: pytest.TempPathFactory) -> Path:
     def workbook(res, folder: Path) -> None:
         write_workbook(res, folder / "valuation.xlsx", experience=experience)
 
-    return engine_write.write_run(result, tmp_path_factory.mktemp("xlsx") / "run", extra=[workbook])
+    return write_run(result, tmp_path_factory.mktemp("xlsx") / "run", extra=[workbook])
 
 
 @pytest.fixture(scope="module")
@@ -51,11 +52,17 @@ def book(run_folder: Path) -> tuple[Path, object]:
     return run_folder / "valuation.xlsx", real_run()[0]
 
 
-def _find(ws, label: str):
-    for row in ws.iter_rows(min_col=1, max_col=2):
+def _find(ws, label: str, column: int = 2):
+    """The cell in ``column`` (B by default) of the row whose column A holds ``label``."""
+    for row in ws.iter_rows(min_col=1, max_col=column):
         if row[0].value == label:
-            return row[1]
+            return row[column - 1]
     raise AssertionError(f"{label!r} not on sheet {ws.title}")
+
+
+#: The demo basis's currency (assumptions/demo_basis.toml: currency = "GBP") as a number-format element:
+#: ``[$GBP]`` shows the text GBP before the figure (ECMA-376 Part 1, 18.8.31, from memory).
+GBP_MONEY = "[$GBP] #,##0"
 
 
 def test_all_sheets_present_in_order(book) -> None:
@@ -78,9 +85,9 @@ def test_headline_equals_summary_json(book, run_folder: Path) -> None:
     path, _ = book
     summary = json.loads((run_folder / "summary.json").read_text(encoding="utf-8"))
     wb = load_workbook(path)
-    cell = _find(wb["Summary"], "Total liability [currency]")
+    cell = _find(wb["Summary"], "Total liability [GBP]")
     assert cell.value == pytest.approx(summary["liability"]["total"], rel=STORED)
-    assert cell.number_format == "#,##0"
+    assert cell.number_format == GBP_MONEY
     dest = next(iter(wb.defined_names["TotalLiability"].destinations))
     assert wb[dest[0]][dest[1].replace("$", "")].value == cell.value
     assert _find(wb["Summary"], "Records read").value == summary["records"]["read"]
@@ -100,7 +107,7 @@ DIRTY_VALUES = ['=HYPERLINK("x")', "-250.00", "-1"]
 
 
 @pytest.mark.parametrize(("sheet", "column", "probes"),
-                         [("Members", "member_id", FORMULA_PROBES), ("Exceptions", "value", DIRTY_VALUES)])
+                         [("Members", "member id", FORMULA_PROBES), ("Exceptions", "value as read", DIRTY_VALUES)])
 def test_formula_like_member_text_stays_literal(book, sheet: str, column: str, probes: list[str]) -> None:
     """OWASP CSV-injection probes from member data come back as the same literal strings, not formulas."""
     path, _ = book
@@ -128,27 +135,35 @@ def test_no_formula_element_anywhere(book) -> None:
     assert 't="inlineStr"><is><t>=1+1</t></is>' in xml
 
 
-def test_basis_sheet_is_the_basis_as_loaded(book) -> None:
-    """Values of assumptions/demo_basis.toml, flattened to dotted keys."""
+def test_basis_sheet_is_the_basis_as_given_and_as_used(book) -> None:
+    """Values of assumptions/demo_basis.toml, flattened to dotted keys: column B as written in the file
+    (``accrual_rate = "1/60"`` stays 1/60), column C as the valuation used them (defaults filled in)."""
     path, _ = book
     ws = load_workbook(path)["Basis"]
+    assert [c.value for c in ws[excel_sheets.HEAD]][:3] == [
+        "setting (key in the basis file)", "as given in the basis file", "as used"]
     assert _find(ws, "discount.rate").value == 0.048
+    assert _find(ws, "benefits.accrual_rate").value == "1/60"
+    assert _find(ws, "benefits.accrual_rate", 3).value == pytest.approx(1 / 60, rel=1e-15)
     assert _find(ws, "mortality.pensioner.M.percentage").value == 1.05
     assert _find(ws, "mortality.default.M.improvement.initial_ages").value == "40, 60, 80, 100"
     assert _find(ws, "sensitivities[0].name").value == "Discount rate +0.5% p.a."
     assert _find(ws, "mapping.columns.Ref No").value == "member_id"
+    assert _find(ws, "currency").value == "GBP"
+    assert _find(ws, "discount.extrapolation").value is None  # not in the file: its default was used
+    assert _find(ws, "discount.extrapolation", 3).value == "flat_spot"
     day = _find(ws, "valuation_date")
     assert day.is_date and day.number_format == "yyyy-mm-dd" and day.value == datetime(2025, 3, 31)
-    rate = _find(ws, "discount.rate")
+    rate = _find(ws, "discount.rate", 3)
     assert rate.number_format == "0.00%"  # a rate stored as a fraction, shown as % (ECMA-376 18.8.30)
 
 
 def test_basis_sheet_keeps_formula_like_basis_text(tmp_path: Path) -> None:
     result = make_result()
     ws = load_workbook(write_workbook(result, tmp_path / "b.xlsx"))["Basis"]
-    cell = _find(ws, "name")
+    cell = _find(ws, "name", 3)  # no basis file to read again: only the values as used
     assert cell.value == result.summary["manifest"]["basis"]["name"] and cell.data_type == "s"
-    assert _find(ws, "sensitivities[0].name").value == "+0.5%"
+    assert _find(ws, "sensitivities[0].name", 3).value == "+0.5%"
 
 
 def test_lists_are_tables_with_frozen_headers_and_formats(book) -> None:
@@ -162,9 +177,9 @@ def test_lists_are_tables_with_frozen_headers_and_formats(book) -> None:
     ws = wb["Members"]
     header = [c.value for c in ws[excel_sheets.HEAD]]
     row = excel_sheets.HEAD + 1
-    assert ws.cell(row=row, column=header.index("liability") + 1).number_format == "#,##0"
-    assert ws.cell(row=row, column=header.index("annuity_factor") + 1).number_format == "0.0000"
-    assert ws.cell(row=row, column=header.index("liability") + 1).value == pytest.approx(
+    assert ws.cell(row=row, column=header.index("liability [GBP]") + 1).number_format == GBP_MONEY
+    assert ws.cell(row=row, column=header.index("annuity factor") + 1).number_format == "0.0000"
+    assert ws.cell(row=row, column=header.index("liability [GBP]") + 1).value == pytest.approx(
         result.members["liability"][0], rel=STORED)
     assert ws.column_dimensions["A"].width >= 8
 
@@ -179,7 +194,7 @@ def test_sensitivity_change_is_a_fraction_shown_as_percent(book, run_folder: Pat
     header = [c.value for c in ws[excel_sheets.HEAD]]
     label = next(h for h in header if h.startswith("change in liability"))
     assert "%" in label and "base liability" in label
-    col, liab = header.index(label) + 1, header.index("liability [currency]") + 1
+    col, liab = header.index(label) + 1, header.index("liability [GBP]") + 1
     assert len(summary["sensitivities"]) > 1
     for i, sens in enumerate(summary["sensitivities"], start=excel_sheets.HEAD + 1):
         cell = ws.cell(row=i, column=col)
@@ -218,7 +233,7 @@ def test_awkward_values_do_not_break_the_file(tmp_path: Path) -> None:
     header = [c.value for c in ws[excel_sheets.HEAD]]
     assert ws.cell(row=row, column=1).value == "bell\ufffd"
     assert ws.cell(row=row + 1, column=1).value == "tab\tok"
-    assert ws.cell(row=row, column=header.index("annuity_factor") + 1).value is None
+    assert ws.cell(row=row, column=header.index("annuity factor") + 1).value is None
 
 
 def test_empty_result_gives_a_valid_workbook(tmp_path: Path) -> None:
@@ -266,7 +281,7 @@ def test_dates_are_date_cells(tmp_path: Path) -> None:
 
 def test_manifest_start_time_stays_text(book) -> None:
     path, result = book
-    cell = _find(load_workbook(path)["Manifest"], "started_at")
+    cell = _find(load_workbook(path)["Manifest"], "started at")
     assert cell.data_type == "s" and cell.value == result.summary["manifest"]["started_at"]
 
 
@@ -304,7 +319,7 @@ def test_experience_change_in_liability_is_a_fraction(tmp_path: Path) -> None:
     ws = load_workbook(write_workbook(make_result(), tmp_path / "chg.xlsx", experience=experience))["Experience"]
     cell = _find(ws, "Change in liability")
     assert cell.value == pytest.approx(-0.046, rel=1e-12) and cell.number_format == "0.0%"
-    assert _find(ws, "Liability on the valuation basis [currency]").number_format == "#,##0"
+    assert _find(ws, "Liability on the valuation basis").number_format == "#,##0"  # no currency in the basis
 
 
 def test_experience_by_table_is_fractions_and_notes_are_plain(book) -> None:
@@ -326,3 +341,78 @@ def test_experience_by_table_is_fractions_and_notes_are_plain(book) -> None:
     texts = [c.value for row in ws.iter_rows(max_row=header_row) for c in row if isinstance(c.value, str)]
     assert not [t for t in texts if re.search(r"[a-z]_[a-z]", t)]
     assert any("differ by group and sex" in t for t in texts)
+
+
+def test_figures_sit_beside_their_labels_and_long_text_elsewhere(book) -> None:
+    """Summary: labels in A, figures in their own narrow column B; the assumption sentences are wrapped
+    in cells that span B and C (merged), so no sentence sets the width of the figures' column."""
+    path, _ = book
+    ws = load_workbook(path)["Summary"]
+    assert ws.column_dimensions["B"].width <= 20
+    total = _find(ws, "Total liability [GBP]")
+    assert total.column_letter == "B" and isinstance(total.value, float)
+    merged = {str(r) for r in ws.merged_cells.ranges}
+    start = next(c.row for c in ws["A"] if c.value == "Key assumptions")
+    sentences = [ws.cell(row=r, column=2) for r in range(start + 1, ws.max_row + 1) if ws.cell(row=r, column=2).value]
+    assert len(sentences) >= 5
+    for cell in sentences:
+        assert f"B{cell.row}:C{cell.row}" in merged and cell.alignment.wrap_text
+        assert ws.row_dimensions[cell.row].height  # spreadsheets do not grow merged wrapped rows themselves
+
+
+def test_headers_are_plain_words(book) -> None:
+    """No header cell of any sheet is a snake_case code (a letter, an underscore, a letter)."""
+    path, _ = book
+    wb = load_workbook(path)
+    seen = 0
+    for ws in wb.worksheets:
+        for row in ws.iter_rows():
+            for cell in row:
+                if cell.fill is not None and cell.fill.fgColor.rgb and str(cell.fill.fgColor.rgb).endswith("2F5D62"):
+                    seen += 1
+                    assert not re.search(r"[a-z]_[a-z]", str(cell.value)), (ws.title, cell.coordinate, cell.value)
+    assert seen > 40
+
+
+def test_lump_sums_are_not_a_tranche(book) -> None:
+    """Liabilities: the lump-sum rows have no tranche, and the totals by tranche are pensions only; the
+    lump sums are a benefit (summary.json's by_tranche keeps them under lump_sums)."""
+    path, result = book
+    ws = load_workbook(path)["Liabilities"]
+    header = [c.value for c in ws[excel_sheets.HEAD]]
+    tranche, benefit = header.index("tranche") + 1, header.index("benefit") + 1
+    rows = range(excel_sheets.HEAD + 1, excel_sheets.HEAD + 1 + result.liabilities.height)
+    lumps = [r for r in rows if ws.cell(row=r, column=benefit).value == "lump sums"]
+    assert lumps and all(ws.cell(row=r, column=tranche).value is None for r in lumps)
+    block = next(c for row in ws.iter_rows() for c in row if c.value == "pensions by tranche")
+    names = []
+    r = block.row + 1
+    while ws.cell(row=r, column=block.column).value:
+        names.append(ws.cell(row=r, column=block.column).value)
+        r += 1
+    assert sorted(names) == ["post2005", "pre2005"]  # the demo basis's [tranches]
+
+
+def test_every_sheet_has_print_settings(book) -> None:
+    """A4, an orientation, fitted to one page wide (any number tall), a print area; list sheets repeat their
+    header row; the per-member list prints only its first rows (ECMA-376 pageSetup, from memory)."""
+    path, result = book
+    wb = load_workbook(path)
+    for ws in wb.worksheets:
+        assert ws.page_setup.orientation in ("portrait", "landscape"), ws.title
+        assert ws.page_setup.fitToWidth == 1 and ws.page_setup.fitToHeight == 0, ws.title
+        assert ws.sheet_properties.pageSetUpPr.fitToPage, ws.title
+        assert ws.print_area, ws.title
+    for name in ("Basis", "Liabilities", "Cash flows", "Sensitivities", "Exceptions", "Members", "Manifest"):
+        assert wb[name].print_title_rows.replace("$", "") == f"{excel_sheets.HEAD}:{excel_sheets.HEAD}", name
+    area = wb["Members"].print_area
+    last = int(re.search(r"(\d+)$", area[0] if isinstance(area, list) else area).group(1))
+    assert last == excel_sheets.HEAD + min(excel_sheets.PRINT_ROWS, result.members.height)
+
+
+def test_without_a_currency_money_has_no_code(tmp_path: Path) -> None:
+    """A basis without ``currency``: plain ``#,##0`` and labels without a unit."""
+    wb = load_workbook(write_workbook(make_result(), tmp_path / "nocode.xlsx"))
+    cell = _find(wb["Summary"], "Total liability")
+    assert cell.number_format == "#,##0"
+    assert _find(wb["Summary"], "Currency").value == "none named in the basis"

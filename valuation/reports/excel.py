@@ -1,9 +1,11 @@
 """The actuary's workbook: one .xlsx a run, written with openpyxl.
 
-Sheets: Summary, Basis, Liabilities, Cash flows (with a chart), Sensitivities, Life expectancy,
-Expected deaths, Experience (when an analysis was run, with a chart), Exceptions, Members (up to
-:data:`valuation.engine.write.SMALL_SCHEME` members; above it the sheet points to members.parquet) and
-Manifest. The headline total is also the workbook name ``TotalLiability``.
+Sheets: Summary, Basis (as given in the basis file and as used), Liabilities, Cash flows (with a chart),
+Sensitivities, Life expectancy, Expected deaths, Experience (when an analysis was run, with a chart),
+Exceptions, Members (up to :data:`valuation.engine.write.SMALL_SCHEME` members; above it the sheet points
+to members.parquet) and Manifest. The headline total is also the workbook name ``TotalLiability``. Money
+is in the basis's currency (number formats ``[$GBP] #,##0``); headers are plain words; every sheet prints
+on A4, fitted to the page width, with its header row repeated.
 """
 
 from __future__ import annotations
@@ -16,6 +18,7 @@ from openpyxl.workbook.defined_name import DefinedName
 
 from valuation.engine.results import ValuationResult
 from valuation.reports import excel_sheets as sheets
+from valuation.reports.format import currency_of
 
 if TYPE_CHECKING:
     from valuation.experience.result import ExperienceResult
@@ -56,7 +59,7 @@ def write_workbook(result: ValuationResult, path: Path, experience: ExperienceRe
     sheets.life_expectancy_sheet(wb.create_sheet("Life expectancy"), result)
     sheets.deaths_sheet(wb.create_sheet("Expected deaths"), result)
     if experience is not None:
-        sheets.experience_sheet(wb.create_sheet("Experience"), experience)
+        sheets.experience_sheet(wb.create_sheet("Experience"), experience, currency_of(result.summary))
     sheets.exceptions_sheet(wb.create_sheet("Exceptions"), result)
     sheets.members_sheet(wb.create_sheet("Members"), result)
     sheets.manifest_sheet(wb.create_sheet("Manifest"), result)

@@ -21,8 +21,9 @@ from openpyxl.worksheet.table import Table, TableStyleInfo
 from openpyxl.worksheet.worksheet import Worksheet
 
 #: Number formats (Excel format codes; ECMA-376 Part 1, 18.8.31 numFmts, from memory). Money is whole
-#: currency units with thousands separators (pensions keep pence); rates and ratios are stored as
-#: fractions (0.048, 1.07) and shown as percentages by the ``%`` code, which multiplies by 100.
+#: currency units with thousands separators (pensions keep pence), with the basis's ISO 4217 code in front
+#: (:func:`money_format`); rates and ratios are stored as fractions (0.048, 1.07) and shown as percentages
+#: by the ``%`` code, which multiplies by 100.
 MONEY = "#,##0"
 MONEY_2DP = "#,##0.00"
 RATE = "0.00%"
@@ -36,6 +37,16 @@ LIVES = "#,##0.00"
 DATE = "yyyy-mm-dd"
 
 _ISO_DATE = re.compile(r"\d{4}-\d{2}-\d{2}")
+_CODE = re.compile(r"[A-Z]{3}")
+
+
+def money_format(code: str | None, pence: bool = False) -> str:
+    """The number format of an amount: ``[$GBP] #,##0`` (shown ``GBP 358,032,135``; ``[$...]`` is the
+    format code's currency-symbol element, ECMA-376 Part 1, 18.8.31, from memory, which Excel and
+    LibreOffice show as written); without a currency, or for anything but three capital letters, the
+    plain ``#,##0``. ``pence`` keeps two decimals."""
+    plain = MONEY_2DP if pence else MONEY
+    return f"[${code}] {plain}" if code and _CODE.fullmatch(code) else plain
 
 #: Header row of every list sheet (title in row 1, note in row 2); panes freeze below it.
 HEAD = 3
@@ -102,11 +113,20 @@ def note(ws: Worksheet, row: int, text: str, column: int = 1) -> None:
     put(ws, row, column, text).font = NOTE_FONT
 
 
+HEADER_ALIGN = Alignment(wrap_text=True, vertical="bottom")
+#: Height of a header row [points]: two lines of the default 11 pt font, for headers that wrap.
+HEADER_HEIGHT = 30
+
+
 def header(ws: Worksheet, row: int, left: int, labels: list[str]) -> None:
+    """A header row: white bold text on the brand colour, wrapped on two lines where it is long."""
     for j, label in enumerate(labels):
         c = put(ws, row, left + j, label)
         c.font = HEADER_FONT
         c.fill = HEADER_FILL
+        c.alignment = HEADER_ALIGN
+    if any(len(str(label)) > 14 for label in labels):
+        ws.row_dimensions[row].height = HEADER_HEIGHT
 
 
 def key_values(ws: Worksheet, top: int, rows: list[tuple[str, Any, str | None]], left: int = 1) -> int:
@@ -166,6 +186,10 @@ def fit_widths(ws: Worksheet, from_row: int = 1, minimum: int = 8, maximum: int 
             if cell.value is None or _is_prose(cell):
                 continue
             v = cell.value
+            if _is_header(cell):  # headers wrap: they ask for a width of their longest word, 16 at most
+                longest = max((len(w) for w in str(v).split()), default=0)
+                widths[cell.column] = max(widths.get(cell.column, 0), min(16, max(longest, len(str(v)) // 2)) + 2)
+                continue
             if isinstance(v, (date, datetime)):
                 text = "0000-00-00"
             elif isinstance(v, float):
@@ -174,9 +198,53 @@ def fit_widths(ws: Worksheet, from_row: int = 1, minimum: int = 8, maximum: int 
                 text = f"{v:,}"
             else:
                 text = str(v)
+            fmt_code = str(cell.number_format or "")
+            if not isinstance(v, str) and fmt_code.startswith("[$"):  # the currency code shown in front
+                text = fmt_code[2:fmt_code.index("]")] + " " + text
             widths[cell.column] = max(widths.get(cell.column, 0), len(text) + 2)
     for col, width in widths.items():
         ws.column_dimensions[get_column_letter(col)].width = max(minimum, min(maximum, width))
+
+
+def _is_header(cell: Cell) -> bool:
+    """A header cell (known by its fill)."""
+    return bool(cell.fill is not None and cell.fill.fgColor is not None and cell.fill.fgColor.rgb
+                in (HEADER_FILL.fgColor.rgb, "00" + str(HEADER_FILL.fgColor.rgb)[-6:]))
+
+
+def wrapped_height(text: str, width: float, line: float = 15.0) -> float:
+    """The height [points] a wrapped text of the default font needs in a cell ``width`` characters wide
+    (spreadsheets do not grow a row for wrapped text in merged cells, and Excel not on opening a file)."""
+    lines = 0
+    for para in str(text).split("\n"):
+        lines += max(1, -(-len(para) * 10 // max(1, int(width * 11))))  # ~1.1 characters of text a column unit
+    return line * lines
+
+
+def print_setup(ws: Worksheet, *, landscape: bool = False, header_row: int | None = None,
+                last_row: int | None = None, last_col: int | None = None) -> None:
+    """Print settings of a sheet: A4, ``landscape`` or portrait, fitted to one page wide (as many tall as
+    needed), the header row repeated on every page, the sheet name and page number in the footer, and the
+    print area ``A1`` to (``last_row``, ``last_col``) (the used range when not given).
+
+    Office Open XML page setup (ECMA-376 Part 1, 18.3.1.63 pageSetup with fitToWidth / fitToHeight, and the
+    sheet property fitToPage; from memory); the print titles and area are the defined names
+    ``_xlnm.Print_Titles`` / ``_xlnm.Print_Area``.
+    """
+    ws.page_setup.orientation = "landscape" if landscape else "portrait"
+    ws.page_setup.paperSize = ws.PAPERSIZE_A4
+    ws.page_setup.fitToWidth = 1
+    ws.page_setup.fitToHeight = 0
+    ws.sheet_properties.pageSetUpPr.fitToPage = True
+    ws.page_margins.left = ws.page_margins.right = 0.5
+    ws.page_margins.top, ws.page_margins.bottom = 0.6, 0.7
+    ws.print_options.gridLines = False
+    ws.oddFooter.center.text = "&A, page &P of &N"
+    if header_row:
+        ws.print_title_rows = f"{header_row}:{header_row}"
+    rows = last_row or ws.max_row
+    cols = last_col or ws.max_column
+    ws.print_area = f"A1:{get_column_letter(max(1, cols))}{max(1, rows)}"
 
 
 def _is_prose(cell: Cell) -> bool:

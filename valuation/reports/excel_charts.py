@@ -7,14 +7,14 @@ from openpyxl.worksheet.worksheet import Worksheet
 
 
 def cashflow_chart(ws: Worksheet, *, header_row: int, last_row: int, first_col: int, last_col: int,
-                   year_col: int, anchor: str) -> None:
+                   year_col: int, anchor: str, y_title: str = "Payments") -> None:
     """Stacked columns of expected payments by year, one series a status column."""
     chart = BarChart()
     chart.type = "col"
     chart.grouping = "stacked"
     chart.overlap = 100
     chart.title = "Expected benefit payments by year"
-    chart.y_axis.title = "Payments [currency]"
+    chart.y_axis.title = y_title
     chart.x_axis.title = "Year after the valuation date"
     chart.y_axis.numFmt = "#,##0"
     data = Reference(ws, min_col=first_col, max_col=last_col, min_row=header_row, max_row=last_row)
