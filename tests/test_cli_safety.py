@@ -322,7 +322,7 @@ def test_unexpected_error_is_a_message_and_a_report_file(tmp_path, capsys, monke
     def boom(*args, **kwargs):
         raise RuntimeError("something inside broke")
 
-    monkeypatch.setattr("valuation.engine.run.value_members", boom)
+    monkeypatch.setattr("valuation.pipeline.value_members", boom)
     assert main(["run", str(BASIS), str(small), "--out", str(tmp_path / "o"), *QUICK]) == 1
     err = capsys.readouterr().err
     assert "Traceback" not in err and "internal error" in err

@@ -61,14 +61,11 @@ def test_sult_basis_run_matches_the_makeham_law() -> None:
 
 @pytest.fixture(scope="module")
 def demo():  # noqa: ANN201
-    return analyse_experience(
-        DEMO / "members_start.csv",
-        DEMO / "deaths.csv",
-        ROOT / "assumptions" / "demo_basis.toml",
-        DEMO_SETTINGS,
-        exits_path=DEMO / "exits.csv",
-        valuation_members_path=DEMO / "members.csv",
-    )
+    from valuation.pipeline import ExperienceInputs, experience_only
+
+    inputs = ExperienceInputs(start_members=DEMO / "members_start.csv", deaths=DEMO / "deaths.csv",
+                              settings=DEMO_SETTINGS, exits=DEMO / "exits.csv")
+    return experience_only(ROOT / "assumptions" / "demo_basis.toml", inputs, valuation_members=DEMO / "members.csv")
 
 
 def test_demo_counts_reconcile_and_bad_rows_are_listed(demo) -> None:  # noqa: ANN001

@@ -18,10 +18,10 @@ from pathlib import Path
 import polars as pl
 
 from valuation.engine.results import ValuationResult
-from valuation.engine.run import value_scheme
 from valuation.experience.analyse import analyse_experience
 from valuation.experience.result import TABLE_COLUMNS, ExperienceResult
 from valuation.experience.settings import ExperienceSettings
+from valuation.pipeline import value_scheme
 
 FORMULA_PROBES = ["=1+1", "+44", "-3", "@SUM(A1)"]
 SCRIPT_PROBE = "<script>alert(1)</script>"

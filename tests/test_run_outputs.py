@@ -13,9 +13,8 @@ from pathlib import Path
 import polars as pl
 import pytest
 
-from valuation.engine.batch import run_batch
-from valuation.engine.run import value_scheme
-from valuation.engine.write import write_run
+from valuation.batch import run_batch
+from valuation.pipeline import value_scheme, write_run
 
 ROOT = Path(__file__).resolve().parents[1]
 BASIS = ROOT / "assumptions" / "demo_basis.toml"

@@ -10,13 +10,13 @@ See README.md for the commands and DEVELOPERS.md for the architecture.
 
 from __future__ import annotations
 
-__version__ = "0.1.0"
+from valuation.version import __version__  # isort: split
 
-from valuation.basis import load_basis  # noqa: E402
-from valuation.engine.run import value_members, value_scheme  # noqa: E402
-from valuation.engine.stream import value_file_streaming  # noqa: E402
-from valuation.engine.write import write_run  # noqa: E402
-from valuation.members import members_from_frame, read_members  # noqa: E402
+from valuation.basis import load_basis
+from valuation.engine.run import value_members
+from valuation.engine.stream import value_file_streaming
+from valuation.members import members_from_frame, read_members
+from valuation.pipeline import run, value_scheme, write_run
 
-__all__ = ["__version__", "load_basis", "members_from_frame", "read_members", "value_file_streaming",
+__all__ = ["__version__", "load_basis", "members_from_frame", "read_members", "run", "value_file_streaming",
            "value_members", "value_scheme", "write_run"]

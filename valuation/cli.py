@@ -22,8 +22,8 @@ from datetime import date
 from pathlib import Path
 from typing import Any
 
-from valuation import __version__
 from valuation.errors import ValuationError
+from valuation.version import __version__
 
 EXIT_OK, EXIT_INTERNAL, EXIT_USAGE, EXIT_INPUT, EXIT_EXCLUSIONS, EXIT_INTERRUPTED = 0, 1, 2, 3, 4, 130
 
@@ -128,12 +128,6 @@ def _say(args: argparse.Namespace, text: str) -> None:
         _print(text)
 
 
-def _report_writers(experience: Any = None) -> list:
-    from valuation.engine.write import report_writers
-
-    return report_writers(experience)
-
-
 def _headline(result: Any) -> str:
     s = result.summary
     lines = [
@@ -185,74 +179,34 @@ def _warn_ignored(args: argparse.Namespace, ignored: list[str]) -> None:
                f"[mapping.columns]): {', '.join(ignored)}", file=sys.stderr)
 
 
-def _exclusion_gate(args: argparse.Namespace, basis: Any, path: Any, read: int, valued: int, excluded: int) -> None:
-    from valuation.engine.gate import check_exclusions
-
-    check_exclusions(read=read, valued=valued, excluded=excluded, path=path,
-                     max_share=basis.thresholds.max_excluded_share, accept=args.accept_exclusions)
-    if excluded:
-        _print(f"valuation: warning: {excluded:,} of {read:,} records were excluded and are not in the liability; "
-               "they are listed in exceptions.csv and at the top of the reports", file=sys.stderr)
+def _warn(text: str) -> None:
+    _print(f"valuation: {text}", file=sys.stderr)
 
 
 def cmd_run(args: argparse.Namespace) -> int:
+    from valuation import pipeline
     from valuation.basis import load_basis
-    from valuation.engine.run import value_members
-    from valuation.engine.write import atomic_folder, check_output_folder, write_into
-    from valuation.members import read_members
 
     progress = _Progress(args.quiet)
     basis = load_basis(args.basis)
     out = Path(args.out) if args.out else _default_out(Path(args.members).stem, basis.valuation_date)
-    experience_files = [p for p in (args.start_members, args.deaths, args.exits) if p]
-    inputs = [args.basis, args.members, *experience_files]
-    check_output_folder(out, overwrite=args.overwrite, inputs=inputs)  # before any work
+    experience = None
+    if args.deaths:
+        experience = pipeline.ExperienceInputs(start_members=args.start_members, deaths=args.deaths,
+                                               settings=_experience_settings(args), exits=args.exits)
     try:
-        if args.stream:
-            result = _run_streaming(args, basis, out, inputs, progress)
-        else:
-            progress("reading", 0, 1)
-            data = read_members(args.members, basis, _input_format(args))
-            _say(args, data.reconciliation_text())
-            _warn_ignored(args, data.ignored_columns)
-            _exclusion_gate(args, basis, args.members, data.read, data.valued, data.excluded)
-            experience = _experience(args, basis) if args.deaths else None
-            result = value_members(basis, data, sensitivities=not args.no_sensitivities, chunk_size=args.chunk_size,
-                                   progress=progress, input_files=experience_files)
-            progress("writing", 0, 1)
-            writers = [] if args.no_reports else _report_writers(experience)
-            if experience is not None:
-                writers.append(lambda _res, folder: experience.write(folder))
-            with atomic_folder(out, overwrite=args.overwrite, inputs=inputs) as tmp:
-                write_into(result, tmp, writers)
+        outcome = pipeline.run(
+            basis, args.members, out=out, overwrite=args.overwrite, fmt=_input_format(args),
+            sensitivities=not args.no_sensitivities, reports=not args.no_reports, chunk_size=args.chunk_size,
+            stream=args.stream, accept_exclusions=args.accept_exclusions, experience=experience, progress=progress,
+            say=lambda text: _say(args, text), warn=_warn)
     finally:
         progress.close()
-    _say(args, _headline(result))
-    if not args.stream and args.deaths:
-        _say(args, _experience_line(experience))
+    _say(args, _headline(outcome.result))
+    if outcome.experience is not None:
+        _say(args, _experience_line(outcome.experience))
     _say(args, f"written to {out}/")
     return EXIT_OK
-
-
-def _run_streaming(
-    args: argparse.Namespace, basis: Any, out: Path, inputs: list[Any], progress: _Progress,
-) -> Any:
-    """Very large files: read, validate and value in chunks; per-member rows go straight into the run folder."""
-    from valuation.engine.stream import value_file_streaming
-    from valuation.engine.write import atomic_folder, write_into
-
-    with atomic_folder(out, overwrite=args.overwrite, inputs=inputs) as tmp:
-        result = value_file_streaming(basis, args.members, chunk_rows=args.chunk_size,
-                                      member_results_path=tmp / "members.parquet",
-                                      sensitivities=not args.no_sensitivities, progress=progress,
-                                      fmt=_input_format(args))
-        r = result.summary["records"]
-        _say(args, f"records read {r['read']:,} = valued {r['valued']:,} + excluded {r['excluded']:,}")
-        _warn_ignored(args, r.get("ignored_columns") or [])
-        _exclusion_gate(args, basis, args.members, r["read"], r["valued"], r["excluded"])
-        progress("writing", 0, 1)
-        write_into(result, tmp, [] if args.no_reports else _report_writers())
-    return result
 
 
 def _experience_line(res: Any) -> str:
@@ -272,18 +226,16 @@ EXPERIENCE_DEFAULTS: dict[str, Any] = {"exits": None, "exposure": "central", "co
                                        "credibility_probability": 0.90, "credibility_tolerance": 0.05}
 
 
-def _experience(args: argparse.Namespace, basis: Any) -> Any:
-    from valuation.experience import ExperienceSettings, analyse_experience
+def _experience_settings(args: argparse.Namespace) -> Any:
+    from valuation.experience import ExperienceSettings
 
     opt = {k: (getattr(args, k) if getattr(args, k) is not None else v) for k, v in EXPERIENCE_DEFAULTS.items()}
-    settings = ExperienceSettings(
+    return ExperienceSettings(
         period_start=args.period_start, period_end=args.period_end,
         exposure=opt["exposure"], confidence=opt["confidence"], overdispersion=opt["overdispersion"],
         late_months=opt["late_months"], late_uplift=opt["late_uplift"],
         credibility_probability=opt["credibility_probability"], credibility_tolerance=opt["credibility_tolerance"],
     )
-    return analyse_experience(args.start_members, args.deaths, basis, settings, exits_path=opt["exits"],
-                              valuation_members_path=args.members)
 
 
 def cmd_check(args: argparse.Namespace) -> int:
@@ -326,13 +278,12 @@ def cmd_synth(args: argparse.Namespace) -> int:
 
 
 def cmd_batch(args: argparse.Namespace) -> int:
-    from valuation.engine.batch import index_text, run_batch
+    from valuation.batch import index_text, run_batch
 
     progress = _Progress(args.quiet)
     try:
         index = run_batch(args.batch, out_root=Path(args.out) if args.out else None, progress=progress,
-                          writers=_report_writers, overwrite=args.overwrite,
-                          accept_exclusions=args.accept_exclusions, say=lambda t: _say(args, t))
+                          overwrite=args.overwrite, accept_exclusions=args.accept_exclusions, say=_warn)
     finally:
         progress.close()
     _say(args, index_text(index))
@@ -340,23 +291,24 @@ def cmd_batch(args: argparse.Namespace) -> int:
 
 
 def cmd_experience(args: argparse.Namespace) -> int:
+    from valuation import pipeline
     from valuation.basis import load_basis
+    from valuation.engine.run import input_hashes
     from valuation.engine.write import atomic_folder, check_output_folder
     from valuation.manifest import dump_json
 
     basis = load_basis(args.basis)
-    args.start_members, args.deaths = args.members, args.deaths
-    args.members = args.valuation_members
     out = Path(args.out) if args.out else _default_out("experience", args.period_end)
-    inputs = [p for p in (args.basis, args.start_members, args.deaths, args.exits, args.valuation_members) if p]
+    inputs = [p for p in (args.basis, args.members, args.deaths, args.exits, args.valuation_members) if p]
     check_output_folder(out, overwrite=args.overwrite, inputs=inputs)
-    res = _experience(args, basis)
-    from valuation.engine.run import input_hashes
-
+    request = pipeline.ExperienceInputs(start_members=args.members, deaths=args.deaths,
+                                        settings=_experience_settings(args), exits=args.exits)
+    res = pipeline.experience_only(basis, request, valuation_members=args.valuation_members)
     with atomic_folder(out, overwrite=args.overwrite, inputs=inputs) as tmp:
         res.write(tmp)
         dump_json({"tool_version": __version__, "command": "experience", "inputs": input_hashes(inputs),
-                   "settings": {k: str(v) for k, v in vars(args).items() if k not in ("func", "parser")}}, tmp / "manifest.json")
+                   "settings": {k: str(v) for k, v in vars(args).items() if k not in ("func", "parser")}},
+                  tmp / "manifest.json")
     _say(args, _experience_line(res))
     _say(args, f"written to {out}/")
     return EXIT_OK

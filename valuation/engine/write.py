@@ -26,13 +26,12 @@ import tempfile
 from collections.abc import Callable, Iterable, Iterator
 from contextlib import contextmanager
 from pathlib import Path
-from typing import Any
 
-from valuation import __version__
 from valuation.csvout import formula_safe, write_csv
 from valuation.engine.results import ValuationResult
 from valuation.errors import ValuationError
 from valuation.manifest import dump_json
+from valuation.version import __version__
 
 #: Per-member results are also written as CSV (and to the workbook) up to this many members.
 SMALL_SCHEME = 50_000
@@ -247,9 +246,12 @@ def atomic_folder(
             shutil.rmtree(tmp)
         tmp.mkdir()
         (tmp / _WRITING).touch()
-    finally:
+    except BaseException:
         signal.pthread_sigmask(signal.SIG_SETMASK, previous)
+        raise
     try:
+        # a signal held until now is delivered here, inside the block that removes the folder
+        signal.pthread_sigmask(signal.SIG_SETMASK, previous)
         yield tmp
         mark_files(tmp)
         (tmp / _WRITING).unlink()
@@ -304,50 +306,6 @@ def write_into(result: ValuationResult, folder: Path, extra: list[ExtraWriter] |
         writer(result, folder)
 
 
-def report_writers(experience: Any = None) -> list[ExtraWriter]:
-    """Writers of the actuary's workbook (``valuation.xlsx``) and the trustees' summary (``summary.html``),
-    with an experience analysis in both when one is given (its own files too)."""
-    from valuation.reports import write_html, write_workbook
-
-    def workbook(result: ValuationResult, folder: Path) -> None:
-        write_workbook(result, folder / "valuation.xlsx", experience=experience)
-
-    def html(result: ValuationResult, folder: Path) -> None:
-        write_html(result, folder / "summary.html", experience=experience)
-
-    return [workbook, html]
-
-
-def write_run(
-    result: ValuationResult, out_dir: str | Path, *, reports: bool = False, experience: Any = None,
-    extra: list[ExtraWriter] | None = None, overwrite: bool = False,
-) -> Path:
-    """Write the run folder ``out_dir`` atomically and return its path.
-
-    Parameters
-    ----------
-    result : ValuationResult
-        What to write: summary.json, the CSV tables, members.parquet, manifest.json.
-    out_dir : str or Path
-        New, empty, or (with ``overwrite``) a previous run (:func:`check_output_folder`).
-    reports : bool
-        Also write the workbook and the trustees' HTML summary, as ``valuation run`` does.
-    experience : ExperienceResult, optional
-        An experience analysis: its files are written, and the reports include it.
-    extra : list of callables, optional
-        More writers ``writer(result, folder)``, run inside the same temporary folder.
-    overwrite : bool
-        Replace a previous run of the tool at ``out_dir``.
-    """
-    out_dir = Path(out_dir)
-    writers = list(report_writers(experience) if reports else [])
-    if experience is not None:
-        writers.append(lambda _res, folder: experience.write(folder))
-    with atomic_folder(out_dir, overwrite=overwrite) as tmp:
-        write_into(result, tmp, [*writers, *(extra or [])])
-    return out_dir
-
-
 __all__ = ["OutputError", "atomic_file", "atomic_folder", "check_output_file", "check_output_folder",
-           "formula_safe", "free_folder", "is_previous_run", "mark_files", "report_writers", "remove_stale", "write_csv", "write_into",
-           "write_run", "write_tables", "SMALL_SCHEME"]
+           "formula_safe", "free_folder", "is_previous_run", "mark_files", "remove_stale", "write_csv", "write_into",
+           "write_tables", "SMALL_SCHEME"]

@@ -19,6 +19,7 @@ from valuation.experience.checks import EXCEPTION_SCHEMA, check_events, empty_ex
 from valuation.experience.events import read_events_with_headers
 from valuation.experience.implied import (
     TableKey,
+    ValuedScheme,
     by_table_frame,
     implied_percentages,
     liability_effect,
@@ -238,7 +239,7 @@ def analyse_experience(
     settings: ExperienceSettings,
     *,
     exits_path: str | Path | None = None,
-    valuation_members_path: str | Path | None = None,
+    valued: ValuedScheme | None = None,
 ) -> ExperienceResult:
     """Actual against expected deaths over a period, with the implied mortality level.
 
@@ -255,10 +256,12 @@ def analyse_experience(
         Period, exposure method, confidence level, overdispersion, late-reporting allowance.
     exits_path
         Other exits (member_id, exit_date, reason); exposure stops at the exit.
-    valuation_members_path
-        Membership at the valuation date: when given, the liability is re-valued on the basis with each
-        mortality table entry's percentage replaced by its own credibility-weighted implied percentage;
-        when not, the liability effect is skipped and the result says so.
+    valued
+        The valuation at the period end (:class:`~valuation.experience.implied.ValuedScheme`: its
+        liability, and a way to value the same records on another basis): when given, the liability is
+        re-valued on the basis with each mortality table entry's percentage replaced by its own
+        credibility-weighted implied percentage; when not, the liability effect is skipped and the result
+        says so. The experience analysis never reads or values member files itself.
 
     Returns
     -------
@@ -314,7 +317,7 @@ def analyse_experience(
             "exits": exits_headers,
         },
     )
-    effect = liability_effect(valuation_members_path, basis, result.implied["by_table"])
+    effect = liability_effect(valued, basis, result.implied["by_table"])
     result.implied.update(effect)
     result.summary["implied"] = result.implied
     return result

@@ -22,7 +22,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Callable
-from pathlib import Path
+from dataclasses import dataclass
 from typing import TYPE_CHECKING, Any
 
 import polars as pl
@@ -287,15 +287,34 @@ def revalued_basis(basis: Any, by_table: list[dict[str, Any]]) -> tuple[Any, dic
     return basis.model_copy(update={"mortality_entries": entries}), changes
 
 
+@dataclass(frozen=True)
+class ValuedScheme:
+    """What the experience analysis needs of the valuation at the period end, without reading or valuing
+    anything itself: the liability, and a way to value the same records on another basis.
+
+    Attributes
+    ----------
+    liability : float
+        The valuation's liability [currency], on the basis as given.
+    revalue : callable
+        ``revalue(basis) -> float``: the liability [currency] of the same records on ``basis`` (the
+        pipeline values the records it has already read; no file is read again).
+    """
+
+    liability: float
+    revalue: Callable[[Any], float]
+
+
 def liability_effect(
-    valuation_members_path: str | Path | None, basis: Any, by_table: list[dict[str, Any]]
+    valued: ValuedScheme | None, basis: Any, by_table: list[dict[str, Any]]
 ) -> dict[str, Any]:
     """Liability on the basis as it stands, and with each table at its own implied percentage.
 
     Parameters
     ----------
-    valuation_members_path
-        The member file at the valuation date; None skips the calculation (the reason says so).
+    valued
+        The valuation at the period end (its liability and a way to re-value); None skips the
+        calculation (the reason says so).
     basis
         The loaded basis.
     by_table
@@ -310,11 +329,11 @@ def liability_effect(
     References
     ----------
     Common practice: the effect of a mortality assumption is measured by re-valuing on the changed basis
-    (here ``valuation.engine.run.value_members`` on the basis with the new percentages), as for the life
+    (``valued.revalue`` on the basis with the new percentages), as for the life
     expectancy sensitivity of IAS 19 para. 145.
     """
     skipped: dict[str, Any] = {"liability_before": None, "liability_after": None, "change_pct": None, "basis_changes": {}}
-    if valuation_members_path is None:
+    if valued is None:
         return {**skipped, "reason": "no valuation member file given: liability effect not calculated"}
     changed, changes = revalued_basis(basis, by_table)
     if not changes:
@@ -323,12 +342,8 @@ def liability_effect(
             "reason": "no mortality table has pension amounts at risk, so none has an implied percentage: "
             "liability effect not calculated",
         }
-    from valuation.engine.run import value_members  # the engine imports the whole stack: load it only here
-    from valuation.members import read_members
-
-    data = read_members(valuation_members_path, basis)
-    before = value_members(basis, data, sensitivities=False).total_liability
-    after = value_members(changed, data, sensitivities=False).total_liability
+    before = valued.liability
+    after = valued.revalue(changed)
     change = 100.0 * (after / before - 1.0) if before else None
     return {
         "liability_before": before,

@@ -29,10 +29,14 @@ from typing import Any
 import polars as pl
 from pydantic import BaseModel, ConfigDict, Field, ValidationError
 
-from valuation import __version__
+from valuation import pipeline
+from valuation.basis import load_basis
 from valuation.csvout import write_csv
+from valuation.engine.run import input_hashes
+from valuation.engine.write import atomic_folder, check_output_folder
 from valuation.errors import BasisError, ValuationError
 from valuation.manifest import dump_json
+from valuation.version import __version__
 
 _NAME = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_.-]*$")
 
@@ -95,6 +99,16 @@ def index_text(index: pl.DataFrame) -> str:
     return "\n".join(lines)
 
 
+def _prefixed(say: Callable[[str], None] | None, label: str) -> Callable[[str], None]:
+    """``say`` with every message led by ``label``; a no-op when there is no ``say``."""
+
+    def warn(text: str) -> None:
+        if say is not None:
+            say(f"{label}: {text}")
+
+    return warn
+
+
 def run_batch(
     path: str | Path,
     *,
@@ -102,22 +116,16 @@ def run_batch(
     overwrite: bool = False,
     accept_exclusions: bool = False,
     progress: Callable[[str, int, int], None] | None = None,
-    writers: Callable[[], list] | None = None,
     say: Callable[[str], None] | None = None,
 ) -> pl.DataFrame:
     """Run every valuation in the batch file and return the index of headline results.
 
-    The batch folder (run folders, ``index.csv``, ``index.json``, ``manifest.json``) is written whole or
-    not at all: a run that fails stops the batch and leaves nothing behind. Every run's inputs are checked
+    Each run goes through the one pipeline (:func:`valuation.pipeline.run`) with its workbook and HTML
+    summary. The batch folder (run folders, ``index.csv``, ``index.json``, ``manifest.json``) is written whole
+    or not at all: a run that fails stops the batch and leaves nothing behind. Every run's inputs are checked
     before any is valued. ``overwrite`` replaces a previous batch folder of this tool; ``accept_exclusions``
     values runs whose excluded share exceeds their basis's threshold.
     """
-    from valuation.basis import load_basis
-    from valuation.engine.gate import check_exclusions
-    from valuation.engine.run import input_hashes, value_members
-    from valuation.engine.write import atomic_folder, check_output_folder, mark_files, write_into
-    from valuation.members import read_members
-
     path = Path(path)
     batch = load_batch(path)
     root = out_root if out_root is not None else Path(os.path.normpath(path.parent / batch.out))
@@ -140,22 +148,13 @@ def run_batch(
         for k, run in enumerate(batch.run):
             if progress:
                 progress(f"run {run.name}", k, len(batch.run))
-            basis = bases[run.name]
+            warn = _prefixed(say, f"run '{run.name}'")
             try:
-                data = read_members(path.parent / run.members, basis)
-                check_exclusions(read=data.read, valued=data.valued, excluded=data.excluded, path=data.path,
-                                 max_share=basis.thresholds.max_excluded_share, accept=accept_exclusions)
+                outcome = pipeline.run(bases[run.name], path.parent / run.members, out=tmp_root / run.name,
+                                       sensitivities=run.sensitivities, accept_exclusions=accept_exclusions, warn=warn)
             except ValuationError as exc:
                 raise exc.with_context(f"{path}: run '{run.name}'") from None
-            if say is not None and data.excluded:
-                say(f"run '{run.name}': {data.excluded:,} of {data.read:,} records excluded (listed in its "
-                    "exceptions.csv)")
-            result = value_members(basis, data, sensitivities=run.sensitivities)
-            folder = tmp_root / run.name
-            folder.mkdir()
-            write_into(result, folder, writers() if writers else None)
-            mark_files(folder)
-            s = result.summary
+            s = outcome.result.summary
             rows.append({
                 "run": run.name, "folder": str(root / run.name), "valuation_date": s["valuation_date"],
                 "basis": str(run.basis), "members": str(run.members),

@@ -1,0 +1,310 @@
+"""The one pipeline: load the basis, read the members once, check them, value each scenario once, analyse the
+experience, write the run folder. ``valuation run``, ``valuation batch``, streaming and the Python API
+(:func:`valuation.value_scheme`, :func:`valuation.write_run`) all come through here, so a feature added here
+is added everywhere.
+
+The experience analysis never reads or values member files itself: it is handed the base liability and a
+way to value the records already read on another basis (:class:`~valuation.experience.implied.ValuedScheme`).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable, Sequence
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+from valuation.basis import load_basis
+from valuation.basis.model import Basis
+from valuation.engine.gate import check_exclusions
+from valuation.engine.results import ValuationResult
+from valuation.engine.run import DEFAULT_CHUNK, Progress, value_members
+from valuation.engine.stream import value_file_streaming
+from valuation.engine.write import ExtraWriter, atomic_folder, check_output_folder, write_into
+from valuation.errors import ValuationError
+from valuation.experience import ExperienceSettings, analyse_experience
+from valuation.experience.implied import ValuedScheme
+from valuation.experience.result import ExperienceResult
+from valuation.members.data import MemberData, members_from_frame, read_members
+from valuation.members.readers import DEFAULT_FORMAT, InputFormat
+from valuation.reports import write_html, write_workbook
+
+Say = Callable[[str], None]
+_MEMBER_SUFFIXES = (".csv", ".txt", ".xlsx", ".parquet")
+
+
+@dataclass(frozen=True)
+class ExperienceInputs:
+    """The experience analysis of a run: the membership at the period start, the deaths (and other exits)
+    in the period, and its settings (period, exposure, intervals, credibility)."""
+
+    start_members: Path
+    deaths: Path
+    settings: ExperienceSettings
+    exits: Path | None = None
+
+    @property
+    def files(self) -> list[Path]:
+        return [p for p in (self.start_members, self.deaths, self.exits) if p is not None]
+
+
+@dataclass
+class Outcome:
+    """What a run produced: the valuation, the experience analysis (if asked for), the folder written."""
+
+    result: ValuationResult
+    experience: ExperienceResult | None = None
+    folder: Path | None = None
+    data: MemberData | None = field(default=None, repr=False)
+
+
+def _quiet(_text: str) -> None:
+    """A ``say`` that says nothing."""
+
+
+def as_basis(basis: Basis | str | Path) -> Basis:
+    """A loaded basis, from itself or from its TOML file."""
+    return basis if isinstance(basis, Basis) else load_basis(basis)
+
+
+def read(basis: Basis, members: Any, fmt: InputFormat = DEFAULT_FORMAT) -> MemberData:
+    """The member records, read once: from a file (CSV, XLSX, Parquet), a polars or pandas data frame, or
+    records already read."""
+    if isinstance(members, MemberData):
+        return members
+    if isinstance(members, (str, Path)):
+        return read_members(members, basis, fmt)
+    return members_from_frame(members, basis)
+
+
+def report_writers(experience: ExperienceResult | None = None) -> list[ExtraWriter]:
+    """Writers of the actuary's workbook (``valuation.xlsx``) and the trustees' summary (``summary.html``),
+    with an experience analysis in both when one is given."""
+
+    def workbook(result: ValuationResult, folder: Path) -> None:
+        write_workbook(result, folder / "valuation.xlsx", experience=experience)
+
+    def html(result: ValuationResult, folder: Path) -> None:
+        write_html(result, folder / "summary.html", experience=experience)
+
+    return [workbook, html]
+
+
+def writers_for(outcome: Outcome, *, reports: bool) -> list[ExtraWriter]:
+    """Every writer a run folder needs beyond the tables: reports, and the experience files."""
+    writers = report_writers(outcome.experience) if reports else []
+    experience = outcome.experience
+    if experience is not None:
+        writers.append(lambda _res, folder: experience.write(folder))
+    return writers
+
+
+def gate(basis: Basis, path: Any, read_n: int, valued: int, excluded: int, accept: bool, say: Say) -> None:
+    """Stop a run that values nothing or leaves out too many records (:func:`check_exclusions`)."""
+    check_exclusions(read=read_n, valued=valued, excluded=excluded, path=path,
+                     max_share=basis.thresholds.max_excluded_share, accept=accept)
+    if excluded:
+        say(f"warning: {excluded:,} of {read_n:,} records were excluded and are not in the liability; they are "
+            "listed in exceptions.csv and at the top of the reports")
+
+
+def valued_scheme(basis: Basis, data: MemberData, liability: float, chunk_size: int = DEFAULT_CHUNK) -> ValuedScheme:
+    """The base liability and a re-valuation of the same records on another basis, for the experience."""
+    return ValuedScheme(
+        liability=liability,
+        revalue=lambda other: value_members(other, data, sensitivities=False, chunk_size=chunk_size).total_liability,
+    )
+
+
+def run(
+    basis: Basis | str | Path,
+    members: Any,
+    *,
+    out: str | Path | None = None,
+    overwrite: bool = False,
+    fmt: InputFormat = DEFAULT_FORMAT,
+    sensitivities: bool = True,
+    reports: bool = True,
+    chunk_size: int = DEFAULT_CHUNK,
+    stream: bool = False,
+    accept_exclusions: bool = False,
+    experience: ExperienceInputs | None = None,
+    progress: Progress | None = None,
+    say: Say = _quiet,
+    warn: Say = _quiet,
+) -> Outcome:
+    """Value a scheme from start to finish, and write its run folder when ``out`` is given.
+
+    Parameters
+    ----------
+    basis : Basis, str or Path
+        The assumptions basis, loaded or as a TOML file.
+    members : str, Path, polars or pandas DataFrame, or MemberData
+        The member records.
+    out : str or Path, optional
+        The run folder: new, empty, or (with ``overwrite``) a previous run. Checked before any work.
+    fmt : InputFormat
+        A member file's delimiter, encoding or sheet.
+    sensitivities, reports : bool
+        Value the basis's sensitivities; write the workbook and the HTML summary.
+    chunk_size : int
+        Members valued at a time (and, with ``stream``, read at a time) [records].
+    stream : bool
+        Read, check and value a CSV or Parquet file chunk by chunk; per-member rows go straight to the run
+        folder (needs ``out``; no experience analysis).
+    accept_exclusions : bool
+        Value the remaining records when more are excluded than the basis allows.
+    experience : ExperienceInputs, optional
+        Add the experience analysis, with the liability effect of the implied mortality.
+    progress : callable, optional
+        ``progress(stage, done, total)``.
+    say, warn : callable, optional
+        Where the reconciliation and warnings go (the command line prints them).
+
+    Raises
+    ------
+    ValuationError
+        Any input or output problem (DataError, BasisError, TableError, OutputError), or ExclusionsError.
+    """
+    loaded = as_basis(basis)
+    member_file = members if isinstance(members, (str, Path)) else None
+    inputs: list[Any] = [p for p in (loaded.source_path, member_file) if p is not None]
+    inputs += experience.files if experience else []
+    if out is not None:
+        check_output_folder(out, overwrite=overwrite, inputs=inputs)
+    if stream:
+        if out is None or member_file is None or experience is not None:
+            raise ValuationError("streaming reads a member file and writes per-member rows into a run folder, "
+                                 "without the experience analysis",
+                                 fix="give a member file and an output folder, and run the experience separately")
+        return _run_streaming(loaded, Path(member_file), Path(out), overwrite=overwrite, fmt=fmt,
+                              sensitivities=sensitivities, reports=reports, chunk_size=chunk_size,
+                              accept_exclusions=accept_exclusions, progress=progress, say=say, warn=warn,
+                              inputs=inputs)
+    if progress:
+        progress("reading", 0, 1)
+    data = read(loaded, members, fmt)
+    say(data.reconciliation_text())
+    if data.ignored_columns:
+        warn("columns not used by the valuation (neither ours nor mapped in the basis's [mapping.columns]): "
+             + ", ".join(data.ignored_columns))
+    gate(loaded, data.path, data.read, data.valued, data.excluded, accept_exclusions, warn)
+    result = value_members(loaded, data, sensitivities=sensitivities, chunk_size=chunk_size, progress=progress,
+                           input_files=experience.files if experience else [])
+    outcome = Outcome(result=result, data=data)
+    if experience is not None:
+        outcome.experience = analyse_experience(
+            experience.start_members, experience.deaths, loaded, experience.settings, exits_path=experience.exits,
+            valued=valued_scheme(loaded, data, result.total_liability, chunk_size))
+    if out is not None:
+        if progress:
+            progress("writing", 0, 1)
+        with atomic_folder(out, overwrite=overwrite, inputs=inputs) as tmp:
+            write_into(result, tmp, writers_for(outcome, reports=reports))
+        outcome.folder = Path(out)
+    return outcome
+
+
+def _run_streaming(
+    basis: Basis, path: Path, out: Path, *, overwrite: bool, fmt: InputFormat, sensitivities: bool, reports: bool,
+    chunk_size: int, accept_exclusions: bool, progress: Progress | None, say: Say, warn: Say, inputs: list[Any],
+) -> Outcome:
+    with atomic_folder(out, overwrite=overwrite, inputs=inputs) as tmp:
+        result = value_file_streaming(basis, path, chunk_rows=chunk_size, member_results_path=tmp / "members.parquet",
+                                      sensitivities=sensitivities, progress=progress, fmt=fmt)
+        r = result.summary["records"]
+        say(f"records read {r['read']:,} = valued {r['valued']:,} + excluded {r['excluded']:,}")
+        if r.get("ignored_columns"):
+            warn("columns not used by the valuation (neither ours nor mapped in the basis's [mapping.columns]): "
+                 + ", ".join(r["ignored_columns"]))
+        gate(basis, path, r["read"], r["valued"], r["excluded"], accept_exclusions, warn)
+        if progress:
+            progress("writing", 0, 1)
+        write_into(result, tmp, report_writers() if reports else [])
+    return Outcome(result=result, folder=out)
+
+
+def experience_only(
+    basis: Basis | str | Path,
+    inputs: ExperienceInputs,
+    *,
+    valuation_members: str | Path | None = None,
+    fmt: InputFormat = DEFAULT_FORMAT,
+    chunk_size: int = DEFAULT_CHUNK,
+) -> ExperienceResult:
+    """The experience analysis on its own; with ``valuation_members``, the liability effect too (the members
+    read once and valued on the basis, then on the basis at the implied percentages)."""
+    loaded = as_basis(basis)
+    valued = None
+    if valuation_members is not None:
+        data = read(loaded, valuation_members, fmt)
+        base = value_members(loaded, data, sensitivities=False, chunk_size=chunk_size).total_liability
+        valued = valued_scheme(loaded, data, base, chunk_size)
+    return analyse_experience(inputs.start_members, inputs.deaths, loaded, inputs.settings, exits_path=inputs.exits,
+                              valued=valued)
+
+
+def value_scheme(basis: Basis | str | Path, members: Any, *, fmt: InputFormat | None = None, sensitivities: bool = True,
+                 chunk_size: int = DEFAULT_CHUNK, progress: Progress | None = None) -> ValuationResult:
+    """Value a scheme: the basis first (a TOML path or a loaded ``Basis``), then the members.
+
+    Parameters
+    ----------
+    basis : str, Path or Basis
+        The assumptions basis file, or a basis from :func:`valuation.basis.load_basis`.
+    members : str, Path, polars.DataFrame, pandas.DataFrame or MemberData
+        A member file (CSV, XLSX or Parquet), a data frame with the same columns (mapped through the
+        basis's ``[mapping]`` as a file's headers are), or records already read with ``read_members``.
+    fmt : InputFormat, optional
+        A member file's delimiter and encoding, or sheet, where they are not the usual ones.
+    sensitivities, chunk_size, progress
+        As for :func:`run`.
+
+    Returns the results without writing anything; records excluded for data problems are in
+    ``result.exceptions`` and counted in ``result.summary["records"]`` (the exclusion limit that stops a
+    command-line run is not applied here; a file with no valued record is still an error).
+
+    Example
+    -------
+    >>> from valuation import value_scheme                      # doctest: +SKIP
+    >>> res = value_scheme("assumptions/demo_basis.toml", "member_data_demo/members.csv")  # doctest: +SKIP
+    >>> res.summary["liability"]["total"]                       # doctest: +SKIP
+    """
+    if (isinstance(basis, (str, Path)) and Path(basis).suffix.lower() in _MEMBER_SUFFIXES
+            and isinstance(members, (str, Path)) and Path(members).suffix.lower() == ".toml"):
+        raise ValuationError("the basis comes first: value_scheme(basis, members), as on the command line",
+                             file=basis, fix=f"call value_scheme('{members}', '{basis}')")
+    return run(basis, members, fmt=fmt or DEFAULT_FORMAT, sensitivities=sensitivities, chunk_size=chunk_size,
+               progress=progress, accept_exclusions=True, reports=False).result
+
+
+def write_run(
+    result: ValuationResult, out_dir: str | Path, *, reports: bool = False, experience: ExperienceResult | None = None,
+    extra: Sequence[ExtraWriter] = (), overwrite: bool = False,
+) -> Path:
+    """Write the run folder ``out_dir`` atomically and return its path.
+
+    Parameters
+    ----------
+    result : ValuationResult
+        What to write: summary.json, the CSV tables, members.parquet, manifest.json.
+    out_dir : str or Path
+        New, empty, or (with ``overwrite``) a previous run of the tool.
+    reports : bool
+        Also write the workbook and the trustees' HTML summary, as ``valuation run`` does.
+    experience : ExperienceResult, optional
+        An experience analysis: its files are written, and the reports include it.
+    extra : sequence of callables
+        More writers ``writer(result, folder)``, run inside the same temporary folder.
+    overwrite : bool
+        Replace a previous run of the tool at ``out_dir``.
+    """
+    out_dir = Path(out_dir)
+    outcome = Outcome(result=result, experience=experience)
+    with atomic_folder(out_dir, overwrite=overwrite) as tmp:
+        write_into(result, tmp, [*writers_for(outcome, reports=reports), *extra])
+    return out_dir
+
+
+__all__ = ["ExperienceInputs", "Outcome", "as_basis", "experience_only", "read", "report_writers", "run",
+           "value_scheme", "write_run"]
