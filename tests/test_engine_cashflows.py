@@ -21,8 +21,8 @@ from tests.engine_helpers import dob_for_age, members, sult_toml, write_basis
 from valuation.basis import load_basis
 from valuation.engine.results import ValuationResult
 from valuation.engine.run import RunAccumulator
-from valuation.engine.write import write_run
 from valuation.members import read_members
+from valuation.pipeline import write_run
 
 ROOT = Path(__file__).resolve().parents[1]
 
