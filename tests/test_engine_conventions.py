@@ -60,7 +60,7 @@ def test_withdrawal_at_mid_year_on_the_rate_for_the_age_at_the_start_of_the_year
     basis = write_basis(tmp_path, sult_toml(extra=extra, revaluation='kind = "fixed", rate = 0.03'))
     recs = members([{"status": "active", "sex": "M", "date_of_birth": dob_for_age(VD, 45), "pension": 0.0,
                      "salary": 30000.0, "service_years": 15.0}])
-    own = project_records(recs, basis).own.sum()
+    own = project_records(recs, basis).pensions["member_pension"].sum()
     i = np.arange(20)
     w = np.where(45 + i < 50, 0.05, 0.02)
     stay_before = np.concatenate([[1.0], np.cumprod(1 - w)[:-1]])

@@ -60,7 +60,7 @@ def test_one_more_year_of_life_expectancy_raises_every_pensioner(tmp_path):
     longer = project_records(recs, BASIS, sc)
     pens = (recs["status"] == "pensioner").to_numpy()
     assert pens.sum() > 10
-    assert np.all(longer.own.sum(axis=1)[pens] > base.own.sum(axis=1)[pens])
+    assert np.all(longer.pensions["member_pension"].sum(axis=1)[pens] > base.pensions["member_pension"].sum(axis=1)[pens])
 
 
 @SETTINGS

@@ -58,7 +58,7 @@ def test_known_spouse_reversion_equals_f_p_ay_minus_axy(tmp_path):
     proj = project_records(recs, basis)
     expected = 0.5 * 12000.0 * _closed_form_annuity_due(70.0, 66.0, 0.05)
     # the table stops at 120 (q_120 = 1); the closed form is truncated the same way
-    assert proj.spouse.sum() == pytest.approx(expected, rel=1e-9)
+    assert proj.pensions["spouse_pension"].sum() == pytest.approx(expected, rel=1e-9)
 
 
 def test_constant_improvement_against_hand_formula(tmp_path):
@@ -248,9 +248,9 @@ def test_death_in_service_lump_sum_attributed_to_service(tmp_path):
     p = SULT_LAW.tpx(50.0, np.arange(11).astype(float))
     deaths = p[:-1] - p[1:]
     full = 3.0 * 30000.0 * 1.02**mid * deaths * 1.05**-mid
-    assert proj.lump[0] == pytest.approx((full * 5.0 / (5.0 + mid)).sum(), rel=1e-9)
-    assert proj.dis_next_unit[0] == pytest.approx((full / (5.0 + mid)).sum(), rel=1e-9)
+    assert proj.lumps["lump_sum"][0] == pytest.approx((full * 5.0 / (5.0 + mid)).sum(), rel=1e-9)
+    assert proj.lump_next_year[0] == pytest.approx((full / (5.0 + mid)).sum(), rel=1e-9)
     acc = RunAccumulator(basis, sensitivities=False)
     acc.add(recs)
-    pension_part = proj.own.sum() + proj.spouse.sum()
-    assert acc.service_cost == pytest.approx(pension_part / 5.0 + proj.dis_next_unit[0], rel=1e-12)
+    pension_part = proj.pensions["member_pension"].sum() + proj.pensions["spouse_pension"].sum()
+    assert acc.service_cost == pytest.approx(pension_part / 5.0 + proj.lump_next_year[0], rel=1e-12)

@@ -110,7 +110,7 @@ def test_deferred_spouse_pension_fixed_at_death(tmp_path, payment, first_month, 
                      "spouse_date_of_birth": dob_for_age(VD, 47), "spouse_fraction": 0.5}])
     proj = project_records(recs, basis)
     unit = _reversion(50.0, 47.0, 180, lambda d: (1 + REV) ** (d / 12.0), (1 + REV) ** 15.0, first_month, rule)
-    assert proj.spouse.sum() == pytest.approx(0.5 * 3000.0 * unit, rel=RTOL)
+    assert proj.pensions["spouse_pension"].sum() == pytest.approx(0.5 * 3000.0 * unit, rel=RTOL)
 
 
 def _active_reference(x0, n, salary, service, g, w, accrual, prospective):
@@ -151,7 +151,7 @@ def test_active_spouse_pension_fixed_at_death_after_withdrawal(tmp_path, choice)
     at_death, at_ret = _active_reference(45.0, 20, 40000.0, 10.0, 0.035, 0.04, 1 / 60, choice != "accrued_to_death")
     unit = _reversion(45.0, 43.0, 240, at_death, at_ret)
     base = 40000.0 * 10.0 / 60.0
-    assert proj.spouse.sum() == pytest.approx(0.5 * base * unit, rel=RTOL)
+    assert proj.pensions["spouse_pension"].sum() == pytest.approx(0.5 * base * unit, rel=RTOL)
 
 
 def test_prospective_spouse_pension_refused_for_career_average(tmp_path):

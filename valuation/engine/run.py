@@ -23,6 +23,7 @@ import polars as pl
 
 from valuation import __version__
 from valuation.discounting import present_value, single_equivalent_rate
+from valuation.engine.benefits import liability_column, salary_dependent
 from valuation.engine.project import AGE_COLUMN, Projection, Valuer, with_ages
 from valuation.engine.results import ValuationResult
 from valuation.engine.scenario import (
@@ -57,20 +58,7 @@ def project_records(
     parts = [valuer.value(chunk) for chunk in _chunks(records, chunk_size)]
     if not parts:
         return valuer.value(records)
-    if len(parts) == 1:
-        return parts[0]
-    return Projection(
-        own=np.vstack([p.own for p in parts]),
-        spouse=np.vstack([p.spouse for p in parts]),
-        lump=np.concatenate([p.lump for p in parts]),
-        lump_commutation=np.concatenate([p.lump_commutation for p in parts]),
-        dis_next_unit=np.concatenate([p.dis_next_unit for p in parts]),
-        annuity_factor=np.concatenate([p.annuity_factor for p in parts]),
-        q_next=np.concatenate([p.q_next for p in parts]),
-        amount_now=np.concatenate([p.amount_now for p in parts]),
-        cashflow=sum((p.cashflow for p in parts), np.zeros_like(parts[0].cashflow)),
-        tranches=parts[0].tranches,
-    )
+    return parts[0] if len(parts) == 1 else Projection.join(parts)
 
 
 def _month_times(months: int) -> np.ndarray:
@@ -264,10 +252,11 @@ class RunAccumulator:
         self._step("valuing")
         liability = proj.liability
         self.total += float(liability.sum())
-        self.lumps += float(proj.lump.sum())
+        for _, lump in proj.lumps.items():
+            self.lumps += float(lump.sum())
         self.cash = proj.cashflow if self.cash is None else self.cash + proj.cashflow
         status = records["status"].to_numpy()
-        active = status == "active"
+        active = salary_dependent(status)
         if active.any():
             act = records.filter(pl.Series(active))
             self.active_total += float(liability[active].sum())
@@ -276,7 +265,7 @@ class RunAccumulator:
             # current service cost: the value of the benefits the coming year of service earns. Pensions
             # (and the cash commuted from them) grow with service or with the accrued pension; the
             # death-in-service lump sum is attributed straight-line to the date of death (project.py).
-            pension_benefit = (proj.own.sum(axis=1) + proj.spouse.sum(axis=1) + proj.lump_commutation)[active]
+            pension_benefit = (sum(v.sum(axis=1) for v in proj.pensions.values()) + proj.earned_with_pension)[active]
             if basis.benefit_design == "career_average":
                 accrued = proj.amount_now[active]
                 next_unit = float(basis.accrual_rate) * act["salary"].to_numpy().astype(float) * (
@@ -285,7 +274,7 @@ class RunAccumulator:
                 accrued = act["service_years"].to_numpy().astype(float)
                 next_unit = np.ones(act.height)
             per_unit = np.divide(pension_benefit, accrued, out=np.zeros(act.height), where=accrued > 0)
-            self.service_cost += float((per_unit * next_unit + proj.dis_next_unit[active]).sum())
+            self.service_cost += float((per_unit * next_unit + proj.lump_next_year[active]).sum())
         for sc in self.scenarios:
             if sc.name not in self.valuers:
                 continue
@@ -297,10 +286,7 @@ class RunAccumulator:
                 self.scenario_totals[sc.name] += float(self.valuers[sc.name].value(records).liability.sum())
             self._step(f"sensitivity: {sc.name}")
         code = _group_code(records)
-        parts = [((tr, "member_pension"), proj.own[:, j]) for j, tr in enumerate(self.tranches)]
-        parts += [((tr, "spouse_pension"), proj.spouse[:, j]) for j, tr in enumerate(self.tranches)]
-        parts.append((("all", "lump_sum"), proj.lump))
-        for key, values in parts:
+        for key, values in proj.cells():
             self.cell_sums[key] = self.cell_sums.get(key, np.zeros(N_CELLS)) + _cell_sums(code, values)
         self.death_lives += _cell_sums(code, proj.q_next)
         # by amounts: each life weighted by the pension on its record (in payment, deferred, or accrued for
@@ -311,9 +297,8 @@ class RunAccumulator:
         members = pl.DataFrame({
             "member_id": records["member_id"], "status": records["status"], "sex": records["sex"],
             "age": ages, "pension": proj.amount_now, "liability": liability,
-            "member_liability": proj.own.sum(axis=1), "spouse_liability": proj.spouse.sum(axis=1),
-            "lump_sum_liability": proj.lump, "annuity_factor": proj.annuity_factor,
-            "q_next_year": proj.q_next,
+            **{liability_column(b): v for b, v in proj.benefit_values()},
+            "annuity_factor": proj.annuity_factor, "q_next_year": proj.q_next,
         })
         if self.member_sink is not None:
             self.member_sink(members)
