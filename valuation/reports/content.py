@@ -319,12 +319,12 @@ def implied_notes(implied: dict[str, Any]) -> list[str]:
             f"(credibility): full weight at {n_full} expected deaths, enough for a "
             f"{fmt.rate(std.get('probability'), 0)} chance that the ratio is within "
             f"{fmt.rate(std.get('tolerance'), 0)} of its true value (limited-fluctuation credibility, "
-            f"Longley-Cook 1962); below that, the square root of the expected deaths divided by {n_full}. "
+            f"Longley-Cook 1962); below that, the square root of the expected deaths over {n_full}. "
             "The rest of the weight stays with the current percentage."
         )
     if implied.get("implied_percentage") is None and implied.get("by_table"):
-        out.append("The current percentages of the table differ by group and sex, so there is no single implied "
-                   "percentage: each table's comes from its own deaths.")
+        out.append("The current percentages of the tables differ by group and sex, so there is no single implied "
+                   "percentage: each table's implied percentage comes from its own deaths.")
     shared = [t for t in implied.get("by_table") or [] if t.get("group") == "default"]
     if shared:
         out.append("Member groups without a table of their own in the basis are judged together on the default "
