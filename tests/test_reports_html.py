@@ -242,3 +242,37 @@ def test_chart_labels_are_rebuilt_from_numbers() -> None:
     from valuation.reports.charts import band_labels
 
     assert band_labels(["60-64", SCRIPT_PROBE, " 100-104 ", "9-"]) == ["60-64", "band 2", "100-104", "band 4"]
+
+
+def test_charts_have_text_alternatives_and_the_page_has_landmarks(page_text: str) -> None:
+    """WCAG 2.1 SC 1.1.1 (non-text content) and WAI-ARIA landmarks: every chart is an image with a name
+    (aria-label, <title>) and a description (<desc>) that give its figures; everything on the page sits in
+    <header>, <main> or <footer>."""
+    page = parse(page_text)
+    svgs = [a for t, a in page.tags if t == "svg"]
+    assert len(svgs) == 3
+    for attrs in svgs:
+        assert attrs.get("role") == "img" and len(attrs.get("aria-label") or "") > 40
+        assert attrs.get("aria-describedby")
+    assert page_text.count("<title>") == 1 + 3 and page_text.count("<desc ") == 3  # the page's own, then charts'
+    assert "Pensioners GBP" in page_text  # the group chart's alternative names each group's liability
+    body = page_text[page_text.index("<body>") + len("<body>"):page_text.index("</body>")]
+    outside = re.sub(r"<(header|main|footer)\b.*?</\1>", "", body, flags=re.S)
+    assert outside.strip() == ""
+    assert [t for t, _ in page.tags if t in ("header", "main", "footer")][:3] == ["header", "main", "footer"]
+
+
+def test_ae_chart_marks_intervals_past_its_axis() -> None:
+    """An interval whose upper limit is above the axis's top (at most AE_AXIS_MAX) ends in an arrow marker
+    at the edge with the limit written beside it, and the text alternative says so; none when all fit."""
+    from valuation.reports.charts import ae_by_age
+    from valuation.reports.content import AE_AXIS_MAX
+
+    bands = pl.DataFrame({"group": ["60-64", "65-69"], "expected_lives": [2.0, 8.0], "ae_lives": [1.5, 1.0],
+                          "ae_lives_lower": [0.4, 0.6], "ae_lives_upper": [7.36, 1.6]})
+    svg = ae_by_age(bands)
+    assert AE_AXIS_MAX < 736.0
+    assert "736%" in svg and "past the top of the axis" in svg
+    assert "Interval runs past the top" in svg  # the legend entry of the arrow marker
+    fits = ae_by_age(bands.with_columns(pl.Series("ae_lives_upper", [2.5, 1.6])))
+    assert "past the top" not in fits and "Interval runs past the top" not in fits

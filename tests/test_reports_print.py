@@ -100,7 +100,8 @@ def test_page_one_has_the_headline_its_meaning_and_a_caution(printed: Path, demo
     first = pdf_text(printed, 1)
     total = summary["liability"]["total"]
     assert f"{round(total):,}" in first
-    assert f"About GBP {total / 1e6:.0f}m" in first  # the demo basis has currency = "GBP"; ~ 3 figures
+    # the demo basis has currency = "GBP"; the total in words to three significant figures, in millions
+    assert f"About GBP {float(f'{total:.3g}') / 1e6:g}m" in first
     act = summary["active_measures"]
     assert f"{round(act['projected_obligation']):,}" in first
     assert f"{round(act['accrued_benefit_obligation']):,}" in first
