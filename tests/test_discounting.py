@@ -9,7 +9,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from valuation.annuities import annuity_certain
+from tests.oracles import annuity_certain
 from valuation.discounting import (
     RateCurve,
     effective_duration,

@@ -11,9 +11,10 @@ import numpy as np
 import pytest
 from scipy.integrate import quad
 
-from valuation.expectancy import complete_expectancy, curtate_expectancy
+from tests.oracles import curtate_expectancy, tpx
+from valuation.expectancy import complete_expectancy
 from valuation.mortality.laws import SULT_LAW, Makeham
-from valuation.survival import cohort_lx, lx_at, tpx
+from valuation.survival import cohort_lx, lx_at
 
 
 def law_q_row(law: Makeham, start: int = 0, closing: int = 120) -> np.ndarray:

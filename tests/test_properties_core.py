@@ -14,7 +14,7 @@ import numpy as np
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from valuation.annuities import annuity_factor
+from tests.oracles import annuity_factor, joint_life, tpx
 from valuation.discounting import (
     RateCurve,
     macaulay_duration,
@@ -22,7 +22,6 @@ from valuation.discounting import (
     single_equivalent_rate,
 )
 from valuation.mortality.laws import Makeham
-from valuation.survival import joint_life, tpx
 
 SETTINGS = settings(max_examples=25, deadline=None)
 

@@ -13,11 +13,9 @@ import pytest
 
 am = pytest.importorskip("actuarialmath")
 
-from valuation.annuities import annuity_factor, woolhouse  # noqa: E402
+from tests.oracles import annuity_factor, curtate_expectancy, tpx, woolhouse  # noqa: E402
 from valuation.discounting import RateCurve  # noqa: E402
-from valuation.expectancy import curtate_expectancy  # noqa: E402
 from valuation.mortality.laws import SULT_LAW  # noqa: E402
-from valuation.survival import tpx  # noqa: E402
 
 Q = np.zeros((1, 121))
 Q[0, 20:] = SULT_LAW.qx(np.arange(20, 121))

@@ -14,9 +14,10 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
+from tests.oracles import joint_life, last_survivor, tpx
 from valuation.errors import TableError
 from valuation.mortality.laws import SULT_LAW, Makeham
-from valuation.survival import age_at, cohort_lx, exact_age, joint_life, last_survivor, lx_at, tpx
+from valuation.survival import age_at, cohort_lx, exact_age, lx_at
 
 
 def law_q_row(law: Makeham, start: int = 20, closing: int = 120) -> np.ndarray:

@@ -22,7 +22,13 @@ import numpy as np
 import polars as pl
 
 from valuation import __version__
-from valuation.discounting import present_value, single_equivalent_rate
+from valuation.discounting import (
+    effective_duration,
+    macaulay_duration,
+    modified_duration,
+    present_value,
+    single_equivalent_rate,
+)
 from valuation.engine.benefits import liability_column, salary_dependent
 from valuation.engine.project import AGE_COLUMN, Projection, Valuer, with_ages
 from valuation.engine.results import ValuationResult
@@ -67,8 +73,7 @@ def _month_times(months: int) -> np.ndarray:
 
 def discounted_total(cash: np.ndarray, curve: Any) -> float:
     """Present value [currency] of expected payments by month (index = months after the valuation date)."""
-    t = _month_times(len(cash))
-    return float((cash * curve.discount_factors(t)).sum())
+    return float(present_value(cash, _month_times(len(cash)), curve))
 
 
 def cashflow_measures(cash: np.ndarray, curve: Any) -> dict[str, float]:
@@ -76,24 +81,24 @@ def cashflow_measures(cash: np.ndarray, curve: Any) -> dict[str, float]:
 
     References
     ----------
-    Macaulay duration sum t v^t CF_t / sum v^t CF_t; modified = Macaulay / (1 + i) at the single
-    equivalent rate i; effective = (PV(-h) - PV(+h)) / (2 h PV) [DHW 2013, section 14.4].
+    The functions of :mod:`valuation.discounting`: Macaulay duration sum t v(t) CF_t / sum v(t) CF_t on
+    the curve; modified = Macaulay duration at the single equivalent rate i, divided by 1 + i (equal to
+    Macaulay / (1 + i) on a flat curve); effective = (PV(-h) - PV(+h)) / (2 h PV) [DHW 2013, section
+    14.4; Kellison ch. 11].
     """
     t = _month_times(len(cash))
     nz = cash != 0
     t, cf = t[nz], cash[nz]
     pv = float(present_value(cf, t, curve))
-    v = curve.discount_factors(t)
-    macaulay = float((t * v * cf).sum() / (v * cf).sum()) if pv else 0.0
-    sedr = float(single_equivalent_rate(cf, t, curve)) if pv else float("nan")
-    up = float(present_value(cf, t, curve.shifted(EFFECTIVE_SHIFT)))
-    down = float(present_value(cf, t, curve.shifted(-EFFECTIVE_SHIFT)))
-    effective = (down - up) / (2 * EFFECTIVE_SHIFT * pv) if pv else 0.0
+    if not pv:
+        return {"present_value": pv, "macaulay": 0.0, "modified": 0.0, "effective": 0.0,
+                "single_equivalent_discount_rate": float("nan")}
+    sedr = float(single_equivalent_rate(cf, t, curve))
     return {
         "present_value": pv,
-        "macaulay": macaulay,
-        "modified": macaulay / (1.0 + sedr) if pv else 0.0,
-        "effective": effective,
+        "macaulay": float(macaulay_duration(cf, t, curve)),
+        "modified": float(modified_duration(cf, t, sedr)),
+        "effective": float(effective_duration(cf, t, curve, EFFECTIVE_SHIFT)),
         "single_equivalent_discount_rate": sedr,
     }
 

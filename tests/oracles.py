@@ -1,17 +1,18 @@
-"""Annuity factors: annuities-certain, life annuities on survival grids, and Woolhouse's formula.
+"""Test oracles: straightforward closed forms and grid sums the engine's results are checked against.
 
-A life annuity factor is the value [currency] of 1 [currency p.a.] paid in instalments of 1/m, m times a
-year, while a life (or lives) survives. The exact m-thly factor is a sum over the m-thly payment grid of
-discount factor x survival probability x amount; nothing is approximated except the fractional-age
-assumption used for survival between integer ages.
+These are the textbook formulas (annuities-certain, life annuities on survival grids, Woolhouse's
+formula, survival probabilities tp_x on any time grid, joint life and last survivor, the curtate
+expectation of life), written plainly and each with its published source. The engine does not call them:
+it computes the same quantities on its monthly grid (``valuation/engine``), and the tests compare the two.
 
 References
 ----------
 .. [DHW] Dickson, D.C.M., Hardy, M.R. and Waters, H.R., *Actuarial Mathematics for Life Contingent
-   Risks*, 2nd ed., Cambridge University Press, 2013: chapter 5 (annuities; section 5.11 Woolhouse's
-   formula) and chapter 9 (joint life and last survivor annuities).
+   Risks*, 2nd ed., Cambridge University Press, 2013: sections 2.2, 2.6, 3.3 (survival, expectation of
+   life, fractional ages), chapter 5 (annuities; section 5.11 Woolhouse's formula) and chapter 9 (joint
+   life and last survivor).
 .. [BGHJN] Bowers, N.L., Gerber, H.U., Hickman, J.C., Jones, D.A. and Nesbitt, C.J., *Actuarial
-   Mathematics*, 2nd ed., Society of Actuaries, 1997: chapter 5 (life annuities) and chapter 9.
+   Mathematics*, 2nd ed., Society of Actuaries, 1997: chapters 3, 5 and 9.
 .. [Kellison] Kellison, S.G., *The Theory of Interest*, 3rd ed., McGraw-Hill, 2009: chapters 3 and 4
    (annuities-certain, payable m-thly).
 """
@@ -25,7 +26,8 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
 from valuation.discounting import RateCurve
-from valuation.survival import FractionalAge, _as_q_rows, _survival, cohort_lx
+from valuation.expectancy import _start
+from valuation.survival import _FRACTIONAL, FractionalAge, _as_q_rows, _check_option, cohort_lx, lx_at
 
 Timing = Literal["advance", "arrears"]
 _TIMINGS: tuple[str, ...] = ("advance", "arrears")
@@ -425,3 +427,135 @@ def woolhouse_two_term(a_due_annual: ArrayLike, m: int) -> NDArray[np.float64]:
     """
     mm = float(m)
     return np.asarray(a_due_annual, dtype=np.float64) - (mm - 1.0) / (2.0 * mm)
+
+
+# --------------------------------------------------------------------------------------------------
+# Survival on any time grid (moved from valuation/survival.py)
+# --------------------------------------------------------------------------------------------------
+
+def _survival(
+    q: NDArray[np.float64],
+    lx: NDArray[np.float64],
+    rows: NDArray[np.intp],
+    x0: NDArray[np.float64],
+    t: NDArray[np.float64],
+    fractional: FractionalAge,
+) -> NDArray[np.float64]:
+    """tp_x0 for broadcastable rows/x0 (shape (n, 1)) and times t (shape (T,) or (n, T))."""
+    l0 = lx_at(lx, q, rows, x0, fractional)
+    lt = lx_at(lx, q, rows, x0 + t, fractional)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        tp = np.where(l0 > 0.0, lt / np.where(l0 > 0.0, l0, 1.0), 0.0)
+    return np.clip(tp, 0.0, 1.0)
+
+
+def tpx(
+    q_rows: ArrayLike,
+    rows: ArrayLike,
+    x0: ArrayLike,
+    t: ArrayLike,
+    fractional: FractionalAge = "udd",
+) -> NDArray[np.float64]:
+    """Survival probabilities tp_x0 = l(x0 + t) / l(x0) on a time grid.
+
+    Parameters
+    ----------
+    q_rows : array_like, shape (n_rows, n_ages)
+        Cohort q rows (column j = q at integer age j; last column 1.0).
+    rows : array_like of int, shape (n,)
+        Cohort row of each life.
+    x0 : array_like of float, shape (n,)
+        Exact age of each life [years].
+    t : array_like of float, shape (T,)
+        Times from now, t >= 0 [years]; any grid (annual, monthly, ...).
+    fractional : {"udd", "constant_force"}
+        Fractional-age assumption between integer ages.
+
+    Returns
+    -------
+    numpy.ndarray, shape (n, T)
+        tp_x0 for each life and time; 0 past the closing age (and for a life already past it).
+
+    References
+    ----------
+    [DHW] sections 2.2 and 3.3, tp_x = l_{x+t} / l_x; [BGHJN] sections 3.3 and 3.6.
+    """
+    q = _as_q_rows(q_rows)
+    lx = cohort_lx(q)
+    r = np.atleast_1d(np.asarray(rows, dtype=np.intp))
+    x = np.atleast_1d(np.asarray(x0, dtype=np.float64))
+    tt = np.atleast_1d(np.asarray(t, dtype=np.float64))
+    if tt.ndim != 1:
+        raise ValueError(f"t must be 1-D (a time grid); got shape {tt.shape}")
+    if (tt < 0).any():
+        raise ValueError("t must be >= 0 [years]")
+    r, x = np.broadcast_arrays(r, x)
+    return _survival(q, lx, r[:, None], x[:, None], tt[None, :], fractional)
+
+
+def joint_life(tp_x: ArrayLike, tp_y: ArrayLike) -> NDArray[np.float64]:
+    """Joint-life survival tp_xy = tp_x tp_y of two independent lives [probability].
+
+    References
+    ----------
+    [DHW] chapter 9 (independent future lifetimes); [BGHJN] section 9.3.
+    """
+    return np.asarray(tp_x, dtype=np.float64) * np.asarray(tp_y, dtype=np.float64)
+
+
+def last_survivor(tp_x: ArrayLike, tp_y: ArrayLike) -> NDArray[np.float64]:
+    """Last-survivor survival tp_{xy-bar} = tp_x + tp_y - tp_x tp_y of independent lives [probability].
+
+    References
+    ----------
+    [DHW] chapter 9 (independent future lifetimes); [BGHJN] section 9.4.
+    """
+    a = np.asarray(tp_x, dtype=np.float64)
+    b = np.asarray(tp_y, dtype=np.float64)
+    return a + b - a * b
+
+
+# --------------------------------------------------------------------------------------------------
+# Curtate expectation of life (moved from valuation/expectancy.py)
+# --------------------------------------------------------------------------------------------------
+
+def curtate_expectancy(
+    q_rows: ArrayLike, rows: ArrayLike, x0: ArrayLike, fractional: FractionalAge = "udd"
+) -> NDArray[np.float64]:
+    """Curtate expectation of life e_x0 = sum_{k>=1} kp_x0 [years], from an exact (fractional) age.
+
+    kp_x0 = l(x0 + k) / l(x0) with l interpolated under the fractional-age assumption (it matters only
+    when x0 is not a whole age).
+
+    Parameters
+    ----------
+    q_rows : array_like, shape (n_rows, n_ages)
+        Cohort q rows (or a period q row); last column 1.0.
+    rows : array_like of int, shape (n,)
+        Row of each life.
+    x0 : array_like of float, shape (n,)
+        Exact age [years].
+    fractional : {"udd", "constant_force"}
+        Fractional-age assumption.
+
+    Returns
+    -------
+    numpy.ndarray, shape (n,)
+        e_x0 [years].
+
+    References
+    ----------
+    [DHW] section 2.6, e_x = sum_{k>=1} kp_x; [BGHJN] section 3.5.
+    """
+    _check_option(fractional, _FRACTIONAL, "fractional")
+    q, lx, r, x, _, _ = _start(q_rows, rows, x0)
+    n_ages = q.shape[1]
+    k = np.arange(1, n_ages + 1, dtype=np.float64)
+    l_x0 = lx_at(lx, q, r, x, fractional)
+    total = np.empty(x.shape)
+    chunk = max(1, _CHUNK_CELLS // k.size)
+    for start in range(0, x.size, chunk):
+        sl = slice(start, start + chunk)
+        total[sl] = lx_at(lx, q, r[sl, None], x[sl, None] + k[None, :], fractional).sum(axis=1)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.where(l_x0 > 0.0, total / np.where(l_x0 > 0.0, l_x0, 1.0), 0.0)
