@@ -137,7 +137,8 @@ def build_checks(
 
     Notes
     -----
-    The frame they run on carries helper columns: ``_dup_n`` / ``_dup_rows`` (copies of the member id),
+    The frame they run on carries helper columns: ``_dup`` (the member id is written more than once in
+    the file), and, on the rows that fail a check, ``_dup_n`` / ``_dup_rows`` (its copies and their rows),
     ``_age`` / ``_closing`` (age in whole years and the table's closing age), ``_exact_age`` [years],
     ``_sp_age`` / ``_sp_closing`` / ``_sp_exact_age`` (the same for a known spouse), ``_tr_given`` /
     ``_tr_sum`` (tranche split) and ``_pension`` (the pension, or the tranches' sum when the pension cell
@@ -151,7 +152,7 @@ def build_checks(
     checks = [
         Check("member_id", pl.col("member_id").is_null(), "member_id is missing (expected a unique reference)"),
         Check(
-            "member_id", pl.col("_dup_n") > 1,
+            "member_id", pl.col("_dup"),
             "member_id appears more than once; every copy is excluded: ask the administrator which record "
             "is right",
             value=_fmt("{} copies: rows {}", pl.col("_dup_n"), pl.col("_dup_rows")),

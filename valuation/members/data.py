@@ -7,39 +7,42 @@ row 2 (for Parquet, which has no header row, the same numbering is used: first r
 from __future__ import annotations
 
 import hashlib
-from collections.abc import Sequence
+from collections.abc import Iterator
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-import numpy as np
 import polars as pl
 
 from valuation.basis.model import Basis
-from valuation.errors import DataError
-from valuation.members.checks import build_checks
-from valuation.members.parse import clean_text, parse_all, parsed
-from valuation.members.readers import DEFAULT_FORMAT, InputFormat, as_written, map_headers, read_text_frame
-from valuation.members.schema import (
-    DATE_COLUMNS,
-    GROUP_OF_STATUS,
-    NUMERIC_COLUMNS,
-    REQUIRED,
-    SEXES,
-    STATUSES,
-    known_columns,
-    tranche_column,
+from valuation.members.parse import clean_text
+from valuation.members.readers import (
+    DEFAULT_FORMAT,
+    InputFormat,
+    file_kind,
+    header_targets,
+    iter_text_frames,
+    map_headers,
+    read_header,
+    read_text_frame,
+    scan_column,
 )
-from valuation.survival import age_at
-from valuation.vocabulary import Group
+from valuation.members.validate import (
+    EXCEPTION_SCHEMA,
+    FIRST_ROW,
+    IGNORED_COLUMN,
+    UNKNOWN_STATUS,
+    CheckedFrame,
+    duplicate_ids,
+    empty_exceptions,
+    ignored_column_rows,
+    sum_counts,
+    validate_frame,
+)
 
-EXCEPTION_SCHEMA: dict[str, type[pl.DataType]] = {
-    "file": pl.String, "row": pl.Int64, "member_id": pl.String, "column": pl.String,
-    "file_column": pl.String, "value": pl.String, "reason": pl.String, "severity": pl.String,
-}
-UNKNOWN_STATUS = "(unknown status)"
-#: File row of a file's first record (the header is row 1).
-FIRST_ROW = 2
+__all__ = ["EXCEPTION_SCHEMA", "FIRST_ROW", "IGNORED_COLUMN", "UNKNOWN_STATUS", "CheckedFrame", "MemberData",
+           "duplicate_ids", "empty_exceptions", "file_duplicates", "ignored_column_rows", "iter_checked",
+           "members_from_frame", "read_members", "sum_counts", "validate_frame", "write_exceptions"]
 
 
 @dataclass
@@ -80,270 +83,76 @@ class MemberData:
         return "\n".join(lines)
 
 
-def _fmt_text(fmt: str | None) -> str:
-    return f"a date as {fmt} or ISO YYYY-MM-DD" if fmt else "an ISO date YYYY-MM-DD"
+def _from_checked(p: Path, parts: list[CheckedFrame], digest: str | None = None) -> MemberData:
+    """The member data of a file from its validated chunks (records and exceptions in file order)."""
+    records = parts[0].records if len(parts) == 1 else pl.concat([c.records for c in parts])
+    exceptions = parts[0].exceptions if len(parts) == 1 else pl.concat([c.exceptions for c in parts])
+    read = sum(c.read for c in parts)
+    return MemberData(
+        path=p, records=records, exceptions=exceptions, read=read, valued=records.height,
+        excluded=read - records.height, ignored_columns=parts[0].ignored_columns,
+        _status_counts=sum_counts([c.counts for c in parts]), digest=digest,
+    )
 
 
-def _closing_expr(basis: Basis, status: pl.Expr, sex: pl.Expr, group: Group | None) -> pl.Expr:
-    """Closing age by (status, sex), or by sex alone for a fixed ``group`` (used for spouses)."""
-    out: pl.Expr = pl.lit(None, dtype=pl.Int64)
-    for s in SEXES:
-        for st in STATUSES:
-            g: Group = GROUP_OF_STATUS[st] if group is None else group
-            cond = ((status == st) & (sex == s)) if group is None else (sex == s)
-            out = pl.when(cond).then(pl.lit(basis.closing_age(g, s))).otherwise(out)
-    return out
+def file_duplicates(
+    path: str | Path, basis: Basis, fmt: InputFormat = DEFAULT_FORMAT,
+) -> tuple[pl.DataFrame, int | None]:
+    """Duplicated member ids of a whole CSV or Parquet file, from its ``member_id`` column alone.
 
-
-def _ages(d: pl.Series, basis: Basis) -> tuple[np.ndarray, np.ndarray]:
-    """Age in whole years under the basis's convention, and exact age [years], at the valuation date."""
-    dob = d.to_numpy().astype("datetime64[D]")
-    with np.errstate(invalid="ignore"):
-        exact = age_at(dob, basis.valuation_date, "exact")
-        if basis.age_convention in ("exact", "last_birthday"):
-            return np.floor(exact), exact
-        return np.floor(age_at(dob, basis.valuation_date, basis.age_convention)), exact
-
-
-def duplicate_ids(ids: pl.DataFrame) -> pl.DataFrame:
-    """The member ids that appear more than once, from the ``row`` and trimmed ``member_id`` of a whole file.
-
-    Returns one row an id: ``member_id``, ``_dup_n`` (copies) and ``_dup_rows`` (the first ten rows, then
-    ``...``), the text the duplicate check reports. Empty ids are not duplicates (they have their own check).
+    Returns the :func:`~valuation.members.validate.duplicate_ids` frame and the number of records, or an
+    empty frame and ``None`` when the file has no ``member_id`` column (validating the first chunk then
+    reports the missing column).
     """
-    return (
-        ids.filter(pl.col("member_id").is_duplicated() & pl.col("member_id").is_not_null())
-        .group_by("member_id")
-        .agg(_dup_n=pl.len().cast(pl.Int64), _dup_rows=pl.col("row").sort().head(10).cast(pl.String).str.join(", "))
-        .with_columns(_dup_rows=pl.when(pl.col("_dup_n") > 10).then(pl.col("_dup_rows") + ", ...")
-                      .otherwise(pl.col("_dup_rows")))
+    p = Path(path)
+    targets = header_targets(read_header(p, fmt), basis.mapping, p)
+    source = next((k for k, v in targets.items() if v == "member_id"), None)
+    if source is None:
+        return duplicate_ids(pl.DataFrame(schema={"row": pl.Int64, "member_id": pl.String})), None
+    ids = (
+        scan_column(p, source, fmt)
+        .rename({source: "member_id"})
+        .with_columns(clean_text(["member_id"]))
+        .with_row_index("row", offset=FIRST_ROW)
+        .with_columns(pl.col("row").cast(pl.Int64))
     )
+    return duplicate_ids(ids), ids.height
 
 
-def _prepare(
-    df: pl.DataFrame, basis: Basis, path: Path, tranche_cols: list[str], first_row: int,
-    duplicates: pl.DataFrame | None, file_columns: dict[str, str],
-) -> pl.DataFrame:
-    missing = [c for c in REQUIRED if c not in df.columns]
-    if missing:
-        mapped = ", ".join(f"'{k}' -> {v}" for k, v in basis.mapping.columns.items()) or "none"
-        written = ", ".join(f"'{file_columns.get(c, c)}'" for c in df.columns) or "none"
-        fix = "add the column, or map the administrator's header to it under [mapping.columns] in the basis"
-        if df.width == 1 and any(sep in file_columns.get(df.columns[0], df.columns[0]) for sep in ";\t|"):
-            fix = ("save the file with commas between values (the header row looks separated by another "
-                   "character)")
-        raise DataError(
-            f"required column(s) {', '.join(missing)} not found (headers in the file: {written}; "
-            f"mapping in the basis: {mapped})",
-            file=path, row=1, column=missing[0], fix=fix,
-        )
-    wanted = [*REQUIRED, *DATE_COLUMNS[1:], *NUMERIC_COLUMNS, *tranche_cols]
-    df = df.with_columns(pl.lit(None, dtype=pl.String).alias(c) for c in wanted if c not in df.columns)
-    df = df.select(wanted).with_row_index("row", offset=first_row).with_columns(pl.col("row").cast(pl.Int64))
-    df = df.with_columns(clean_text(wanted))
-    df = parse_all(df, basis.mapping, list(DATE_COLUMNS), [*NUMERIC_COLUMNS, *tranche_cols])
-    tr = [pl.col(parsed(c)) for c in tranche_cols]
-    given = pl.any_horizontal([pl.col(c).is_not_null() for c in tranche_cols]) if tranche_cols else pl.lit(False)
-    df = df.with_columns(
-        _tr_given=given,
-        _tr_sum=pl.sum_horizontal(tr) if tr else pl.lit(0.0),
-    ).with_columns(
-        _pension=pl.when(pl.col(parsed("pension")).is_null() & pl.col("_tr_given"))
-        .then(pl.col("_tr_sum")).otherwise(pl.col(parsed("pension"))),
-    )
-    dups = duplicate_ids(df.select("row", "member_id")) if duplicates is None else duplicates
-    df = df.join(dups, on="member_id", how="left", maintain_order="left").with_columns(
-        pl.col("_dup_n").fill_null(1)
-    )
-    conv, exact = _ages(df.get_column(parsed("date_of_birth")), basis)
-    sp_conv, sp_exact = _ages(df.get_column(parsed("spouse_date_of_birth")), basis)
-    opposite = pl.col(parsed("sex")).replace_strict({"M": "F", "F": "M"}, default=None)
-    return df.with_columns(
-        _age=pl.Series(conv).fill_nan(None),
-        _exact_age=pl.Series(exact).fill_nan(None),
-        _sp_age=pl.Series(sp_conv).fill_nan(None),
-        _sp_exact_age=pl.Series(sp_exact).fill_nan(None),
-        _closing=_closing_expr(basis, pl.col(parsed("status")), pl.col(parsed("sex")), None),
-        _sp_closing=_closing_expr(basis, pl.col(parsed("status")), opposite, "spouse"),
-    )
+def iter_checked(
+    path: str | Path, basis: Basis, fmt: InputFormat = DEFAULT_FORMAT, *, chunk_rows: int | None = None,
+    duplicates: pl.DataFrame | None = None,
+) -> Iterator[CheckedFrame]:
+    """A member file as validated chunks of ``chunk_rows`` records (the whole file as one chunk by default).
 
-
-def _in_file(reason: pl.Expr | str, column: str, header: str) -> pl.Expr:
-    """The reason, led by the file's own header where it is spelt differently from our column name."""
-    text = pl.lit(reason) if isinstance(reason, str) else reason
-    return text if header == column else pl.concat_str(pl.lit(f"column '{header}': "), text.cast(pl.String))
-
-
-def _exceptions(
-    df: pl.DataFrame, basis: Basis, path: Path, tranche_cols: list[str], file_columns: dict[str, str],
-) -> pl.DataFrame:
-    """Every problem found, one row each (:data:`EXCEPTION_SCHEMA`).
-
-    ``file_columns`` gives the file's header for each of our columns present in the file; a column the
-    file lacks is named by our name in ``file_column`` too.
-    """
-    m = basis.mapping
-    status_codes = ", ".join([*m.status_codes, *STATUSES])
-    sex_codes = ", ".join([*m.sex_codes, *SEXES])
-    checks = build_checks(
-        tranche_cols=tranche_cols, fmt_text=_fmt_text(m.date_format),
-        valuation_date=basis.valuation_date, thresholds=basis.thresholds,
-        retirement_age=basis.retirement_age, status_codes=status_codes, sex_codes=sex_codes,
-    )
-    parts = [
-        df.filter(c.mask.fill_null(False)).select(
-            pl.lit(str(path)).alias("file"),
-            pl.col("row"),
-            pl.col("member_id"),
-            pl.lit(c.column).alias("column"),
-            pl.lit(file_columns.get(c.column, c.column)).alias("file_column"),
-            (c.value if c.value is not None else pl.col(c.column)).cast(pl.String).alias("value"),
-            _in_file(c.reason, c.column, file_columns.get(c.column, c.column)).cast(pl.String).alias("reason"),
-            pl.lit(c.severity).alias("severity"),
-            pl.lit(k).alias("_order"),
-        )
-        for k, c in enumerate(checks)
-    ]
-    out = pl.concat(parts)
-    return out.sort(["row", "_order"]).drop("_order").cast(EXCEPTION_SCHEMA)  # type: ignore[arg-type]
-
-
-#: Reason of the warning listing a column the valuation does not use.
-IGNORED_COLUMN = "column not used by the valuation (not one of ours and not mapped in the basis)"
-
-
-def ignored_column_rows(path: Path, headers: list[str]) -> pl.DataFrame:
-    """One warning row of the exceptions frame for each ignored column (row and member_id empty)."""
-    return pl.DataFrame(
-        {"file": [str(path)] * len(headers), "row": [None] * len(headers), "member_id": [None] * len(headers),
-         "column": headers, "file_column": headers, "value": [None] * len(headers),
-         "reason": [IGNORED_COLUMN] * len(headers), "severity": ["warning"] * len(headers)},
-        schema=EXCEPTION_SCHEMA,
-    )
-
-
-def _records(df: pl.DataFrame, basis: Basis, tranche_cols: list[str], all_tranches: list[str]) -> pl.DataFrame:
-    v = parsed
-    pension = pl.col("_pension").fill_null(0.0)
-    default = tranche_column(basis.default_tranche)
-    cols = []
-    for t in all_tranches:
-        given = pl.col(v(t)).fill_null(0.0) if t in tranche_cols else pl.lit(0.0)
-        fallback = pension if t == default else pl.lit(0.0)
-        cols.append(pl.when(pl.col("_tr_given")).then(given).otherwise(fallback).alias(t))
-    return df.select(
-        pl.col("row"),
-        pl.col("member_id"),
-        pl.col(v("status")).alias("status"),
-        pl.col(v("sex")).alias("sex"),
-        pl.col(v("date_of_birth")).alias("date_of_birth"),
-        pension.alias("pension"),
-        *cols,
-        pl.col(v("salary")).fill_null(0.0).alias("salary"),
-        pl.col(v("service_years")).fill_null(0.0).alias("service_years"),
-        pl.col(v("retirement_age")).fill_null(basis.retirement_age).alias("retirement_age"),
-        pl.col(v("spouse_date_of_birth")).alias("spouse_date_of_birth"),
-        pl.col(v("spouse_fraction")).fill_null(basis.spouse.fraction).alias("spouse_fraction"),
-        pl.col(v("guarantee_end")).alias("guarantee_end"),
-        pl.col(v("pension_end_age")).alias("pension_end_age"),
-    )
-
-
-def _file_columns(raw: pl.DataFrame, headers: Sequence[str] | None) -> dict[str, str]:
-    """Our column name -> the file's header as written, for every column of ``raw``."""
-    if headers is None:
-        return {c: c for c in raw.columns}
-    written = tuple(as_written(h) for h in headers)
-    if len(written) != raw.width:
-        raise ValueError(f"{len(written)} headers given for a frame of {raw.width} columns")
-    return dict(zip(raw.columns, written, strict=True))
-
-
-@dataclass
-class CheckedFrame:
-    """One frame of member records after validation (a whole file, or one chunk of it).
-
-    ``records`` and ``exceptions`` are as in :class:`MemberData`; ``counts`` has one row a status label
-    (``status, read, valued, excluded``, in no particular order); ``ignored_columns`` lists the file's
-    headers (as written) that are not ours.
-    """
-
-    records: pl.DataFrame
-    exceptions: pl.DataFrame
-    counts: pl.DataFrame
-    read: int
-    ignored_columns: list[str]
-
-
-def validate_frame(
-    raw: pl.DataFrame, basis: Basis, path: Path, *, first_row: int = FIRST_ROW, duplicates: pl.DataFrame | None = None,
-    headers: Sequence[str] | None = None,
-) -> CheckedFrame:
-    """Validate member records held as text under our column names (after :func:`map_headers`).
-
-    Parameters
-    ----------
-    raw : polars.DataFrame
-        Text columns, headers already mapped to ours.
-    basis : Basis
-        The assumptions basis (valuation date, tranches, closing ages, thresholds, mapping codes).
-    path : Path
-        The member file, named in exceptions and errors.
-    first_row : int
-        File row number of ``raw``'s first record (2 for a whole file: the header is row 1). The frame
-        whose first row is 2 (the whole file, or its first chunk) also lists each ignored column once, as
-        a warning row with no row number (:data:`IGNORED_COLUMN`); it never counts a record as excluded.
-    duplicates : polars.DataFrame, optional
-        Duplicate ids of the whole file (:func:`duplicate_ids`) when ``raw`` is one chunk of it; by
-        default duplicates are found within ``raw``.
-    headers : sequence of str, optional
-        The file's headers as written, one for each column of ``raw`` in order (the columns of the
-        frame before :func:`~valuation.members.readers.map_headers`); by default ``raw``'s own names.
-        Exceptions name them in ``file_column`` (and in the reason where they differ from ours), and a
-        missing required column lists them.
+    Every chunk is checked by the same rules and gives the same exceptions as the whole file would: row
+    numbers are the file's (header = row 1), and duplicated ids are found across the whole file first
+    (:func:`file_duplicates`, a pass over the ``member_id`` column alone) unless ``duplicates`` gives them.
+    Only one chunk is held in memory at a time. An XLSX workbook (small by nature) is always one chunk.
+    A file with no records gives one empty chunk (so a missing required column is still reported).
 
     Raises
     ------
     DataError
-        A required column is absent, or a ``pension_<name>`` column names a tranche the basis does not
-        declare.
+        As :func:`read_members`, from the chunk where the problem is met (a missing column, the first).
     """
-    all_tranches = [tranche_column(t) for t in basis.tranches]
-    ours = known_columns(list(basis.tranches))
-    file_columns = _file_columns(raw, headers)
-    stray = [c for c in raw.columns if c.startswith("pension_") and c not in ours]
-    if stray:
-        header = file_columns[stray[0]]
-        read_as = "" if header == stray[0] else f" (read as {stray[0]})"
-        raise DataError(
-            f"column '{header}'{read_as} names a tranche the basis does not declare (declared: "
-            f"{', '.join(basis.tranches)})", file=path, column=header,
-            fix="declare the tranche under [tranches] in the basis, or rename the column",
-        )
-    tranche_cols = [c for c in all_tranches if c in raw.columns]
-    ignored = [file_columns[c] for c in raw.columns if c not in ours]
-    df = _prepare(raw, basis, path, tranche_cols, first_row, duplicates, file_columns)
-    exceptions = _exceptions(df, basis, path, tranche_cols, file_columns)
-    if first_row == FIRST_ROW:
-        exceptions = pl.concat([ignored_column_rows(path, ignored), exceptions])
-    bad_rows = exceptions.filter(pl.col("severity") == "excluded").get_column("row").unique()
-    df = df.with_columns(_excluded=pl.col("row").is_in(bad_rows.implode()))
-    records = _records(df.filter(~pl.col("_excluded")), basis, tranche_cols, all_tranches)
-    status_label = pl.col(parsed("status")).fill_null(UNKNOWN_STATUS)
-    counts = (
-        df.group_by(status_label.alias("status"))
-        .agg(read=pl.len(), valued=(~pl.col("_excluded")).sum(), excluded=pl.col("_excluded").sum())
-        .with_columns(pl.col("read", "valued", "excluded").cast(pl.Int64))
-    )
-    return CheckedFrame(records=records, exceptions=exceptions, counts=counts, read=df.height,
-                        ignored_columns=ignored)
-
-
-def sum_counts(parts: list[pl.DataFrame]) -> pl.DataFrame:
-    """Add up ``CheckedFrame.counts`` of several chunks, one row a status in reporting order."""
-    counts = pl.concat(parts).group_by("status").agg(pl.col("read", "valued", "excluded").sum())
-    order = {s: k for k, s in enumerate([*STATUSES, UNKNOWN_STATUS])}
-    return counts.sort(pl.col("status").replace_strict(order, return_dtype=pl.Int64))
+    p = Path(path)
+    if chunk_rows is None or file_kind(p) == "xlsx":
+        text = read_text_frame(p, fmt, keep_types=True)
+        yield validate_frame(map_headers(text, basis.mapping, p), basis, p, headers=text.columns)
+        return
+    if duplicates is None:
+        duplicates, _ = file_duplicates(p, basis, fmt)
+    first = FIRST_ROW
+    for text in iter_text_frames(p, chunk_rows, fmt, keep_types=True):
+        checked = validate_frame(map_headers(text, basis.mapping, p), basis, p, first_row=first,
+                                 duplicates=duplicates, headers=text.columns)
+        first += text.height
+        yield checked
+    if first == FIRST_ROW:  # no records: validate the header alone (missing columns are still fatal)
+        header = pl.DataFrame(schema={c: pl.String for c in read_header(p, fmt)})
+        yield validate_frame(map_headers(header, basis.mapping, p), basis, p, duplicates=duplicates,
+                             headers=header.columns)
 
 
 def read_members(path: str | Path, basis: Basis, fmt: InputFormat = DEFAULT_FORMAT) -> MemberData:
@@ -377,13 +186,7 @@ def read_members(path: str | Path, basis: Basis, fmt: InputFormat = DEFAULT_FORM
         ``pension_<name>`` column names a tranche the basis does not declare.
     """
     p = Path(path)
-    text = read_text_frame(p, fmt)
-    checked = validate_frame(map_headers(text, basis.mapping, p), basis, p, headers=text.columns)
-    return MemberData(
-        path=p, records=checked.records, exceptions=checked.exceptions, read=checked.read,
-        valued=checked.records.height, excluded=checked.read - checked.records.height,
-        ignored_columns=checked.ignored_columns, _status_counts=sum_counts([checked.counts]),
-    )
+    return _from_checked(p, list(iter_checked(p, basis, fmt)))
 
 
 def members_from_frame(frame: Any, basis: Basis, *, name: str = "(data frame)") -> MemberData:
@@ -413,11 +216,7 @@ def members_from_frame(frame: Any, basis: Basis, *, name: str = "(data frame)") 
     p = Path(name)
     checked = validate_frame(map_headers(text, basis.mapping, p), basis, p, headers=text.columns)
     digest = hashlib.sha256(text.write_csv().encode("utf-8")).hexdigest()
-    return MemberData(
-        path=p, records=checked.records, exceptions=checked.exceptions, read=checked.read,
-        valued=checked.records.height, excluded=checked.read - checked.records.height,
-        ignored_columns=checked.ignored_columns, _status_counts=sum_counts([checked.counts]), digest=digest,
-    )
+    return _from_checked(p, [checked], digest)
 
 
 def write_exceptions(md: MemberData, path: str | Path) -> Path:

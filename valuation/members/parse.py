@@ -10,9 +10,6 @@ from datetime import date
 
 import polars as pl
 
-from valuation.basis.mapping import ColumnMapping
-from valuation.members.schema import SEXES, STATUSES
-
 #: Dates outside this range are treated as impossible (e.g. a two-digit year read as year 60).
 EARLIEST = date(1850, 1, 1)
 LATEST = date(2200, 12, 31)
@@ -23,10 +20,11 @@ def parsed(col: str) -> str:
     return f"{col}__v"
 
 
-def clean_text(cols: list[str]) -> list[pl.Expr]:
-    """Trim spaces; an empty cell becomes null."""
+def clean_text(cols: list[str], text: pl.Expr | None = None) -> list[pl.Expr]:
+    """Trim spaces; an empty cell becomes null. ``text`` stands for the (single) column's text where it is
+    not the column itself (e.g. a cast)."""
     return [
-        pl.col(c).str.strip_chars().replace("", None).alias(c)  # type: ignore[arg-type]
+        (pl.col(c) if text is None else text).str.strip_chars().replace("", None).alias(c)  # type: ignore[arg-type]
         for c in cols
     ]
 
@@ -54,38 +52,22 @@ def _date_tries(col: str, fmt: str | None) -> list[pl.Expr]:
     return tries
 
 
-def parse_dates(df: pl.DataFrame, cols: list[str], fmt: str | None) -> pl.DataFrame:
-    """Parse date columns: the mapping's format, then ISO ``YYYY-MM-DD``, then ``YYYY-MM-DD HH:MM:SS``
-    (the text of an Excel date cell). Anything else, or a date outside 1850-2200, gives null.
+def parse_date(col: str, fmt: str | None, *, typed: bool = False) -> pl.Expr:
+    """Parse a date column: the mapping's format ``fmt``, then ISO ``YYYY-MM-DD``, then ``YYYY-MM-DD
+    HH:MM:SS`` (the text of an Excel date cell), the first that fits. Anything else, or a date outside
+    1850-2200, gives null. This is the one date parser of every input file (member data, deaths, exits).
 
-    Later formats are only tried for a column where the first one left values unparsed.
+    ``typed`` says the column already holds dates (a Parquet date column): only the range applies.
     """
-    out = []
-    for c in cols:
-        tries = _date_tries(c, fmt)
-        first = df.select(tries[0].alias("d"), pl.col(c).is_not_null().alias("given"))
-        if first.filter(pl.col("given") & pl.col("d").is_null()).height == 0:
-            tries = tries[:1]
-        value = pl.coalesce(tries) if len(tries) > 1 else tries[0]
-        out.append(pl.when(value.is_between(pl.lit(EARLIEST), pl.lit(LATEST))).then(value).otherwise(None)
-                   .alias(parsed(c)))
-    return df.with_columns(out)
+    if typed:
+        value = pl.col(col)
+    else:
+        tries = _date_tries(col, fmt)
+        value = pl.coalesce(tries)
+    return pl.when(value.is_between(pl.lit(EARLIEST), pl.lit(LATEST))).then(value).otherwise(None).alias(parsed(col))
 
 
 def parse_number(col: str) -> pl.Expr:
     """Parse a decimal number; text, NaN and infinities give null."""
     value = pl.col(col).cast(pl.Float64, strict=False)
     return pl.when(value.is_finite()).then(value).otherwise(None).alias(parsed(col))
-
-
-def parse_all(
-    df: pl.DataFrame, mapping: ColumnMapping, date_cols: list[str], num_cols: list[str]
-) -> pl.DataFrame:
-    """Add the parsed twin of every column of ours (``member_id`` stays text, trimmed)."""
-    df = df.with_columns(
-        pl.col("member_id").alias(parsed("member_id")),
-        parse_code("status", code_lookup(mapping.status_codes, STATUSES)),
-        parse_code("sex", code_lookup(mapping.sex_codes, SEXES)),
-        *(parse_number(c) for c in num_cols),
-    )
-    return parse_dates(df, date_cols, mapping.date_format)

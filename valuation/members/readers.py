@@ -239,11 +239,22 @@ def _check_sheet(p: Path, sheet: str) -> None:
                         fix="give one of those names with --sheet")
 
 
-def read_text_frame(path: str | Path, fmt: InputFormat = DEFAULT_FORMAT) -> pl.DataFrame:
+def _as_text(df: pl.DataFrame, keep_types: bool) -> pl.DataFrame:
+    """Every column cast to text, or (``keep_types``) every column but the 64-bit float, integer and date
+    ones, which validation reads in their own types."""
+    if not keep_types:
+        return df.with_columns(pl.all().cast(pl.String))
+    kept = [c for c, t in df.schema.items() if t == pl.Float64 or t == pl.Date or t.is_integer()]
+    return df.with_columns(pl.exclude(kept).cast(pl.String)) if len(kept) < df.width else df
+
+
+def read_text_frame(path: str | Path, fmt: InputFormat = DEFAULT_FORMAT, *, keep_types: bool = False) -> pl.DataFrame:
     """All columns of a member file as text (``pl.String``), headers as written.
 
     CSV is read as UTF-8 (a byte-order mark is dropped); XLSX reads the first sheet with the header in its
-    first row; Parquet columns of other types are cast to text (dates become ISO ``YYYY-MM-DD``). A column
+    first row; Parquet columns of other types are cast to text (dates become ISO ``YYYY-MM-DD``), or with
+    ``keep_types`` a Parquet file's 64-bit float, integer and date columns keep their types (validation
+    parses them as it would their text, and writes the text only for a value it reports). A column
     whose header is empty is named ``(no header, column N)``.
 
     Raises
@@ -272,7 +283,7 @@ def read_text_frame(path: str | Path, fmt: InputFormat = DEFAULT_FORMAT) -> pl.D
         except (pl.exceptions.PolarsError, OSError, ValueError) as exc:
             raise _parquet_unreadable(p) from exc
     try:
-        return df.with_columns(pl.all().cast(pl.String))
+        return _as_text(df, keep_types)
     except pl.exceptions.PolarsError as exc:
         raise _parquet_unreadable(p) from exc
 
@@ -359,11 +370,14 @@ def _rebatch(batches: Iterable[pl.DataFrame], size: int) -> Iterator[pl.DataFram
         yield pl.concat(buf) if len(buf) > 1 else buf[0]
 
 
-def iter_text_frames(path: str | Path, chunk_rows: int, fmt: InputFormat = DEFAULT_FORMAT) -> Iterator[pl.DataFrame]:
+def iter_text_frames(
+    path: str | Path, chunk_rows: int, fmt: InputFormat = DEFAULT_FORMAT, *, keep_types: bool = False,
+) -> Iterator[pl.DataFrame]:
     """The records of a CSV or Parquet member file as text frames of ``chunk_rows`` records each.
 
     Each frame is what :func:`read_text_frame` returns for the same records (headers as written, every
-    column ``pl.String``); only one chunk is held at a time. A file with no records yields nothing.
+    column ``pl.String``, or with ``keep_types`` as :func:`read_text_frame` keeps them); only one chunk is
+    held at a time. A file with no records yields nothing.
     """
     if chunk_rows < 1:
         raise ValueError(f"chunk_rows must be 1 or more, got {chunk_rows}")
@@ -384,7 +398,7 @@ def iter_text_frames(path: str | Path, chunk_rows: int, fmt: InputFormat = DEFAU
                 if frame.width != len(headers):
                     raise (_csv_unreadable(p, src=src, delimiter=fmt.delimiter) if kind == "csv"
                            else _parquet_unreadable(p))
-                yield _named(frame, headers).with_columns(pl.all().cast(pl.String))
+                yield _as_text(_named(frame, headers), keep_types)
         except (pl.exceptions.PolarsError, OSError, ValueError, pa.ArrowException) as exc:
             raise (_csv_unreadable(p, src=src, delimiter=fmt.delimiter) if kind == "csv"
                    else _parquet_unreadable(p)) from exc
