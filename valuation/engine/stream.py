@@ -1,11 +1,11 @@
-"""Streaming valuation: read, validate and value a member file chunk by chunk, in flat memory.
+"""Streaming valuation: value a member file chunk by chunk, in flat memory.
 
 :func:`value_file_streaming` gives the same results as ``value_members(basis, read_members(path, basis))``
-but never holds more than one chunk of the member file: a first pass reads only the ``member_id`` column
-to find duplicated ids (the one check that needs the whole file), then each chunk of records is validated
-with the same rules and messages as :func:`valuation.members.read_members` (row numbers are the file's:
-header = row 1) and valued by a :class:`~valuation.engine.run.RunAccumulator`. Per-member results go to a
-Parquet file instead of memory.
+but never holds more than one chunk of the member file. Reading and validating are
+:func:`valuation.members.iter_checked` with a small chunk (the whole-file duplicate-id pass first, then
+each chunk checked by the same rules and messages, row numbers the file's); this module only values the
+chunks with a :class:`~valuation.engine.run.RunAccumulator` and sends the per-member results to a Parquet
+file instead of memory.
 """
 
 from __future__ import annotations
@@ -22,29 +22,8 @@ import pyarrow.parquet as pq
 
 from valuation.engine.results import ValuationResult
 from valuation.engine.run import DEFAULT_CHUNK, Progress, RunAccumulator, input_hashes
-from valuation.members.data import (
-    EXCEPTION_SCHEMA,
-    CheckedFrame,
-    MemberData,
-    duplicate_ids,
-    sum_counts,
-    validate_frame,
-)
-from valuation.members.parse import clean_text
-from valuation.members.readers import (
-    DEFAULT_FORMAT,
-    InputFormat,
-    file_kind,
-    header_targets,
-    iter_text_frames,
-    map_headers,
-    read_header,
-    read_text_frame,
-    scan_column,
-)
-
-#: Header row of a member file; its first record is the next row.
-FIRST_ROW = 2
+from valuation.members.data import CheckedFrame, MemberData, file_duplicates, iter_checked, sum_counts
+from valuation.members.readers import DEFAULT_FORMAT, InputFormat, file_kind
 
 
 class ParquetMemberSink:
@@ -80,43 +59,6 @@ class ParquetMemberSink:
 
 def _discard(members: pl.DataFrame) -> None:
     """Member sink that keeps nothing (streaming without a per-member results file)."""
-
-
-def file_duplicates(path: Path, basis: Any, fmt: InputFormat = DEFAULT_FORMAT) -> tuple[pl.DataFrame, int | None]:
-    """Duplicated member ids of a whole CSV or Parquet file, from its ``member_id`` column alone.
-
-    Returns the :func:`~valuation.members.data.duplicate_ids` frame and the number of records, or an
-    empty frame and ``None`` when the file has no ``member_id`` column (validating the first chunk then
-    reports the missing column).
-    """
-    targets = header_targets(read_header(path, fmt), basis.mapping, path)
-    source = next((k for k, v in targets.items() if v == "member_id"), None)
-    if source is None:
-        return duplicate_ids(pl.DataFrame(schema={"row": pl.Int64, "member_id": pl.String})), None
-    ids = (
-        scan_column(path, source, fmt)
-        .rename({source: "member_id"})
-        .with_columns(clean_text(["member_id"]))
-        .with_row_index("row", offset=FIRST_ROW)
-        .with_columns(pl.col("row").cast(pl.Int64))
-    )
-    return duplicate_ids(ids), ids.height
-
-
-def _checked_chunks(
-    path: Path, basis: Any, chunk_rows: int, duplicates: pl.DataFrame, fmt: InputFormat = DEFAULT_FORMAT,
-) -> Iterator[CheckedFrame]:
-    """Validated chunks of a CSV or Parquet file, row numbers offset to the file's."""
-    first = FIRST_ROW
-    for text in iter_text_frames(path, chunk_rows, fmt):
-        checked = validate_frame(map_headers(text, basis.mapping, path), basis, path, first_row=first,
-                                 duplicates=duplicates, headers=text.columns)
-        first += text.height
-        yield checked
-    if first == FIRST_ROW:  # no records: validate the header alone (missing columns are still fatal)
-        header = pl.DataFrame(schema={c: pl.String for c in read_header(path, fmt)})
-        yield validate_frame(map_headers(header, basis.mapping, path), basis, path, duplicates=duplicates,
-                             headers=header.columns)
 
 
 def value_file_streaming(
@@ -184,10 +126,8 @@ def value_file_streaming(
     read = valued = 0
     ignored: list[str] = []
     try:
-        if kind == "xlsx":
-            text = read_text_frame(p, fmt)
-            chunks: Iterator[CheckedFrame] = iter([
-                validate_frame(map_headers(text, basis.mapping, p), basis, p, headers=text.columns)])
+        if kind == "xlsx":  # a workbook is read whole (one chunk), and valued in chunks below
+            chunks: Iterator[CheckedFrame] = iter_checked(p, basis, fmt)
             n_chunks = None
         else:
             if progress:
@@ -195,7 +135,7 @@ def value_file_streaming(
             dups, n_records = file_duplicates(p, basis, fmt)
             if progress:
                 progress("checking ids", 1, 1)
-            chunks = _checked_chunks(p, basis, chunk_rows, dups, fmt)
+            chunks = iter_checked(p, basis, fmt, chunk_rows=chunk_rows, duplicates=dups)
             n_chunks = max(1, -(-n_records // chunk_rows)) if n_records is not None else None
         done = 0
         for checked in chunks:
@@ -215,7 +155,7 @@ def value_file_streaming(
         if sink is not None:
             sink.close()
     data = MemberData(
-        path=p, records=pl.DataFrame(), exceptions=pl.concat(exceptions).cast(EXCEPTION_SCHEMA),  # type: ignore[arg-type]
+        path=p, records=pl.DataFrame(), exceptions=pl.concat(exceptions),
         read=read, valued=valued, excluded=read - valued, ignored_columns=ignored,
         _status_counts=sum_counts(counts),
     )

@@ -2,8 +2,17 @@
 
 from __future__ import annotations
 
-from valuation.members.data import MemberData, members_from_frame, read_members, write_exceptions
+from valuation.members.data import (
+    EXCEPTION_SCHEMA,
+    CheckedFrame,
+    MemberData,
+    iter_checked,
+    members_from_frame,
+    read_members,
+    write_exceptions,
+)
+from valuation.members.readers import InputFormat
 from valuation.members.synth import synth_scheme, to_admin_format, write_scheme
 
-__all__ = ["MemberData", "members_from_frame", "read_members", "synth_scheme", "to_admin_format",
-           "write_exceptions", "write_scheme"]
+__all__ = ["EXCEPTION_SCHEMA", "CheckedFrame", "InputFormat", "MemberData", "iter_checked", "members_from_frame",
+           "read_members", "synth_scheme", "to_admin_format", "write_exceptions", "write_scheme"]
