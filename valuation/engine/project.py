@@ -15,9 +15,11 @@ References
 
 from __future__ import annotations
 
-from collections.abc import Iterator
+import dataclasses
+from collections.abc import Iterator, Sequence
 from dataclasses import dataclass
 from datetime import date
+from functools import partial
 from typing import Any
 
 import numpy as np
@@ -93,6 +95,14 @@ class Projection:
         )
 
 
+@dataclass
+class Prepared:
+    """A chunk of records made ready for valuing under any scenario (see :meth:`Valuer.prepare`)."""
+
+    n: int
+    parts: list[tuple[BenefitRule, NDArray[np.int64], Members]]
+
+
 #: Columns a caller may add so that ages are computed once for every scenario (see :func:`with_ages`).
 AGE_COLUMN = "_age_at_valuation"
 
@@ -162,9 +172,23 @@ class Valuer:
         )
 
     # ------------------------------------------------------------------ main
-    def value(self, records: pl.DataFrame) -> Projection:
-        """Value every record (one benefit rule at a time) and return per-member values and cash flows."""
-        n = records.height
+    def prepare(self, records: pl.DataFrame) -> Prepared:
+        """What valuing ``records`` needs that no scenario changes: each rule's records, ages and survival
+        rows (every scenario's survival rows have the same layout), and, filled in as the first scenario
+        asks, their keys. Value the result under as many scenarios as needed (:meth:`value`)."""
+        status = records["status"].to_numpy()
+        parts = []
+        for rule in RULES:
+            sel = np.flatnonzero(rule.applies_to(status))
+            if len(sel):
+                parts.append((rule, sel, self._members(rule, records[sel])))
+        return Prepared(records.height, parts)
+
+    def value(self, records: pl.DataFrame | Prepared, rules: Sequence[BenefitRule] | None = None) -> Projection:
+        """Value every record (one benefit rule at a time; only ``rules`` if given, the others left at 0)
+        and return per-member values and cash flows."""
+        prepared = records if isinstance(records, Prepared) else self.prepare(records)
+        n = prepared.n
         J = len(self.tranches)
         pensions = {b: np.zeros((n, J)) for b in PENSION_BENEFITS}
         lumps = {b: np.zeros(n) for b in LUMP_BENEFITS}
@@ -174,12 +198,10 @@ class Valuer:
         q_next = np.zeros(n)
         amount_now = np.zeros(n)
         cash = np.zeros((len(STATUSES), self.ctx.months))
-        status = records["status"].to_numpy()
-        for rule in RULES:
-            sel = np.flatnonzero(rule.applies_to(status))
-            if len(sel) == 0:
+        for rule, sel, members in prepared.parts:
+            if rules is not None and rule not in rules:
                 continue
-            part = self._value_rule(rule, records[sel])
+            part = self._value_rule(rule, members)
             for b, v in part.pensions.items():
                 pensions[b][sel] = v
             for b, lump in part.lumps.items():
@@ -189,22 +211,21 @@ class Valuer:
             cash[STATUSES.index(rule.status)] += part.cashflow[0]
         return Projection(pensions, lumps, earned, next_year, factor, q_next, amount_now, cash, self.tranches)
 
-    def members(self, rule: BenefitRule, df: pl.DataFrame) -> Members:
-        """One rule's records as arrays: sex, date of birth, age now, survival row and l at that age."""
-        bc = self.bc
+    def _members(self, rule: BenefitRule, df: pl.DataFrame) -> Members:
+        """One rule's records as arrays: sex, date of birth, age now and survival row (l now left empty)."""
         sex = df["sex"].to_numpy().astype(str)
         dob = _days(df["date_of_birth"].to_numpy())
         if AGE_COLUMN in df.columns:  # computed once a chunk by the caller (see with_ages)
             x0 = df[AGE_COLUMN].to_numpy()
         else:
             x0 = np.asarray(age_at(dob, self.valuation_date, self.basis.age_convention), dtype=float)
-        rows_x = bc.rows(GROUP_OF_STATUS[rule.status], sex, x0)
-        return Members(frame=df, status=rule.status, sex=sex, dob=dob, x0=x0, rows_x=rows_x, lx0=bc.l(rows_x, x0))
+        rows_x = self.bc.rows(GROUP_OF_STATUS[rule.status], sex, x0)
+        return Members(frame=df, status=rule.status, sex=sex, dob=dob, x0=x0, rows_x=rows_x, lx0=np.empty(0))
 
-    def _value_rule(self, rule: BenefitRule, df: pl.DataFrame) -> Projection:
+    def _value_rule(self, rule: BenefitRule, shared: Members) -> Projection:
         bc = self.bc
-        N, J = df.height, len(self.tranches)
-        m = self.members(rule, df)
+        m = dataclasses.replace(shared, lx0=bc.l(shared.rows_x, shared.x0))  # the cache stays shared
+        N, J = m.n, len(self.tranches)
         q_next = 1.0 - bc.l(m.rows_x, m.x0 + 1.0) / m.lx0  # expected deaths in the next year
         terms = rule.terms(bc, m)
         cash = np.zeros(self.ctx.months)
@@ -220,8 +241,8 @@ class Valuer:
                 next_year += lump.next_year
         pensions: dict[Benefit, NDArray[np.float64]] = {}
         own = np.zeros(N)
-        for leg in rule.legs(bc, m, terms):
-            values, flows = self.value_leg(leg)
+        for i, leg in enumerate(rule.legs(bc, m, terms)):
+            values, flows = self.value_leg(leg, m.once(f"leg {i} keys", partial(dedupe, *leg.key_columns())))
             pensions[leg.benefit] = pensions.get(leg.benefit, np.zeros((N, J))) + values
             cash += flows
             if leg.kind == "own":
@@ -231,9 +252,12 @@ class Valuer:
         return Projection(pensions, lumps, earned, next_year, factor, q_next, terms.base.sum(axis=1), cash[None, :],
                           self.tranches)
 
-    def value_leg(self, leg: Leg) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
-        """Per-member PV (N, J) of a leg and its expected payments on the monthly grid (M,), valued on keys."""
-        first, inv = dedupe(*leg.key_columns())
+    def value_leg(
+        self, leg: Leg, keys: tuple[NDArray[np.int64], NDArray[np.int64]] | None = None,
+    ) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
+        """Per-member PV (N, J) of a leg and its expected payments on the monthly grid (M,), valued on keys
+        (``keys``: each key's first member and each member's key, from :func:`legs.dedupe`)."""
+        first, inv = keys if keys is not None else dedupe(*leg.key_columns())
 
         def at(a: NDArray | None) -> NDArray | None:
             return None if a is None else a[first]

@@ -29,7 +29,7 @@ from valuation.discounting import (
     present_value,
     single_equivalent_rate,
 )
-from valuation.engine.benefits import liability_column, salary_dependent
+from valuation.engine.benefits import SALARY_RULES, liability_column, salary_dependent
 from valuation.engine.project import AGE_COLUMN, Projection, Valuer, with_ages
 from valuation.engine.results import ValuationResult
 from valuation.engine.scenario import (
@@ -253,7 +253,9 @@ class RunAccumulator:
         """Value one chunk of valid member records (the frame ``read_members`` returns)."""
         basis = self.basis
         records = with_ages(records, basis)
-        proj = self.base.value(records)
+        # ages, survival rows, amounts and keys are worked out once and shared by every scenario
+        prepared = self.base.prepare(records)
+        proj = self.base.value(prepared)
         self._step("valuing")
         liability = proj.liability
         self.total += float(liability.sum())
@@ -265,7 +267,7 @@ class RunAccumulator:
         if active.any():
             act = records.filter(pl.Series(active))
             self.active_total += float(liability[active].sum())
-            self.abo += float(self.no_growth.value(act).liability.sum())
+            self.abo += float(self.no_growth.value(prepared, SALARY_RULES).liability[active].sum())
             self._step("accrued-benefit measure")
             # current service cost: the value of the benefits the coming year of service earns. Pensions
             # (and the cash commuted from them) grow with service or with the accrued pension; the
@@ -285,10 +287,11 @@ class RunAccumulator:
                 continue
             if sc.kind == "salary_growth":
                 # salary growth changes actives' benefits only: re-value them, keep the rest
-                part = self.valuers[sc.name].value(records.filter(pl.Series(active))).liability.sum() if active.any() else 0.0
+                part = (self.valuers[sc.name].value(prepared, SALARY_RULES).liability[active].sum()
+                        if active.any() else 0.0)
                 self.scenario_totals[sc.name] += float(liability[~active].sum() + part)
             else:
-                self.scenario_totals[sc.name] += float(self.valuers[sc.name].value(records).liability.sum())
+                self.scenario_totals[sc.name] += float(self.valuers[sc.name].value(prepared).liability.sum())
             self._step(f"sensitivity: {sc.name}")
         code = _group_code(records)
         for key, values in proj.cells():

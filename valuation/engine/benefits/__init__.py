@@ -22,6 +22,9 @@ RULES: tuple[BenefitRule, ...] = tuple(sorted(
     (PensionInPayment(), DependantPension(), DeferredPension(), ActivePension()),
     key=lambda r: STATUSES.index(r.status)))
 
+#: The rules whose benefits depend on salary.
+SALARY_RULES: tuple[BenefitRule, ...] = tuple(r for r in RULES if r.uses_salary)
+
 #: Benefits paid as pensions (legs, split by tranche) and as lump sums, in reporting order.
 PENSION_BENEFITS: tuple[Benefit, ...] = tuple(b for b in BENEFITS if any(b in r.pensions for r in RULES))
 LUMP_BENEFITS: tuple[Benefit, ...] = tuple(b for b in BENEFITS if any(b in r.lump_sums for r in RULES))
@@ -31,9 +34,8 @@ def salary_dependent(status: NDArray) -> NDArray[np.bool_]:
     """Mask of the records whose benefits depend on salary (the accrued-benefit measure, the service cost
     and the salary-growth sensitivity re-value only these)."""
     mask = np.zeros(len(status), dtype=bool)
-    for rule in RULES:
-        if rule.uses_salary:
-            mask |= rule.applies_to(status)
+    for rule in SALARY_RULES:
+        mask |= rule.applies_to(status)
     return mask
 
 
@@ -43,6 +45,6 @@ def liability_column(benefit: Benefit) -> str:
 
 
 __all__ = [
-    "LUMP_BENEFITS", "PENSION_BENEFITS", "RULES", "BenefitContext", "BenefitRule", "Leg", "Lump", "Members",
+    "LUMP_BENEFITS", "PENSION_BENEFITS", "RULES", "SALARY_RULES", "BenefitContext", "BenefitRule", "Leg", "Lump", "Members",
     "PensionTerms", "liability_column", "salary_dependent",
 ]

@@ -84,15 +84,15 @@ class ActivePension(BenefitRule):
         N, J = m.n, len(bc.tranches)
         start = retirement_month(bc, m)
         dj = bc.tranches.index(basis.default_tranche)
-        salary = m.frame["salary"].fill_null(0.0).to_numpy().astype(float)
-        service = m.frame["service_years"].fill_null(0.0).to_numpy().astype(float)
+        salary = m.once("salary", lambda: m.frame["salary"].fill_null(0.0).to_numpy().astype(float))
+        service = m.once("service", lambda: m.frame["service_years"].fill_null(0.0).to_numpy().astype(float))
         g = ctx.salary_growth
         n_int = int(np.ceil(start.max() / 12.0)) if N else 0
         yrs = np.arange(n_int)
         mid = (yrs + 0.5).astype(np.float64)
         mid_m = np.clip(np.rint(mid * 12).astype(np.int64), 0, ctx.months - 1)
         # everything that depends on age, survival row and retirement date alone is done once a key
-        first, inv = dedupe(m.rows_x, m.x0, start)
+        first, inv = m.once("keys", lambda: dedupe(m.rows_x, m.x0, start))
         kx, kstart, krows = m.x0[first], start[first], m.rows_x[first]
         K = len(first)
         n_years = kstart / 12.0
@@ -111,7 +111,7 @@ class ActivePension(BenefitRule):
 
         exits: tuple[Exits, NDArray[np.int64]] | None = None
         if basis.benefit_design == "career_average":
-            base = bc.base_amounts(m.frame)
+            base = bc.base_amounts(m)
             at_ret = bc.revalue[:, start].T
             growth = bc.revalue
         else:

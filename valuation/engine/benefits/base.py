@@ -22,8 +22,9 @@ References
 from __future__ import annotations
 
 from abc import ABC, abstractmethod
-from dataclasses import dataclass
-from typing import Any, ClassVar, Literal
+from collections.abc import Callable
+from dataclasses import dataclass, field
+from typing import Any, ClassVar, Literal, TypeVar
 
 import numpy as np
 import polars as pl
@@ -35,6 +36,7 @@ from valuation.survival import lx_at
 from valuation.vocabulary import Benefit, Group, Sex, Status, tranche_column
 
 LegKind = Literal["own", "reversion"]
+T = TypeVar("T")
 
 #: The member's own pension (every status has one).
 MEMBER_PENSION: Benefit = "member_pension"
@@ -73,15 +75,20 @@ class BenefitContext:
         """Years after the valuation date rounded to the monthly grid."""
         return np.clip(np.rint(years * 12.0), 0, self.ctx.months - 1).astype(np.int64)
 
-    def base_amounts(self, df: pl.DataFrame) -> NDArray[np.float64]:
+    def base_amounts(self, m: Members) -> NDArray[np.float64]:
         """Each member's pension by tranche [currency p.a.], (N, J)."""
-        return np.column_stack([df[tranche_column(t)].fill_null(0.0).to_numpy().astype(float)
-                                for t in self.tranches])
+        return m.once("base", lambda: np.column_stack([
+            m.frame[tranche_column(t)].fill_null(0.0).to_numpy().astype(float) for t in self.tranches]))
 
 
 @dataclass
 class Members:
-    """One status's records as arrays, with their ages and survival rows under the scenario."""
+    """One rule's records in a chunk as arrays: ages and survival rows (the same under every scenario),
+    and l at the age now under the scenario being valued (``lx0``).
+
+    ``once`` keeps what does not depend on the scenario (keys, spouse ages, amounts) for every scenario
+    that values the same chunk (see ``project.Valuer.prepare``).
+    """
 
     frame: pl.DataFrame
     status: Status
@@ -90,10 +97,17 @@ class Members:
     x0: NDArray[np.float64]  # exact age at the valuation date [years]
     rows_x: NDArray[np.int64]
     lx0: NDArray[np.float64]
+    cache: dict[str, Any] = field(default_factory=dict)
 
     @property
     def n(self) -> int:
         return self.frame.height
+
+    def once(self, name: str, make: Callable[[], T]) -> T:
+        """``make()``, computed the first time a scenario asks and shared by the others."""
+        if name not in self.cache:
+            self.cache[name] = make()
+        return self.cache[name]  # type: ignore[no-any-return]
 
     def column(self, name: str, fill: float | None = None) -> NDArray[np.float64] | None:
         """A numeric column as floats (nulls as ``fill``, or NaN), or None where the frame lacks it."""

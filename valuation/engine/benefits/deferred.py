@@ -35,8 +35,11 @@ from valuation.engine.benefits.reversion import spouse_leg
 
 def retirement_month(bc: BenefitContext, m: Members) -> NDArray[np.int64]:
     """Grid month of retirement: the record's retirement age, or now if it has passed."""
-    nra = m.frame["retirement_age"].to_numpy().astype(float)
-    return bc.months(np.maximum(nra - m.x0, 0.0))
+    def make() -> NDArray[np.int64]:
+        nra = m.frame["retirement_age"].to_numpy().astype(float)
+        return bc.months(np.maximum(nra - m.x0, 0.0))
+
+    return m.once("retirement_month", make)
 
 
 class DeferredPension(BenefitRule):
@@ -50,7 +53,7 @@ class DeferredPension(BenefitRule):
     def terms(self, bc: BenefitContext, m: Members) -> PensionTerms:
         start = retirement_month(bc, m)
         full = bc.revalue[:, start].T  # (N, J)
-        return PensionTerms(base=bc.base_amounts(m.frame), start=start, at_start=full * keep_after_commutation(bc),
+        return PensionTerms(base=bc.base_amounts(m), start=start, at_start=full * keep_after_commutation(bc),
                             at_start_full=full, starts_later=True, growth=bc.revalue)
 
     def legs(self, bc: BenefitContext, m: Members, terms: PensionTerms) -> list[Leg]:

@@ -31,7 +31,7 @@ class DependantPension(BenefitRule):
     pensions = (MEMBER_PENSION,)
 
     def terms(self, bc: BenefitContext, m: Members) -> PensionTerms:
-        base = bc.base_amounts(m.frame)
+        base = bc.base_amounts(m)
         ones = np.ones_like(base)
         stop = None
         end_age = m.column("pension_end_age")

@@ -14,6 +14,7 @@ References
 from __future__ import annotations
 
 import numpy as np
+from numpy.typing import NDArray
 
 from valuation.engine.benefits.base import (
     MEMBER_PENSION,
@@ -28,6 +29,15 @@ from valuation.engine.benefits.reversion import BENEFIT as SPOUSE_PENSION
 from valuation.engine.benefits.reversion import spouse_leg
 
 
+def guarantee_months(bc: BenefitContext, m: Members) -> NDArray[np.int64] | None:
+    """Grid month of each guarantee's end (0: none); None when the records carry no guarantees."""
+    if "guarantee_end" not in m.frame.columns:
+        return None
+    g_end = np.asarray(m.frame["guarantee_end"].to_numpy(), dtype="datetime64[D]")
+    g_years = (g_end - bc.valuation_date).astype("timedelta64[D]").astype(float) / 365.25
+    return np.where(np.isnan(g_years), 0, bc.months(np.nan_to_num(g_years, nan=0.0)))
+
+
 class PensionInPayment(BenefitRule):
     """Pensioners: own pension (certain to the guarantee end) and the spouse's reversion after it."""
 
@@ -35,15 +45,10 @@ class PensionInPayment(BenefitRule):
     pensions = (MEMBER_PENSION, SPOUSE_PENSION)
 
     def terms(self, bc: BenefitContext, m: Members) -> PensionTerms:
-        base = bc.base_amounts(m.frame)
+        base = bc.base_amounts(m)
         ones = np.ones_like(base)
-        guar = None
-        if "guarantee_end" in m.frame.columns:
-            g_end = np.asarray(m.frame["guarantee_end"].to_numpy(), dtype="datetime64[D]")
-            g_years = (g_end - bc.valuation_date).astype("timedelta64[D]").astype(float) / 365.25
-            guar = np.where(np.isnan(g_years), 0, bc.months(np.nan_to_num(g_years, nan=0.0)))
         return PensionTerms(base=base, start=np.zeros(m.n, dtype=np.int64), at_start=ones, at_start_full=ones,
-                            guarantee=guar)
+                            guarantee=m.once("guarantee", lambda: guarantee_months(bc, m)))
 
     def legs(self, bc: BenefitContext, m: Members, terms: PensionTerms) -> list[Leg]:
         return [own_leg(bc, m, terms), spouse_leg(bc, m, terms)]

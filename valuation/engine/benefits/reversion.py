@@ -59,6 +59,18 @@ def spouse_leg(bc: BenefitContext, m: Members, terms: PensionTerms) -> Leg:
     ----------
     [DHW] section 9.5 (reversionary annuity on independent lives); IAS 19 para 70.
     """
+    rows_y, y0, share = m.once("spouse", lambda: _spouse(bc, m))
+    return Leg(
+        benefit=BENEFIT, kind="reversion", amount=terms.base * share[:, None], rows_x=m.rows_x, x0=m.x0,
+        start=terms.start, at_start=terms.at_start_full,
+        first_increase=bc.first_increase if terms.starts_later else None, guarantee=terms.guarantee,
+        growth=terms.growth, exits=terms.exits, service=terms.service, rows_y=rows_y, y0=y0,
+    )
+
+
+def _spouse(bc: BenefitContext, m: Members) -> tuple[NDArray[np.int64], NDArray[np.float64], NDArray[np.float64]]:
+    """The spouse's survival row and age, and the member's pension share the spouse would get (proportion
+    married times the spouse's fraction)."""
     basis = bc.basis
     male = m.sex == SEXES[0]
     sp_sex = np.where(male, SEXES[1], SEXES[0])
@@ -69,10 +81,4 @@ def spouse_leg(bc: BenefitContext, m: Members, terms: PensionTerms) -> Leg:
     if frac is None:
         frac = np.full(m.n, np.nan)
     frac = np.where(np.isnan(frac), float(basis.spouse.fraction), frac)
-    return Leg(
-        benefit=BENEFIT, kind="reversion", amount=terms.base * (pm * frac)[:, None], rows_x=m.rows_x, x0=m.x0,
-        start=terms.start, at_start=terms.at_start_full,
-        first_increase=bc.first_increase if terms.starts_later else None, guarantee=terms.guarantee,
-        growth=terms.growth, exits=terms.exits, service=terms.service,
-        rows_y=bc.rows("spouse", sp_sex, y0), y0=y0,
-    )
+    return bc.rows("spouse", sp_sex, y0), y0, pm * frac
