@@ -45,7 +45,7 @@ from valuation.members.schema import (
     tranche_column,
 )
 from valuation.survival import AgeConvention, age_at
-from valuation.vocabulary import Group
+from valuation.vocabulary import Sex
 
 #: The columns of every exceptions frame, member and experience alike: the file, its row (header = row 1),
 #: the member_id as written, our column, the file's header as written, the value as written (or the
@@ -87,15 +87,14 @@ def fmt_text(fmt: str | None) -> str:
     return f"a date as {fmt} or ISO YYYY-MM-DD" if fmt else "an ISO date YYYY-MM-DD"
 
 
-def _closing_expr(basis: Basis, status: pl.Expr, sex: pl.Expr, group: Group | None) -> pl.Expr:
-    """Closing age by (status, sex), or by sex alone for a fixed ``group`` (used for spouses)."""
-    out: pl.Expr = pl.lit(None, dtype=pl.Int64)
-    for s in SEXES:
-        for st in STATUSES:
-            g: Group = GROUP_OF_STATUS[st] if group is None else group
-            cond = ((status == st) & (sex == s)) if group is None else (sex == s)
-            out = pl.when(cond).then(pl.lit(basis.closing_age(g, s))).otherwise(out)
-    return out
+def _closing(basis: Basis, status_k: pl.Expr, sex_k: pl.Expr) -> tuple[pl.Expr, pl.Expr]:
+    """The mortality table's closing age for the member (by status and sex) and for a known spouse (the
+    spouse table of the opposite sex), looked up by the positions of the status and sex codes in
+    :data:`STATUSES` and :data:`SEXES`; null where a code is unknown."""
+    opposite: dict[Sex, Sex] = {"M": "F", "F": "M"}
+    own = pl.Series([basis.closing_age(GROUP_OF_STATUS[st], s) for st in STATUSES for s in SEXES], dtype=pl.Int64)
+    spouse = pl.Series([basis.closing_age("spouse", opposite[s]) for s in SEXES], dtype=pl.Int64)
+    return pl.lit(own).gather(status_k * len(SEXES) + sex_k), pl.lit(spouse).gather(sex_k)
 
 
 #: Every date the parser lets through (:data:`~valuation.members.parse.EARLIEST` to ``LATEST``), as days.
@@ -147,17 +146,26 @@ def duplicate_ids(ids: pl.DataFrame | pl.LazyFrame) -> pl.DataFrame | pl.LazyFra
     )
 
 
-def _recode(col: str, written: pl.Series, table: dict[str, str]) -> pl.Expr:
-    """Recode a text column through ``table`` (lower-cased codes -> ours; unknown codes give null).
+def _recode(col: str, written: pl.Series, table: dict[str, str], ours: tuple[str, ...]) -> tuple[pl.Expr, pl.Expr]:
+    """Recode a text column through ``table`` (lower-cased codes -> ours; unknown codes give null): the
+    code, and its position in ``ours``.
 
     ``written`` holds the column's distinct values: each is looked up once, and the records take their
     code by position (a gather), not by hashing a million strings.
     """
     written = written.drop_nulls()
     if written.is_empty():
-        return pl.lit(None, dtype=pl.String).alias(parsed(col))
-    ours = pl.Series([table.get(k) for k in written.str.to_lowercase()], dtype=pl.String)
-    return pl.lit(ours).gather(pl.col(col).cast(pl.Enum(written)).to_physical()).alias(parsed(col))
+        return pl.lit(None, dtype=pl.String).alias(parsed(col)), pl.lit(None, dtype=pl.Int64)
+    codes = [table.get(k) for k in written.str.to_lowercase()]
+    where = pl.col(col).cast(pl.Enum(written)).to_physical()
+    return (pl.lit(pl.Series(codes, dtype=pl.String)).gather(where).alias(parsed(col)),
+            pl.lit(pl.Series([None if c is None else ours.index(c) for c in codes], dtype=pl.Int64)).gather(where))
+
+
+def _repeated(ids: pl.Expr) -> pl.Expr:
+    """The distinct ids written more than once (sorted, compared with their neighbours), as one list."""
+    s = ids.drop_nulls().sort()
+    return s.filter((s == s.shift(1)).fill_null(False) | (s == s.shift(-1)).fill_null(False)).unique().implode()
 
 
 def _typed(dtype: pl.DataType, column: str) -> bool:
@@ -213,24 +221,26 @@ def _required(raw: pl.DataFrame, basis: Basis, path: Path, file_columns: dict[st
 def _plan(
     raw: pl.DataFrame, basis: Basis, tranche_cols: list[str], first_row: int, duplicates: pl.DataFrame | None,
     checks: list[Check],
-) -> tuple[pl.LazyFrame, pl.DataFrame]:
+) -> pl.LazyFrame:
     """Parsed columns, helper columns and one boolean column ``_m<k>`` a check, plus ``_excluded`` and
-    ``_failed``; and the duplicated ids (:func:`duplicate_ids`)."""
+    ``_failed``."""
     wanted = [*REQUIRED, *DATE_COLUMNS[1:], *NUMERIC_COLUMNS, *tranche_cols]
     source, typed = _source(raw, wanted)
     m = basis.mapping
     src = raw.lazy().select(source).with_row_index("row", offset=first_row).with_columns(pl.col("row").cast(pl.Int64))
-    # the distinct codes, and the ids written more than once: small frames, found before the main pass
-    status, sex, dups = pl.collect_all([
-        src.select(pl.col("status").unique()), src.select(pl.col("sex").unique()),
-        duplicate_ids(src) if duplicates is None else duplicates.lazy(),
-    ])
+    # the distinct codes, and the ids written more than once: short lists, found before the main pass
+    pre = src.select(pl.col("status").unique().implode(), pl.col("sex").unique().implode(),
+                     _repeated(pl.col("member_id")).alias("member_id")).collect()
+    repeated = pre.get_column("member_id")[0] if duplicates is None else duplicates.get_column("member_id")
+    status, status_k = _recode("status", pre.get_column("status")[0], code_lookup(m.status_codes, STATUSES), STATUSES)
+    sex, sex_k = _recode("sex", pre.get_column("sex")[0], code_lookup(m.sex_codes, SEXES), SEXES)
+    closing, sp_closing = _closing(basis, status_k, sex_k)
     lf = src.with_columns(
-        pl.col("member_id").alias(parsed("member_id")),
-        _recode("status", status.to_series(), code_lookup(m.status_codes, STATUSES)),
-        _recode("sex", sex.to_series(), code_lookup(m.sex_codes, SEXES)),
+        pl.col("member_id").alias(parsed("member_id")), status, sex,
         *(parse_number(c) for c in [*NUMERIC_COLUMNS, *tranche_cols]),
         *(parse_date(c, m.date_format, typed=typed[c]) for c in DATE_COLUMNS),
+        pl.col("member_id").is_in(repeated.implode()).alias("_dup"),
+        closing.alias("_closing"), sp_closing.alias("_sp_closing"),
     )
     tr = [pl.col(parsed(c)) for c in tranche_cols]
     given = pl.any_horizontal([pl.col(c).is_not_null() for c in tranche_cols]) if tranche_cols else pl.lit(False)
@@ -238,22 +248,12 @@ def _plan(
         _pension=pl.when(pl.col(parsed("pension")).is_null() & pl.col("_tr_given"))
         .then(pl.col("_tr_sum")).otherwise(pl.col(parsed("pension"))),
     )
-    opposite = pl.when(pl.col(parsed("sex")) == "M").then(pl.lit("F")).when(pl.col(parsed("sex")) == "F").then(
-        pl.lit("M"))
-    lf = (
-        lf.with_columns(
-            pl.col("member_id").is_in(dups.get_column("member_id").implode()).alias("_dup"),
-            *_ages("date_of_birth", basis, "_"),
-            *_ages("spouse_date_of_birth", basis, "_sp_"),
-            _closing_expr(basis, pl.col(parsed("status")), pl.col(parsed("sex")), None).alias("_closing"),
-            _closing_expr(basis, pl.col(parsed("status")), opposite, "spouse").alias("_sp_closing"),
-        )
-    )
+    lf = lf.with_columns(*_ages("date_of_birth", basis, "_"), *_ages("spouse_date_of_birth", basis, "_sp_"))
     excluded = [f"_m{k}" for k, c in enumerate(checks) if c.severity == "excluded"]
     return lf.with_columns(c.mask.fill_null(False).alias(f"_m{k}") for k, c in enumerate(checks)).with_columns(
         _excluded=pl.any_horizontal(excluded) if excluded else pl.lit(False),
         _failed=pl.any_horizontal([f"_m{k}" for k in range(len(checks))]) if checks else pl.lit(False),
-    ), dups
+    )
 
 
 def _in_file(reason: pl.Expr | str, column: str, header: str) -> pl.Expr:
@@ -400,9 +400,11 @@ def validate_frame(
     tranche_cols = [c for c in all_tranches if c in raw.columns]
     ignored = [file_columns[c] for c in raw.columns if c not in ours]
     checks = member_checks(basis, tranche_cols)
-    plan, dups = _plan(raw, basis, tranche_cols, first_row, duplicates, checks)
-    df = plan.collect()
-    failed = df.filter(pl.col("_failed")).join(dups, on="member_id", how="left", maintain_order="left")
+    df = _plan(raw, basis, tranche_cols, first_row, duplicates, checks).collect()
+    failed = df[df.get_column("_failed").arg_true()]  # a gather: few rows fail
+    # every copy of a repeated id fails, so the failing rows give the copies unless the whole file's are given
+    dups = duplicate_ids(failed.filter(pl.col("_dup"))) if duplicates is None else duplicates
+    failed = failed.join(dups, on="member_id", how="left", maintain_order="left")
     status_label = pl.col(parsed("status")).fill_null(UNKNOWN_STATUS)
     records, counts, exceptions = pl.collect_all([
         _records(df.lazy(), basis, tranche_cols, all_tranches),
