@@ -129,12 +129,14 @@ def _say(args: argparse.Namespace, text: str) -> None:
 
 
 def _headline(result: Any) -> str:
+    from valuation.reports.format import currency_of, format_money
+
     s = result.summary
-    lines = [
-        f"valuation date {s['valuation_date']}: liability {s['liability']['total']:,.0f}",
-    ]
+    code = currency_of(s)
+    lines = [f"valuation date {s['valuation_date']}: liability {format_money(s['liability']['total'], code)}"]
+    width = max(len(format_money(v, code)) for v in s["liability"]["by_status"].values())
     for st, v in s["liability"]["by_status"].items():
-        lines.append(f"  {st:<10} {v:>16,.0f}")
+        lines.append(f"  {st:<10} {format_money(v, code):>{max(width, 16)}}")
     d = s["duration"]
     sedr = s["single_equivalent_discount_rate"]
     sedr_text = f"{100 * sedr:.3f} %" if sedr is not None and sedr == sedr else "n/a"
