@@ -201,11 +201,12 @@ def test_column_mapping_and_duplicate_mapped_columns(tmp_path: Path) -> None:
     ("name", "content", "text", "fix"),
     [
         ("empty.csv", b"", "deaths file is empty", "give a header row (member_id, date_of_death"),
-        ("latin.csv", "member_id,date_of_death\n\u00e9,2022-01-01\n".encode("latin-1"), "is not UTF-8 text",
-         "save it again as CSV UTF-8"),
+        # read by the member files' reader: the line of the first byte UTF-8 does not allow is named
+        ("latin.csv", "member_id,date_of_death\n\u00e9,2022-01-01\n".encode("latin-1"),
+         "is not UTF-8 text: line 2 holds the byte 0xE9", "save the file as UTF-8 text"),
         ("semi.csv", b"member_id;date_of_death\nP1;2022-01-01\n", "the columns are not separated by commas "
          "(one header reads 'member_id;date_of_death')", "save the file as CSV with commas"),
-        ("bad.parquet", b"\x00\x01 not parquet", "cannot be read as a Parquet table", "save it again as CSV"),
+        ("bad.parquet", b"\x00\x01 not parquet", "cannot be read as a Parquet file", "save it as CSV UTF-8"),
     ],
 )
 def test_unreadable_event_files_say_what_to_do(tmp_path: Path, name: str, content: bytes, text: str,

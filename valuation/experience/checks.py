@@ -26,22 +26,10 @@ from typing import TypedDict
 
 import polars as pl
 
-EXCEPTION_SCHEMA: dict[str, type[pl.DataType] | pl.DataType] = {
-    "file": pl.String,
-    "row": pl.Int64,
-    "member_id": pl.String,
-    "column": pl.String,
-    "file_column": pl.String,
-    "value": pl.String,
-    "reason": pl.String,
-    "severity": pl.String,
-}
+from valuation.members.checks import Check
+from valuation.members.validate import EXCEPTION_SCHEMA, empty_exceptions
 
-
-def empty_exceptions() -> pl.DataFrame:
-    """An exceptions frame with no rows and the shared columns."""
-    return pl.DataFrame(schema=EXCEPTION_SCHEMA)
-
+__all__ = ["EXCEPTION_SCHEMA", "Check", "CheckedEvents", "check_events", "empty_exceptions"]
 
 @dataclass
 class CheckedEvents:
@@ -53,29 +41,24 @@ class CheckedEvents:
     counts: dict[str, dict[str, int]]
 
 
-Check = tuple[str, str, pl.Expr, str, str]  # flag column, checked column, value, reason, severity
-
-
 def _problems(
     df: pl.DataFrame, file: str, checks: list[Check], headers: dict[str, str] | None = None
 ) -> pl.DataFrame:
     headers = headers or {}
     frames = []
-    for flag, column, value, reason, severity in checks:
-        if df.height == 0 or not df[flag].any():
-            continue
-        hit = df.filter(pl.col(flag))
+    for c in checks:
+        hit = df.filter(c.mask.fill_null(False))
         if hit.height:
             frames.append(
                 hit.select(
                     pl.lit(file).alias("file"),
                     pl.col("row"),
                     pl.col("member_id"),
-                    pl.lit(column).alias("column"),
-                    pl.lit(headers.get(column, column)).alias("file_column"),
-                    value.cast(pl.String).alias("value"),
-                    pl.lit(reason).alias("reason"),
-                    pl.lit(severity).alias("severity"),
+                    pl.lit(c.column).alias("column"),
+                    pl.lit(headers.get(c.column, c.column)).alias("file_column"),
+                    (c.value if c.value is not None else pl.col(c.column)).cast(pl.String).alias("value"),
+                    (pl.lit(c.reason) if isinstance(c.reason, str) else c.reason).cast(pl.String).alias("reason"),
+                    pl.lit(c.severity).alias("severity"),
                 )
             )
     return pl.concat(frames, how="vertical") if frames else empty_exceptions()
@@ -126,43 +109,49 @@ def _basic_checks(
     s, e = start.isoformat(), end.isoformat()
     members = f" ({members_file})" if members_file else ""
     checks: list[Check] = [
-        ("_no_id", "member_id", pl.lit(""), f"{what} row has no {id_header}: not counted", "excluded"),
-        (
-            "_bad_date",
+        Check(
+            "member_id",
+            pl.col("_no_id"),
+            f"{what} row has no {id_header}: not counted",
+            "excluded",
+            value=pl.lit(""),
+        ),
+        Check(
             date_column,
-            pl.col("date_text").fill_null(""),
+            pl.col("_bad_date"),
             f"{date_header} is not a date (expected {expected}): not counted",
             "excluded",
+            value=pl.col("date_text").fill_null(""),
         ),
-        (
-            "_unknown",
+        Check(
             "member_id",
-            pl.col("member_id"),
+            pl.col("_unknown"),
             f"{what} for a member not in the start membership{members}: not counted",
             "excluded",
+            value=pl.col("member_id"),
         ),
-        (
-            "_excluded_member",
+        Check(
             "member_id",
-            pl.col("member_id"),
+            pl.col("_excluded_member"),
             f"{what} for a member who was excluded from the start membership{members}; see its "
             "exceptions: not counted",
             "excluded",
+            value=pl.col("member_id"),
         ),
-        (
-            "_before",
+        Check(
             date_column,
-            pl.col("date_text"),
+            pl.col("_before"),
             f"{what} on or before the period start {s}: the member should not be in the start "
             "membership; not counted",
             "excluded",
+            value=pl.col("date_text"),
         ),
-        (
-            "_after",
+        Check(
             date_column,
-            pl.col("date_text"),
+            pl.col("_after"),
             f"{what} after the period end {e} (period {s} to {e}): not counted",
             "excluded",
+            value=pl.col("date_text"),
         ),
     ]
     flags = flags.with_columns(
@@ -184,16 +173,16 @@ def _duplicates(ok: pl.DataFrame, what: str, date_column: str) -> tuple[pl.DataF
         pl.col("date").first().over("member_id").dt.to_string("%Y-%m-%d").alias("_kept_date"),
         (pl.int_range(pl.len()).over("member_id") > 0).alias("_dup"),
     )
-    check: Check = (
-        "_dup",
-        date_column,
-        pl.format(
+    check: Check = Check(
+                       date_column,
+                       pl.col("_dup"),
+                       f"second {what} record for the same member (the earliest is kept, the first row on a tie): "
+        "not counted",
+                       "excluded",
+                       value=pl.format(
             "{}; kept: row {} on {}", pl.col("date_text").fill_null(""), pl.col("_kept_row"), pl.col("_kept_date")
         ),
-        f"second {what} record for the same member (the earliest is kept, the first row on a tie): "
-        "not counted",
-        "excluded",
-    )
+                   )
     return ranked, [check]
 
 
@@ -277,45 +266,45 @@ def check_events(
     x_first = x_first.join(
         both.select("member_id", "_death", "_death_row"), on="member_id", how="left"
     ).with_columns((pl.col("_death") <= pl.col("date")).fill_null(False).alias("_after_death"))
-    after_exit: Check = (
-        "_after_exit",
-        "date_of_death",
-        pl.format(
+    after_exit: Check = Check(
+                            "date_of_death",
+                            pl.col("_after_exit"),
+                            "death after the member's exit: the member had left observation; not counted",
+                            "excluded",
+                            value=pl.format(
             "{}; exit on {} ({} row {})",
             pl.col("date_text"),
             pl.col("_exit").dt.to_string("%Y-%m-%d"),
             pl.lit(exits_file),
             pl.col("_exit_row"),
         ),
-        "death after the member's exit: the member had left observation; not counted",
-        "excluded",
-    )
-    after_death: Check = (
-        "_after_death",
-        "exit_date",
-        pl.format(
+                        )
+    after_death: Check = Check(
+                             "exit_date",
+                             pl.col("_after_death"),
+                             "exit on or after the member's death: the death ends observation; exit ignored",
+                             "excluded",
+                             value=pl.format(
             "{}; death on {} ({} row {})",
             pl.col("date_text"),
             pl.col("_death").dt.to_string("%Y-%m-%d"),
             pl.lit(deaths_file),
             pl.col("_death_row"),
         ),
-        "exit on or after the member's death: the death ends observation; exit ignored",
-        "excluded",
-    )
+                         )
     bad_pension = (
         pl.col("pension_text").is_not_null()
         & (pl.col("pension_text") != "")
         & (pl.col("pension_at_death").is_null() | (pl.col("pension_at_death") < 0))
     )
-    pension_warning: Check = (
-        "_bad_pension",
-        "pension_at_death",
-        pl.col("pension_text"),
-        f"{(deaths_headers or {}).get('pension_at_death', 'pension_at_death').strip()} is not a number "
+    pension_warning: Check = Check(
+                                 "pension_at_death",
+                                 pl.col("_bad_pension"),
+                                 f"{(deaths_headers or {}).get('pension_at_death', 'pension_at_death').strip()} is not a number "
         ">= 0: the record's pension is used",
-        "warning",
-    )
+                                 "warning",
+                                 value=pl.col("pension_text"),
+                             )
     d_counted = d_first.filter(~pl.col("_after_exit")).with_columns(bad_pension.alias("_bad_pension"))
     x_applied = x_first.filter(~pl.col("_after_death"))
 

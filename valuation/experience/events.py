@@ -1,8 +1,11 @@
 """Readers for the deaths file and the other-exits file of an experience analysis.
 
-Both files are read with every column as text, headers trimmed and matched case-insensitively, then the
-basis's column mapping (their header -> ours) applied. Rows are numbered as in the member data: the header
-is row 1, so the first data row is row 2. Dates are ISO ``YYYY-MM-DD`` or the basis's ``date_format``.
+Both files are read by the member files' reader (:func:`valuation.members.readers.read_text_frame`: CSV in
+any encoding and delimiter an :class:`~valuation.members.readers.InputFormat` names, XLSX, Parquet; every
+column as text), headers trimmed and matched case-insensitively, then the basis's column mapping (their
+header -> ours) applied. Rows are numbered as in the member data: the header is row 1, so the first data
+row is row 2. Dates go through the member files' date parser (:func:`valuation.members.parse.parse_date`):
+the basis's ``date_format``, then ISO ``YYYY-MM-DD``; a date outside 1850-2200 is not a date.
 """
 
 from __future__ import annotations
@@ -13,6 +16,8 @@ from typing import Literal
 import polars as pl
 
 from valuation.errors import DataError
+from valuation.members.parse import to_date
+from valuation.members.readers import DEFAULT_FORMAT, InputFormat, read_text_frame
 
 EventKind = Literal["deaths", "exits"]
 
@@ -28,56 +33,13 @@ OPTIONAL: dict[str, tuple[str, ...]] = {
 DATE_COLUMN: dict[str, str] = {"deaths": "date_of_death", "exits": "exit_date"}
 
 
-_KIND_NAMES = {".csv": "CSV", ".txt": "CSV", ".parquet": "Parquet", ".xlsx": "XLSX", ".xlsm": "XLSX"}
-
-
-def _is_utf8(path: Path) -> bool:
-    try:
-        path.read_bytes().decode("utf-8")
-    except (UnicodeDecodeError, OSError):
-        return False
-    return True
-
-
-def _read_text_frame(path: Path) -> pl.DataFrame:
-    suffix = path.suffix.lower()
-    try:
-        if suffix in (".csv", ".txt"):
-            return pl.read_csv(path, infer_schema=False)
-        if suffix == ".parquet":
-            df = pl.read_parquet(path)
-        elif suffix in (".xlsx", ".xlsm"):
-            df = pl.read_excel(path)
-        else:
-            raise DataError(
-                f"unknown file type '{suffix}'",
-                file=path,
-                fix="give a .csv, .xlsx or .parquet file",
-            )
-    except DataError:
-        raise
-    except Exception as exc:  # polars/fastexcel raise several types for unreadable files
-        if suffix in (".csv", ".txt") and not _is_utf8(path):
-            raise DataError(
-                "is not UTF-8 text", file=path,
-                fix="save it again as CSV UTF-8 (in a spreadsheet: Save As, CSV UTF-8)",
-            ) from exc
-        raise DataError(
-            f"cannot be read as a {_KIND_NAMES.get(suffix, suffix)} table",
-            file=path,
-            fix="open it in a spreadsheet and save it again as CSV (UTF-8), XLSX or Parquet, one row a record "
-            "under one header row",
-        ) from exc
-    return df.with_columns(pl.all().cast(pl.String))
+_KINDS = (".csv", ".txt", ".parquet", ".xlsx")
 
 
 def parse_dates(values: pl.Expr, date_format: str | None) -> pl.Expr:
-    """Text -> Date, accepting ISO ``YYYY-MM-DD`` and, where given, ``date_format``; null where neither fits."""
-    text = values.str.strip_chars()
-    iso = text.str.to_date("%Y-%m-%d", strict=False)
-    if date_format is None:
-        return iso
-    return iso.fill_null(text.str.to_date(date_format, strict=False))
+    """Text -> Date by the member files' date parser (:func:`valuation.members.parse.to_date`), after
+    trimming spaces: ``date_format`` where given, then ISO ``YYYY-MM-DD``; null where none fits."""
+    return to_date(values.str.strip_chars(), date_format)
 
 
 def read_events(
@@ -86,9 +48,10 @@ def read_events(
     *,
     date_format: str | None = None,
     column_map: dict[str, str] | None = None,
+    fmt: InputFormat = DEFAULT_FORMAT,
 ) -> pl.DataFrame:
     """Read a deaths or exits file into typed columns (see :func:`read_events_with_headers`)."""
-    return read_events_with_headers(path, kind, date_format=date_format, column_map=column_map)[0]
+    return read_events_with_headers(path, kind, date_format=date_format, column_map=column_map, fmt=fmt)[0]
 
 
 def read_events_with_headers(
@@ -97,6 +60,7 @@ def read_events_with_headers(
     *,
     date_format: str | None = None,
     column_map: dict[str, str] | None = None,
+    fmt: InputFormat = DEFAULT_FORMAT,
 ) -> tuple[pl.DataFrame, dict[str, str]]:
     """Read a deaths or exits file into typed columns, keeping the raw text of every checked value.
 
@@ -111,6 +75,9 @@ def read_events_with_headers(
         ``strftime`` pattern accepted besides ISO dates (the basis mapping's date format).
     column_map
         Their header -> our column name (the basis mapping's columns), compared case-insensitively.
+    fmt
+        The CSV delimiter and encoding, or the XLSX sheet, where they are not the usual ones (as for a
+        member file).
 
     Returns
     -------
@@ -123,7 +90,8 @@ def read_events_with_headers(
     Raises
     ------
     DataError
-        The file is missing, unreadable, of an unknown type, or lacks a required column.
+        The file is missing, unreadable (as :func:`~valuation.members.readers.read_text_frame` says why),
+        of an unknown type, or lacks a required column.
     """
     path = Path(path)
     if not path.is_file():
@@ -133,7 +101,10 @@ def read_events_with_headers(
             f"{kind} file is empty", file=path,
             fix=f"give a header row ({', '.join(REQUIRED[kind] + OPTIONAL[kind])}) and one row a record",
         )
-    df = _read_text_frame(path)
+    if path.suffix.lower() not in _KINDS:
+        raise DataError(f"unknown file type '{path.suffix.lower()}'", file=path,
+                        fix="give a .csv, .xlsx or .parquet file")
+    df = read_text_frame(path, fmt)
     lookup = {k.strip().lower(): v.strip().lower() for k, v in (column_map or {}).items()}
     renames: dict[str, str] = {}
     for col in df.columns:

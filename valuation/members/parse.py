@@ -46,25 +46,26 @@ def parse_code(col: str, table: dict[str, str]) -> pl.Expr:
     )
 
 
-def _date_tries(col: str, fmt: str | None) -> list[pl.Expr]:
-    tries = [pl.col(col).str.strptime(pl.Date, f, strict=False) for f in dict.fromkeys((fmt, "%Y-%m-%d")) if f]
-    tries.append(pl.col(col).str.strptime(pl.Datetime, "%Y-%m-%d %H:%M:%S", strict=False).dt.date())
+def _date_tries(text: pl.Expr, fmt: str | None) -> list[pl.Expr]:
+    tries = [text.str.strptime(pl.Date, f, strict=False) for f in dict.fromkeys((fmt, "%Y-%m-%d")) if f]
+    tries.append(text.str.strptime(pl.Datetime, "%Y-%m-%d %H:%M:%S", strict=False).dt.date())
     return tries
 
 
-def parse_date(col: str, fmt: str | None, *, typed: bool = False) -> pl.Expr:
-    """Parse a date column: the mapping's format ``fmt``, then ISO ``YYYY-MM-DD``, then ``YYYY-MM-DD
-    HH:MM:SS`` (the text of an Excel date cell), the first that fits. Anything else, or a date outside
-    1850-2200, gives null. This is the one date parser of every input file (member data, deaths, exits).
+def to_date(text: pl.Expr, fmt: str | None, *, typed: bool = False) -> pl.Expr:
+    """Parse dates: the mapping's format ``fmt``, then ISO ``YYYY-MM-DD``, then ``YYYY-MM-DD HH:MM:SS``
+    (the text of an Excel date cell), the first that fits. Anything else, or a date outside 1850-2200,
+    gives null. This is the one date parser of every input file (member data, deaths, exits).
 
-    ``typed`` says the column already holds dates (a Parquet date column): only the range applies.
+    ``typed`` says ``text`` already holds dates (a Parquet date column): only the range applies.
     """
-    if typed:
-        value = pl.col(col)
-    else:
-        tries = _date_tries(col, fmt)
-        value = pl.coalesce(tries)
-    return pl.when(value.is_between(pl.lit(EARLIEST), pl.lit(LATEST))).then(value).otherwise(None).alias(parsed(col))
+    value = text if typed else pl.coalesce(_date_tries(text, fmt))
+    return pl.when(value.is_between(pl.lit(EARLIEST), pl.lit(LATEST))).then(value).otherwise(None)
+
+
+def parse_date(col: str, fmt: str | None, *, typed: bool = False) -> pl.Expr:
+    """The parsed twin of date column ``col`` (:func:`to_date`)."""
+    return to_date(pl.col(col), fmt, typed=typed).alias(parsed(col))
 
 
 def parse_number(col: str) -> pl.Expr:

@@ -294,9 +294,9 @@ def _norm(header: str) -> str:
 
 def _parquet_unreadable(p: Path) -> DataError:
     return DataError(
-        "cannot be read as a Parquet file of member records (it may be damaged, not Parquet, or hold "
+        "cannot be read as a Parquet file of records (it may be damaged, not Parquet, or hold "
         "columns that are not plain values)", file=p,
-        fix="write the member data again as Parquet with one plain column a field, or save it as CSV UTF-8",
+        fix="write the data again as Parquet with one plain column a field, or save it as CSV UTF-8",
     )
 
 
