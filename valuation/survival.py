@@ -54,7 +54,21 @@ def _anniversary(
     return months.astype("datetime64[D]") + (day - 1).astype("timedelta64[D]")
 
 
-def exact_age(dob: ArrayLike, at: date | np.datetime64) -> NDArray[np.float64]:
+def birthday(dob: ArrayLike, years: ArrayLike) -> NDArray[np.datetime64]:
+    """The date on which lives born on ``dob`` attain age ``years`` (whole years): the birthday in the
+    year ``birth year + years``, a 29 February birthday falling on 1 March in a common year.
+
+    References
+    ----------
+    Common practice (the 29 February rule is the tool's own stated rule, as in :func:`exact_age`).
+    """
+    d = np.asarray(dob, dtype="datetime64[D]")
+    birth_month = d.astype("datetime64[M]")
+    day = (d - birth_month.astype("datetime64[D]")).astype(np.int64) + 1
+    return _anniversary(birth_month.astype(np.int64), day, np.asarray(years, dtype=np.int64))
+
+
+def exact_age(dob: ArrayLike, at: date | np.datetime64 | ArrayLike) -> NDArray[np.float64]:
     """Exact age [years] at the date ``at`` of lives born on ``dob``.
 
     Exact age = completed years + (days since the last birthday) / (days from the last birthday to the
@@ -67,8 +81,8 @@ def exact_age(dob: ArrayLike, at: date | np.datetime64) -> NDArray[np.float64]:
     ----------
     dob : array_like of datetime64[D] (or ISO date strings / ``datetime.date``)
         Dates of birth.
-    at : date or numpy.datetime64
-        The valuation date.
+    at : date, numpy.datetime64, or array_like of datetime64[D]
+        The valuation date, or one date a life (the shape of ``dob``).
 
     Returns
     -------
@@ -80,7 +94,7 @@ def exact_age(dob: ArrayLike, at: date | np.datetime64) -> NDArray[np.float64]:
     Common practice (the day-count rule for a fraction of a birthday-year is the tool's own stated rule).
     """
     d = np.asarray(dob, dtype="datetime64[D]")
-    a = np.datetime64(at, "D")  # type: ignore[call-overload]  # numpy stubs omit a datetime64 input with a unit
+    a = np.asarray(at, dtype="datetime64[D]")
     missing = np.isnat(d)
     d_ok = np.where(missing, a, d)
     birth_month = d_ok.astype("datetime64[M]")
@@ -99,7 +113,7 @@ def exact_age(dob: ArrayLike, at: date | np.datetime64) -> NDArray[np.float64]:
 
 
 def age_at(
-    dob: ArrayLike, at: date | np.datetime64, convention: AgeConvention = "exact"
+    dob: ArrayLike, at: date | np.datetime64 | ArrayLike, convention: AgeConvention = "exact"
 ) -> NDArray[np.float64]:
     """Age [years] at ``at`` under an age convention.
 
@@ -111,8 +125,8 @@ def age_at(
     ----------
     dob : array_like of datetime64[D]
         Dates of birth.
-    at : date or numpy.datetime64
-        The valuation date.
+    at : date, numpy.datetime64, or array_like of datetime64[D]
+        The valuation date, or one date a life.
     convention : {"exact", "last_birthday", "nearest_birthday"}
         The age convention.
 

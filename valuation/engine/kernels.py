@@ -168,7 +168,6 @@ def _reversion_with_deaths_before_start(
         ysurv = py * inv_freq
         post = ysurv * (f - f_before) if tau >= s_k else 0.0
         disc = v[tau]
-        flow = 0.0
         for j in range(J):
             inc = increase[j, tau]
             paid = ysurv * inc * (old[j] + new[j])
@@ -178,8 +177,7 @@ def _reversion_with_deaths_before_start(
                     amount *= first_adj[j, s_k]
                 paid += post * amount
             acc[j] += paid * disc
-            flow += paid * weights[k, j]
-        cashflow[b, tau] += flow
+            cashflow[b, j, tau] += paid * weights[k, j]
 
 
 @njit(cache=True, parallel=True)
@@ -216,7 +214,8 @@ def leg_kernel(
     unit_pv: np.ndarray,
     cashflow: np.ndarray,
 ) -> None:
-    """Fill ``unit_pv`` (K, J) and the weighted expected payments ``cashflow`` (B, M), one row a block.
+    """Fill ``unit_pv`` (K, J) and the weighted expected payments ``cashflow`` (B, J, M), one row a block
+    and tranche.
 
     Own leg: payment at month tau on survival l(x0 + tau/12) / l(x0), certain before ``guar``.
     Reversion: on tp_y (1 - tp_x) from ``guar`` on [DHW section 9.5]. Amount per unit of base:
@@ -306,15 +305,13 @@ def leg_kernel(
                 surv *= inv_freq
                 disc = v[tau]
                 adj_on = use_adj and tau >= tf_s
-                flow = 0.0
                 for j in range(J):
                     amount = coef[j] * increase[j, tau]
                     if adj_on:
                         amount *= first_adj[j, s_k]
                     paid = surv * amount
                     acc[j] += paid * disc
-                    flow += paid * weights[k, j]
-                cashflow[b, tau] += flow
+                    cashflow[b, j, tau] += paid * weights[k, j]
             for j in range(J):
                 unit_pv[k, j] = acc[j]
 

@@ -79,6 +79,8 @@ class LegResult:
 
     unit_pv: NDArray[np.float64]
     cashflow: NDArray[np.float64]
+    #: the same payments by tranche, (J, M) (the compiled kernel's result; None from the array version)
+    cashflow_by_tranche: NDArray[np.float64] | None = None
 
 
 def _l(mrows: MortalityRows, rows: NDArray[np.int64], ages: NDArray[np.float64], fractional: str) -> NDArray:
@@ -312,7 +314,7 @@ def value_leg(
     unit_pv = np.zeros((K, J))
     cashflow = np.zeros(M)
     if K == 0:
-        return LegResult(unit_pv, cashflow)
+        return LegResult(unit_pv, cashflow, np.zeros((J, M)))
     reversion = kind == "reversion"
     guar = np.zeros(K, dtype=np.int64) if guarantee is None else guarantee.astype(np.int64)
     first, end = payment_window(ctx, kind, x0, start, stop, y0)
@@ -325,7 +327,7 @@ def value_leg(
     left = exits.left if exits is not None else dummy
     grow_left = exits.growth_left if exits is not None else dummy
     svc = service if service is not None else np.zeros(1)
-    blocks = np.zeros((max(1, min(K // 256, 16)), M))
+    blocks = np.zeros((max(1, min(K // 256, 16)), J, M))
     f64 = np.float64
     leg_kernel(
         mrows.lx, mrows.q_rows, ctx.fractional == "udd", reversion, int(ctx.frequency), int(ctx.step),
@@ -340,7 +342,8 @@ def value_leg(
         np.ascontiguousarray(svc, dtype=f64), service is not None,
         ctx.v, np.ascontiguousarray(weights, dtype=f64), unit_pv, blocks,
     )
-    return LegResult(unit_pv, blocks.sum(axis=0))
+    by_tranche = blocks.sum(axis=0)
+    return LegResult(unit_pv, by_tranche.sum(axis=0), by_tranche)
 
 
 def dedupe(*columns: NDArray) -> tuple[NDArray[np.int64], NDArray[np.int64]]:

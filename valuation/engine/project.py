@@ -57,6 +57,10 @@ class Projection:
     amount_now: NDArray[np.float64]  # (N,) pension in payment or accrued today [currency p.a.]
     cashflow: NDArray[np.float64]  # (S, M) expected nominal payments by status and month
     tranches: list[str]
+    #: expected payments by tranche and month, per unit of the increase index, of the rules whose every
+    #: payment is the amount now times the index (pensions in payment; see ``Valuer.indexed_value``)
+    indexed: NDArray[np.float64] | None = None
+    indexed_rules: tuple[BenefitRule, ...] = ()
 
     def benefit_values(self) -> Iterator[tuple[Benefit, NDArray[np.float64]]]:
         """Each benefit's PV per member (pensions summed over tranches), in reporting order."""
@@ -92,6 +96,8 @@ class Projection:
             amount_now=np.concatenate([p.amount_now for p in parts]),
             cashflow=sum((p.cashflow for p in parts), np.zeros_like(parts[0].cashflow)),
             tranches=parts[0].tranches,
+            indexed=_sum_optional([p.indexed for p in parts]),
+            indexed_rules=parts[0].indexed_rules,
         )
 
 
@@ -101,6 +107,17 @@ class Prepared:
 
     n: int
     parts: list[tuple[BenefitRule, NDArray[np.int64], Members]]
+
+
+def _indexed_from_now(leg: Leg) -> bool:
+    """Whether every payment of the leg is its amount now times the increase index at the payment."""
+    return (leg.first_increase is None and leg.growth is None and leg.exits is None and leg.service is None
+            and not leg.start.any() and bool(np.all(leg.at_start == 1.0)))
+
+
+def _sum_optional(arrays: list[NDArray[np.float64] | None]) -> NDArray[np.float64] | None:
+    present = [a for a in arrays if a is not None]
+    return sum(present[1:], present[0].copy()) if present else None
 
 
 #: Columns a caller may add so that ages are computed once for every scenario (see :func:`with_ages`).
@@ -198,10 +215,15 @@ class Valuer:
         q_next = np.zeros(n)
         amount_now = np.zeros(n)
         cash = np.zeros((len(STATUSES), self.ctx.months))
+        indexed = np.zeros((J, self.ctx.months))
+        indexed_rules: list[BenefitRule] = []
         for rule, sel, members in prepared.parts:
             if rules is not None and rule not in rules:
                 continue
             part = self._value_rule(rule, members)
+            if part.indexed is not None:
+                indexed += part.indexed
+                indexed_rules.append(rule)
             for b, v in part.pensions.items():
                 pensions[b][sel] = v
             for b, lump in part.lumps.items():
@@ -209,7 +231,23 @@ class Valuer:
             earned[sel], next_year[sel] = part.earned_with_pension, part.lump_next_year
             factor[sel], q_next[sel], amount_now[sel] = part.annuity_factor, part.q_next, part.amount_now
             cash[STATUSES.index(rule.status)] += part.cashflow[0]
-        return Projection(pensions, lumps, earned, next_year, factor, q_next, amount_now, cash, self.tranches)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            per_unit = np.where(self.increase > 0, indexed / self.increase, 0.0)
+        return Projection(pensions, lumps, earned, next_year, factor, q_next, amount_now, cash, self.tranches,
+                          per_unit, tuple(indexed_rules))
+
+    def indexed_value(self, base: Projection) -> float:
+        """Present value under this valuer's scenario of the payments ``base.indexed`` describes: exact
+        for a scenario that keeps mortality and changes only the curves, since those payments are the
+        base's expected payments per unit of the increase index, times this scenario's index, discounted.
+
+        References
+        ----------
+        PV = sum_t v^t CF_t [DHW 2013, section 2.2], CF_t the expected payment in month t.
+        """
+        if base.indexed is None:
+            return 0.0
+        return float(((base.indexed * self.increase).sum(axis=0) * self.ctx.v).sum())
 
     def _members(self, rule: BenefitRule, df: pl.DataFrame) -> Members:
         """One rule's records as arrays: sex, date of birth, age now and survival row (l now left empty)."""
@@ -241,22 +279,30 @@ class Valuer:
                 next_year += lump.next_year
         pensions: dict[Benefit, NDArray[np.float64]] = {}
         own = np.zeros(N)
-        for i, leg in enumerate(rule.legs(bc, m, terms)):
-            values, flows = self.value_leg(leg, m.once(f"leg {i} keys", partial(dedupe, *leg.key_columns())))
+        legs = rule.legs(bc, m, terms)
+        # payments that are the amount now times the increase index (no lump sums, nothing deferred)
+        indexed: NDArray[np.float64] | None = np.zeros((J, self.ctx.months)) if not lumps and all(
+            m.once(f"leg {i} indexed", partial(_indexed_from_now, leg)) for i, leg in enumerate(legs)) else None
+        for i, leg in enumerate(legs):
+            values, flows, by_tranche = self.value_leg(
+                leg, m.once(f"leg {i} keys", partial(dedupe, *leg.key_columns())))
             pensions[leg.benefit] = pensions.get(leg.benefit, np.zeros((N, J))) + values
             cash += flows
+            if indexed is not None:
+                indexed += by_tranche
             if leg.kind == "own":
                 own += values.sum(axis=1)
         at_start_total = (terms.base * terms.at_start).sum(axis=1)
         factor = np.divide(own, at_start_total, out=np.zeros(N), where=at_start_total > 0)
         return Projection(pensions, lumps, earned, next_year, factor, q_next, terms.base.sum(axis=1), cash[None, :],
-                          self.tranches)
+                          self.tranches, indexed)
 
     def value_leg(
         self, leg: Leg, keys: tuple[NDArray[np.int64], NDArray[np.int64]] | None = None,
-    ) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
-        """Per-member PV (N, J) of a leg and its expected payments on the monthly grid (M,), valued on keys
-        (``keys``: each key's first member and each member's key, from :func:`legs.dedupe`)."""
+    ) -> tuple[NDArray[np.float64], NDArray[np.float64], NDArray[np.float64]]:
+        """Per-member PV (N, J) of a leg and its expected payments on the monthly grid, in all (M,) and by
+        tranche (J, M), valued on keys (``keys``: each key's first member and each member's key, from
+        :func:`legs.dedupe`)."""
         first, inv = keys if keys is not None else dedupe(*leg.key_columns())
 
         def at(a: NDArray | None) -> NDArray | None:
@@ -270,4 +316,5 @@ class Valuer:
             service=at(leg.service), stop=at(leg.stop), guarantee=at(leg.guarantee), rows_y=at(leg.rows_y),
             y0=at(leg.y0),
         )
-        return leg.amount * res.unit_pv[inv], res.cashflow
+        by_tranche = res.cashflow_by_tranche if res.cashflow_by_tranche is not None else res.cashflow[None, :]
+        return leg.amount * res.unit_pv[inv], res.cashflow, by_tranche

@@ -29,7 +29,7 @@ from valuation.discounting import (
     present_value,
     single_equivalent_rate,
 )
-from valuation.engine.benefits import SALARY_RULES, liability_column, salary_dependent
+from valuation.engine.benefits import RULES, SALARY_RULES, liability_column, salary_dependent
 from valuation.engine.project import AGE_COLUMN, Projection, Valuer, with_ages
 from valuation.engine.results import ValuationResult
 from valuation.engine.scenario import (
@@ -290,6 +290,13 @@ class RunAccumulator:
                 part = (self.valuers[sc.name].value(prepared, SALARY_RULES).liability[active].sum()
                         if active.any() else 0.0)
                 self.scenario_totals[sc.name] += float(liability[~active].sum() + part)
+            elif not sc.changes_mortality:
+                # the same survival: pensions in payment follow from the base's expected payments per unit
+                # of the increase index; the other members are valued again
+                valuer = self.valuers[sc.name]
+                others = [r for r in RULES if r not in proj.indexed_rules]
+                self.scenario_totals[sc.name] += float(valuer.value(prepared, others).liability.sum()
+                                                       + valuer.indexed_value(proj))
             else:
                 self.scenario_totals[sc.name] += float(self.valuers[sc.name].value(prepared).liability.sum())
             self._step(f"sensitivity: {sc.name}")

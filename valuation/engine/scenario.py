@@ -41,6 +41,12 @@ class Scenario:
     def multiplier(self, sex: str) -> float:
         return dict(self.q_multiplier).get(sex, 1.0)
 
+    @property
+    def changes_mortality(self) -> bool:
+        """Whether the scenario changes any mortality rate (then every survival probability is worked out
+        again; otherwise the base's survival holds)."""
+        return bool(self.q_multiplier) or bool(self.long_term_improvement_shift)
+
 
 #: The base scenario: the basis as it stands.
 BASE = Scenario()
