@@ -24,6 +24,9 @@ from typing import cast
 import numpy as np
 from numpy.typing import NDArray
 
+from valuation.survival import age_at
+from valuation.survival import birthday as survival_birthday
+
 #: Days in a year for the exposure day count [days].
 DAYS_PER_YEAR: float = 365.25
 
@@ -55,22 +58,19 @@ def make_dates(year: Ints, month: Ints, day: Ints) -> Dates:
 
 
 def age_last_birthday(dob: object, on: object) -> Ints:
-    """Integer age last birthday [years] on the given dates (29 February birthdays attained on 1 March).
+    """Integer age last birthday [years] on the given dates (29 February birthdays attained on 1 March):
+    the engine's age calendar, :func:`valuation.survival.age_at` with ``"last_birthday"``.
 
     References
     ----------
     Common practice (age last birthday as the rate interval's age label); [BP] chapter on exposed to risk.
     """
-    by, bm, bd = ymd(dob)
-    oy, om, od = ymd(on)
-    before = (om < bm) | ((om == bm) & (od < bd))
-    return oy - by - before.astype(np.int64)
+    return age_at(_as_days(dob), _as_days(on), "last_birthday").astype(np.int64)
 
 
 def birthday(dob: object, age: Ints) -> Dates:
-    """Date on which a life born on ``dob`` attains integer ``age`` [years]."""
-    by, bm, bd = ymd(dob)
-    return make_dates(by + np.asarray(age, dtype=np.int64), bm, bd)
+    """Date on which a life born on ``dob`` attains integer ``age`` [years] (:func:`valuation.survival.birthday`)."""
+    return survival_birthday(_as_days(dob), age)
 
 
 def _ranges(lo: Ints, hi: Ints) -> tuple[Ints, Ints]:
