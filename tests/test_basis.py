@@ -222,7 +222,7 @@ def test_values_are_shown_as_written_in_toml(tmp_path: Path, line: str, expected
 
 def test_validator_messages_do_not_repeat_the_value(tmp_path: Path) -> None:
     msg = error_of(tmp_path, MINIMAL + '[mapping]\ndate_format = "%d-%m"\n')
-    assert msg.count("%d-%m") == 1 and 'needs day (%d), month (%m) and year (%Y or %y) directives' in msg
+    assert msg.count("%d-%m") == 1 and 'needs day (%d), month (%m) and four-digit year (%Y) directives' in msg
     msg = error_of(tmp_path, MINIMAL + '[benefits]\naccrual_rate = "1/0"\n')
     assert "key 'benefits.accrual_rate': not a number or a fraction like \"1/60\" (got \"1/0\")" in msg
     assert "expected 'udd' or 'constant_force'" in error_of(tmp_path, MINIMAL + '[conventions]\nfractional_age = "UDD"\n')
@@ -292,3 +292,22 @@ def test_toml_syntax_errors_in_words(tmp_path: Path, text: str, line: int, expec
     msg = error_of(tmp_path, text)
     assert f"not valid TOML at line {line}, column " in msg and expected in msg
     assert "('" not in msg and "\\n" not in msg  # no Python tuple or string reprs
+
+
+@pytest.mark.parametrize(
+    ("change", "words"),
+    [
+        ("[discount]\nrate = false", ["discount.rate", "false"]),
+        ("[payment]\nfrequency = true", ["payment.frequency", "expected 1, 2, 4 or 12", "true"]),
+        ("[[sensitivities]]\nname = \"x\"\nkind = \"discount_rate\"\nshift = nan", ["sensitivities[0].shift"]),
+        ("[[sensitivities]]\nname = \"x\"\nkind = \"life_expectancy\"\nshift = 1000.0", ["outside -10 to 10 years"]),
+        ("[mapping]\ndate_format = \"%d/%m/%y\"", ["mapping.date_format", "four-digit year"]),
+    ],
+)
+def test_values_that_would_change_numbers_silently_are_refused(tmp_path: Path, change: str, words: list[str]) -> None:
+    """TOML (v1.0.0) booleans are not numbers, nan/inf are not rates, a two-digit year is ambiguous, and a
+    sensitivity's shift must describe a sensitivity (common practice): each is a message, never a value."""
+    text = MINIMAL.replace("[discount]\nrate = 0.05\n", "") if "[discount]" in change else MINIMAL
+    msg = error_of(tmp_path, text + "\n" + change + "\n")
+    for w in words:
+        assert w in msg, msg

@@ -2,13 +2,13 @@
 
 from __future__ import annotations
 
-from pydantic import BaseModel, Field, ValidationInfo, field_validator
+from pydantic import Field, ValidationInfo, field_validator
 
-from valuation.basis.rules import STRICT
+from valuation.basis.rules import STRICT, BasisModel
 from valuation.vocabulary import SEXES, STATUSES
 
 
-class ColumnMapping(BaseModel):
+class ColumnMapping(BasisModel):
     """Renames and recodes applied to a member file before validation.
 
     Attributes
@@ -46,6 +46,7 @@ class ColumnMapping(BaseModel):
     def _format(cls, v: str | None) -> str | None:
         if v is None:
             return v
-        if "%d" not in v or "%m" not in v or ("%Y" not in v and "%y" not in v):
-            raise ValueError("needs day (%d), month (%m) and year (%Y or %y) directives, e.g. \"%d/%m/%Y\"")
+        if "%d" not in v or "%m" not in v or "%Y" not in v:
+            raise ValueError("needs day (%d), month (%m) and four-digit year (%Y) directives, e.g. \"%d/%m/%Y\" "
+                             "(two-digit years, %y, would put a 1925 birth in 2025)")
         return v

@@ -24,7 +24,7 @@ from fractions import Fraction
 from pathlib import Path
 from typing import Any, Literal
 
-from pydantic import BaseModel, ConfigDict, Field, PrivateAttr, field_validator, model_validator
+from pydantic import ConfigDict, Field, PrivateAttr, field_validator, model_validator
 
 from valuation.basis.curves import build_curve
 from valuation.basis.mapping import ColumnMapping
@@ -35,6 +35,7 @@ from valuation.basis.mortality_entries import (
 )
 from valuation.basis.rules import (
     STRICT,
+    BasisModel,
     CommutationAssumption,
     PaymentAssumption,
     RateSpec,
@@ -50,14 +51,14 @@ _TRANCHE_NAME = re.compile(r"^[a-z][a-z0-9_]*$")
 _CURRENCY = re.compile(r"[A-Z]{3}")
 
 
-class SalaryAssumption(BaseModel):
+class SalaryAssumption(BasisModel):
     """Salary growth [per annum, effective], used to project actives' salaries (projected unit credit)."""
 
     model_config = STRICT
     growth: float = Field(default=0.0, gt=-0.5, lt=0.5)
 
 
-class BenefitDesign(BaseModel):
+class BenefitDesign(BasisModel):
     """The scheme's benefit design.
 
     ``accrual_rate`` is the pension earned per year of service as a fraction of salary, written as a number
@@ -84,7 +85,7 @@ class BenefitDesign(BaseModel):
         return v
 
 
-class Conventions(BaseModel):
+class Conventions(BasisModel):
     """Calculation conventions: survival between integer ages and how ages are counted."""
 
     model_config = STRICT
@@ -92,7 +93,7 @@ class Conventions(BaseModel):
     age_convention: Literal["exact", "last_birthday", "nearest_birthday"] = "exact"
 
 
-class WithdrawalSpec(BaseModel):
+class WithdrawalSpec(BasisModel):
     """Withdrawal (leaving service before retirement) as steps: ``rates = [[from_age, rate], ...]`` with
     ages [years] increasing and rates [per annum] in [0, 1]."""
 
@@ -111,14 +112,14 @@ class WithdrawalSpec(BaseModel):
         return v
 
 
-class Basis(BaseModel):
+class Basis(BasisModel):
     """A validated assumptions basis (see the module docstring for the TOML layout).
 
     Build it with :func:`valuation.basis.load_basis`. Curves and mortality bases are built once and cached
     (keyed on the entries they come from, so ``model_copy(update=...)`` variants stay correct).
     """
 
-    model_config = ConfigDict(extra="forbid", frozen=True, arbitrary_types_allowed=True)
+    model_config = ConfigDict(extra="forbid", frozen=True, arbitrary_types_allowed=True, allow_inf_nan=False)
 
     source_path: Path
     name: str = Field(min_length=1)

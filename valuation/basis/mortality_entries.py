@@ -14,9 +14,9 @@ from pathlib import Path
 from typing import Annotated, Literal
 
 import numpy as np
-from pydantic import BaseModel, Field, model_validator
+from pydantic import Field, model_validator
 
-from valuation.basis.rules import STRICT
+from valuation.basis.rules import STRICT, BasisModel
 from valuation.vocabulary import EntryGroup, Sex
 
 #: Fallback chain of each member group (first entry found wins).
@@ -29,14 +29,14 @@ FALLBACK: dict[str, tuple[str, ...]] = {
 }
 
 
-class NoImprovementSpec(BaseModel):
+class NoImprovementSpec(BasisModel):
     """No improvement after the table's base year (a static table)."""
 
     model_config = STRICT
     kind: Literal["none"]
 
 
-class ConstantImprovementSpec(BaseModel):
+class ConstantImprovementSpec(BasisModel):
     """The same improvement ``rate`` [per annum] at every age and year."""
 
     model_config = STRICT
@@ -58,7 +58,7 @@ def interpolate_knots(ages: list[int], rates: list[float]) -> tuple[list[int], l
     return full.tolist(), np.interp(full, ages, rates).tolist()
 
 
-class ByAgeImprovementSpec(BaseModel):
+class ByAgeImprovementSpec(BasisModel):
     """Improvement rates [per annum] at knot ``ages``, linear between knots, the same in every year."""
 
     model_config = STRICT
@@ -74,7 +74,7 @@ class ByAgeImprovementSpec(BaseModel):
         return self
 
 
-class TableImprovementSpec(BaseModel):
+class TableImprovementSpec(BasisModel):
     """Improvement rates in a file, relative to the TOML file.
 
     A CSV / XLSX file holds a two-dimensional table (ages in rows, calendar years as column headers). An
@@ -91,7 +91,7 @@ class TableImprovementSpec(BaseModel):
     long_term_rate: float = Field(default=0.0, ge=-0.1, le=0.1)
 
 
-class ConvergenceImprovementSpec(BaseModel):
+class ConvergenceImprovementSpec(BasisModel):
     """Initial improvement rates by age moving to a ``long_term_rate`` over ``convergence_years``.
 
     ``initial_ages`` are knot ages: initial rates are linear between them. ``shape``: ``"linear"`` or
@@ -128,7 +128,7 @@ ImprovementSpec = Annotated[
 ]
 
 
-class MortalityEntry(BaseModel):
+class MortalityEntry(BasisModel):
     """One mortality assumption: ``percentage`` x table rates at age + ``age_rating``, improved.
 
     ``table`` is a bundled name (``SULT``, ``DEMO_M``, ``DEMO_F``) or a file path relative to the TOML file

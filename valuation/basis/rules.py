@@ -7,18 +7,56 @@ reported instead of silently ignored. Rates are annual effective decimals (0.05 
 from __future__ import annotations
 
 import calendar
-from typing import Literal
+from typing import Any, Literal, get_args
 
 from pydantic import BaseModel, ConfigDict, Field, field_validator, model_validator
 
 from valuation.vocabulary import SEXES, SensitivityKind, Sex
 
-STRICT = ConfigDict(extra="forbid", frozen=True)
+#: Every basis model: unknown keys refused, frozen, no NaN or infinity, and no true/false where a number
+#: belongs (TOML's booleans are not numbers).
+STRICT = ConfigDict(extra="forbid", frozen=True, allow_inf_nan=False)
+
+
+def _numeric(annotation: Any) -> bool:
+    """True for a number field (float, int, their optional forms, or a Literal of numbers)."""
+    if annotation in (float, int):
+        return True
+    args = get_args(annotation)
+    return bool(args) and bool not in args and any(
+        a in (float, int) or (isinstance(a, (int, float)) and not isinstance(a, bool)) for a in args)
+
+
+class BasisModel(BaseModel):
+    """Base of every basis model: TOML's ``true``/``false`` is refused where a number or a text belongs
+    (pydantic would read ``rate = false`` as a rate of 0)."""
+
+    @model_validator(mode="before")
+    @classmethod
+    def _no_boolean_for_other_types(cls, data: Any) -> Any:
+        """A boolean given for a number is handed on as its TOML text, so that the key's own check refuses it
+        (``got true``) at the key's place; pydantic alone would read ``true`` as 1."""
+        if not isinstance(data, dict):
+            return data
+        out = dict(data)
+        for name, field in cls.model_fields.items():
+            key = field.alias or name
+            value = out.get(key)
+            if isinstance(value, bool) and _numeric(field.annotation):
+                out[key] = str(value).lower()
+        return out
+        for name, field in cls.model_fields.items():
+            key = field.alias or name
+            value = data.get(key)
+            if isinstance(value, bool) and field.annotation is not bool and bool not in get_args(field.annotation):
+                raise ValueError(f"key '{key}': got {str(value).lower()}, which is not a value of this key "
+                                 "(a number or a text)")
+        return data
 
 IndexKind = Literal["none", "fixed", "inflation"]
 
 
-class _IndexRule(BaseModel):
+class _IndexRule(BasisModel):
     """Shared shape of pension increases and deferred revaluation.
 
     ``kind = "none"``: no indexation; ``"fixed"``: ``rate`` [per annum]; ``"inflation"``: the basis's price
@@ -52,7 +90,7 @@ class RevaluationRule(_IndexRule):
     whole deferment (common practice)."""
 
 
-class TrancheRule(BaseModel):
+class TrancheRule(BasisModel):
     """The indexation of one slice (tranche) of pension, e.g. benefits earned before a given date."""
 
     model_config = STRICT
@@ -65,7 +103,7 @@ def _no_spouse() -> dict[Sex, float]:
     return {"M": 0.0, "F": 0.0}
 
 
-class SpouseAssumption(BaseModel):
+class SpouseAssumption(BasisModel):
     """Spouse's (partner's) pension on the member's death.
 
     ``proportion_married`` by member sex [fraction]; ``age_difference``: the male partner is older by this
@@ -98,7 +136,7 @@ class SpouseAssumption(BaseModel):
         return v
 
 
-class PaymentAssumption(BaseModel):
+class PaymentAssumption(BasisModel):
     """How pensions are paid and increased.
 
     ``frequency`` payments a year, in ``advance`` or in ``arrears``. ``increase_date``: the scheme's annual
@@ -138,7 +176,7 @@ class PaymentAssumption(BaseModel):
         return int(month), int(day)
 
 
-class CommutationAssumption(BaseModel):
+class CommutationAssumption(BasisModel):
     """Cash taken at retirement: ``proportion`` of pension given up [fraction], ``factor`` cash per 1 p.a.
     of pension given up [currency per currency p.a.]."""
 
@@ -153,7 +191,7 @@ class CommutationAssumption(BaseModel):
         return self
 
 
-class Sensitivity(BaseModel):
+class Sensitivity(BasisModel):
     """One sensitivity (IAS 19 para 145): ``shift`` is absolute for rates (0.005 = +0.5 % p.a.) and in
     years of life expectancy at 65 for ``life_expectancy``."""
 
@@ -162,8 +200,22 @@ class Sensitivity(BaseModel):
     kind: SensitivityKind
     shift: float
 
+    @model_validator(mode="after")
+    def _plausible_shift(self) -> Sensitivity:
+        limit = SHIFT_LIMITS[self.kind]
+        if not -limit <= self.shift <= limit:
+            unit = "years" if self.kind == "life_expectancy" else "(a rate: 0.005 = 0.5 % a year)"
+            raise ValueError(f"shift {self.shift:g} for a {self.kind} sensitivity is outside -{limit:g} to {limit:g} "
+                             f"{unit}")
+        return self
 
-class Thresholds(BaseModel):
+
+#: Largest shift of each sensitivity kind that still describes a sensitivity, not another basis.
+SHIFT_LIMITS: dict[str, float] = {"discount_rate": 0.05, "inflation": 0.05, "salary_growth": 0.05,
+                                  "long_term_improvement": 0.05, "life_expectancy": 10.0}
+
+
+class Thresholds(BasisModel):
     """Plausibility limits for member data (common practice in valuation data audits; the defaults are
     our choice, stated in the README).
 
@@ -204,7 +256,7 @@ class Thresholds(BaseModel):
         return self
 
 
-class RateSpec(BaseModel):
+class RateSpec(BasisModel):
     """A flat ``rate`` [per annum, effective] or a spot ``curve`` file (CSV: term, rate), exactly one.
 
     ``extrapolation`` applies beyond the curve's last term.
