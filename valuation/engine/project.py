@@ -146,7 +146,13 @@ def _days(d: Any) -> NDArray[np.datetime64]:
 class Valuer:
     """Builds the context for one scenario and values frames of member records under it."""
 
-    def __init__(self, basis: Any, scenario: Scenario = BASE, base_multiplier: float = 1.0) -> None:
+    def __init__(
+        self, basis: Any, scenario: Scenario = BASE, base_multiplier: float = 1.0, *,
+        survival_of: Valuer | None = None,
+    ) -> None:
+        """``survival_of``: a valuer on the same basis whose survival this scenario keeps (it changes no
+        mortality): its survival rows are reused, and what depends on them alone is worked out once a
+        chunk for both."""
         self.basis = basis
         self.scenario = scenario
         vd: date = basis.valuation_date
@@ -179,13 +185,18 @@ class Valuer:
         )
         # survival rows: every (group, sex) over every cohort alive
         self.mort_ids = {(g, s): i for i, (g, s) in enumerate((g, s) for g in GROUPS for s in SEXES)}
-        bases = [mortality_for(basis, g, s, scenario, base_multiplier) for (g, s) in self.mort_ids]
-        rng = (self.year - MAX_AGE - 2, self.year + 1)
-        self.mrows = MortalityRows.build(bases, [rng] * len(bases))
+        self.mrows: MortalityRows
+        if survival_of is not None and not scenario.changes_mortality:
+            self.mrows = survival_of.mrows
+        else:
+            bases = [mortality_for(basis, g, s, scenario, base_multiplier) for (g, s) in self.mort_ids]
+            rng = (self.year - MAX_AGE - 2, self.year + 1)
+            self.mrows = MortalityRows.build(bases, [rng] * len(bases))
         self.bc = BenefitContext(
             basis=basis, ctx=self.ctx, mrows=self.mrows, tranches=self.tranches,
             valuation_date=self.valuation_date, year=self.year, increase=self.increase,
             first_increase=self.first_increase, revalue=self.revalue, mort_ids=self.mort_ids,
+            survival_key=f"survival {id(self.mrows)}",
         )
 
     # ------------------------------------------------------------------ main
@@ -262,9 +273,12 @@ class Valuer:
 
     def _value_rule(self, rule: BenefitRule, shared: Members) -> Projection:
         bc = self.bc
-        m = dataclasses.replace(shared, lx0=bc.l(shared.rows_x, shared.x0))  # the cache stays shared
+        key = bc.survival_key
+        lx0 = shared.once(f"{key} lx0", lambda: bc.l(shared.rows_x, shared.x0))
+        m = dataclasses.replace(shared, lx0=lx0)  # the cache stays shared
         N, J = m.n, len(self.tranches)
-        q_next = 1.0 - bc.l(m.rows_x, m.x0 + 1.0) / m.lx0  # expected deaths in the next year
+        # expected deaths in the next year
+        q_next = m.once(f"{key} q_next", lambda: 1.0 - bc.l(m.rows_x, m.x0 + 1.0) / lx0)
         terms = rule.terms(bc, m)
         cash = np.zeros(self.ctx.months)
         lumps: dict[Benefit, NDArray[np.float64]] = {}

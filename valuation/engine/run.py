@@ -231,9 +231,10 @@ class RunAccumulator:
         self.sensitivities = sensitivities
         self.scenarios = scenarios_from_basis(basis, basis.valuation_date.year) if sensitivities else []
         self.base = Valuer(basis, BASE, q_multiplier)
-        self.no_growth = Valuer(basis, Scenario(no_salary_growth=True), q_multiplier)
+        # scenarios that keep mortality share the base's survival (worked out once a chunk)
+        self.no_growth = Valuer(basis, Scenario(no_salary_growth=True), q_multiplier, survival_of=self.base)
         # discount-rate scenarios come from the cash flows; the others are valued again
-        self.valuers = {sc.name: Valuer(basis, sc, q_multiplier) for sc in self.scenarios
+        self.valuers = {sc.name: Valuer(basis, sc, q_multiplier, survival_of=self.base) for sc in self.scenarios
                         if sc.kind != "discount_rate"}
         self.member_sink = member_sink
         self.cash: np.ndarray | None = None

@@ -143,7 +143,7 @@ class ActivePension(BenefitRule):
     def lumps(self, bc: BenefitContext, m: Members, terms: PensionTerms) -> list[Lump]:
         out = []
         if isinstance(terms, ActiveTerms) and terms.years is not None:
-            dis = death_in_service(bc, terms.years)
+            dis = death_in_service(bc, m, terms.years)
             if dis is not None:
                 out.append(dis)
         comm = commutation(bc, m, terms)

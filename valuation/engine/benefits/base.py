@@ -56,6 +56,8 @@ class BenefitContext:
     first_increase: NDArray[np.float64] | None  # (J, M) first-increase factor per start month; None: full
     revalue: NDArray[np.float64]  # (J, M) revaluation index in deferment per tranche
     mort_ids: dict[tuple[Group, Sex], int]
+    #: names the survival in use: what depends on survival alone is kept under it (``Members.once``)
+    survival_key: str = "survival"
 
     def rows(self, group: Group | NDArray, sex: NDArray, age: NDArray[np.float64]) -> NDArray[np.int64]:
         """Survival row of each life: the (group, sex) mortality for the cohort of its age now."""

@@ -47,7 +47,7 @@ def commutation(bc: BenefitContext, m: Members, terms: PensionTerms) -> Lump | N
         return None
     ctx, start = bc.ctx, terms.start
     pens_at_ret = (terms.base * terms.at_start_full).sum(axis=1)
-    surv = bc.l(m.rows_x, m.x0 + start / 12.0) / m.lx0
+    surv = m.once(f"{bc.survival_key} to retirement", lambda: bc.l(m.rows_x, m.x0 + start / 12.0) / m.lx0)
     amount = comm.proportion * pens_at_ret * comm.factor * surv
     cash = np.bincount(start, weights=amount, minlength=ctx.months)[: ctx.months].astype(np.float64)
     return Lump(BENEFIT, pv=amount * ctx.v[start], cashflow=cash, earned_with_pension=True)
@@ -74,7 +74,7 @@ class YearsInService:
     salary_growth: float
 
 
-def death_in_service(bc: BenefitContext, years: YearsInService) -> Lump | None:
+def death_in_service(bc: BenefitContext, m: Members, years: YearsInService) -> Lump | None:
     """Lump sum on death in service: the basis's multiple x salary projected to the mid-year of death,
     attributed to service to date: the part earned to date is service / (service + t), and one more year of
     service earns 1 / (service + t) of it (the current service cost). None when the basis has none.
@@ -89,7 +89,8 @@ def death_in_service(bc: BenefitContext, years: YearsInService) -> Lump | None:
         return None
     ctx = bc.ctx
     mid, g = years.mid, years.salary_growth
-    lk = bc.l(years.rows[:, None], years.x0[:, None] + np.arange(n_int + 1)[None, :])
+    lk = m.once(f"{bc.survival_key} in service",
+                lambda: bc.l(years.rows[:, None], years.x0[:, None] + np.arange(n_int + 1)[None, :]))
     lk0 = lk[:, :1]
     # expected payment per unit of salary in year i, in service and dying then (key level)
     per_salary = (mult * (lk[:, :-1] - lk[:, 1:]) / lk0 * years.stay_before * years.in_window
