@@ -15,6 +15,8 @@ from __future__ import annotations
 
 from collections.abc import Sequence
 from dataclasses import dataclass
+from datetime import date
+from functools import lru_cache
 from pathlib import Path
 from typing import overload
 
@@ -102,17 +104,22 @@ _FIRST_DAY = np.datetime64(EARLIEST, "D")
 _ALL_DAYS = np.arange(_FIRST_DAY, np.datetime64(LATEST, "D") + 1, dtype="datetime64[D]")
 
 
+@lru_cache(maxsize=8)
+def _age_table(at: date, convention: AgeConvention) -> pl.Series:
+    """:func:`valuation.survival.age_at` of every date the parser accepts (about 128,000 dates) [years]."""
+    with np.errstate(invalid="ignore"):
+        return pl.Series(age_at(_ALL_DAYS, at, convention), dtype=pl.Float64)
+
+
 def _age_expr(col: str, basis: Basis, convention: AgeConvention) -> pl.Expr:
     """Age [years] at the valuation date of the dates in parsed column ``col``, by
     :func:`valuation.survival.age_at` (the engine's age calendar); null where the date is.
 
-    The ages of every date the parser accepts are computed once (about 128,000 dates) and looked up by
+    The ages of every date the parser accepts are computed once (:func:`_age_table`) and looked up by
     day, so a million members cost a gather, not a million calendar sums.
     """
-    with np.errstate(invalid="ignore"):
-        table = pl.Series(age_at(_ALL_DAYS, basis.valuation_date, convention), dtype=pl.Float64)
     first = int(_FIRST_DAY.astype(np.int64))
-    return pl.lit(table).gather(pl.col(parsed(col)).cast(pl.Int64) - first)
+    return pl.lit(_age_table(basis.valuation_date, convention)).gather(pl.col(parsed(col)).cast(pl.Int64) - first)
 
 
 def _ages(col: str, basis: Basis, prefix: str) -> list[pl.Expr]:
@@ -227,7 +234,8 @@ def _plan(
     wanted = [*REQUIRED, *DATE_COLUMNS[1:], *NUMERIC_COLUMNS, *tranche_cols]
     source, typed = _source(raw, wanted)
     m = basis.mapping
-    src = raw.lazy().select(source).with_row_index("row", offset=first_row).with_columns(pl.col("row").cast(pl.Int64))
+    src = raw.lazy().select(source).with_row_index("row", offset=first_row).with_columns(
+        pl.col("row").cast(pl.Int64)).collect().lazy()  # held once: both passes below read it
     # the distinct codes, and the ids written more than once: short lists, found before the main pass
     pre = src.select(pl.col("status").unique().implode(), pl.col("sex").unique().implode(),
                      _repeated(pl.col("member_id")).alias("member_id")).collect()
