@@ -273,6 +273,12 @@ WRONG = [
     (["run", "{basis}", "{members}", "--stream", "--deaths", "{deaths}", "--start-members", "{start}",
       "--period-start", "2022-03-31", "--period-end", "2025-03-31"], 2, "--stream"),
     (["run", "{basis}", "{members}", "--bogus"], 2, "--bogus"),
+    (["run", "{basis}", "{members}", "--chunk-size", "99999999999999999999"], 2, "--chunk-size"),
+    (["run", "{basis}", "{members}", "--encoding", "rot13"], 2, "not a text encoding"),
+    (["run", "{basis}", "{members}", "--encoding", "klingon"], 2, "not a known text encoding"),
+    (["run", "{basis}", "{members}", "--out", "/proc/valuation-test"], 3, "cannot write"),
+    (["check", "{basis}", "{members}", "--exceptions", "{members}", "--overwrite"], 3, "is the input file"),
+
     (["run", "{members}", "{members}"], 3, "TOML"),
     (["run", "{basis}", "{basis}"], 3, ".toml"),
     (["check", "{basis}", "{members}", "--exceptions", "{tmp}"], 3, "folder"),
@@ -432,3 +438,47 @@ def test_html_lists_the_top_reasons_and_points_to_the_workbook():
     shown = [k for k in range(n_kinds) if f"problem kind {k:02d}" in html]
     assert shown == list(range(TOP_REASONS))  # the commonest first
     assert "and 4 more kinds of problem" in html and "Exceptions sheet" in html
+
+
+def test_a_users_file_in_a_previous_run_is_named(tmp_path, capsys):
+    """The refusal names the file the user added, not the tool's own files."""
+    small = _small_scheme(tmp_path)
+    out = tmp_path / "run"
+    assert main(["run", str(BASIS), str(small), "--out", str(out), *QUICK]) == 0
+    (out / "notes.txt").write_text("mine")
+    assert main(["run", str(BASIS), str(small), "--out", str(out), "--overwrite", *QUICK]) == 3
+    err = capsys.readouterr().err
+    assert "(notes.txt)" in err and "summary.json" not in err
+
+
+def test_out_dot_in_an_empty_folder_fills_it(tmp_path, monkeypatch):
+    small = _small_scheme(tmp_path)
+    work = tmp_path / "empty"
+    work.mkdir()
+    monkeypatch.chdir(work)
+    assert main(["run", str(BASIS), str(small), "--out", ".", *QUICK]) == 0
+    assert (work / "summary.json").exists() and Path.cwd().samefile(work)
+
+
+def test_single_output_files_get_ordinary_permissions(tmp_path):
+    old = os.umask(0o022)
+    try:
+        out = tmp_path / "s.csv"
+        assert main(["synth", "--members", "20", "--out", str(out), "-q"]) == 0
+        assert (out.stat().st_mode & 0o777) == 0o644
+    finally:
+        os.umask(old)
+
+
+def test_experience_with_no_exposure_is_an_input_error_and_writes_nothing(tmp_path, capsys):
+    """A start membership with no records gives no exposure: exit 3, no folder (it used to crash after the
+    folder had been written)."""
+    start = tmp_path / "start.csv"
+    start.write_text((DEMO / "members_start.csv").read_text(encoding="utf-8").splitlines()[0] + "\n")
+    out = tmp_path / "out"
+    code = main(["run", str(BASIS), str(MEMBERS), "--out", str(out), "--no-sensitivities", "--no-reports", "-q",
+                 "--deaths", str(DEMO / "deaths.csv"), "--start-members", str(start), "--period-start",
+                 "2022-03-31", "--period-end", "2025-03-31"])
+    err = capsys.readouterr().err
+    assert code == 3 and "no exposure" in err and "Traceback" not in err
+    assert not out.exists()

@@ -60,8 +60,8 @@ def _number(kind: Callable[[str], Any], what: str, test: Callable[[Any], bool]) 
     return parse
 
 
-positive_int = _number(int, "a whole number of 1 or more", lambda v: v >= 1)
-non_negative_int = _number(int, "a whole number of 0 or more", lambda v: v >= 0)
+positive_int = _number(int, "a whole number from 1 to 1,000,000,000", lambda v: 1 <= v <= 10**9)
+non_negative_int = _number(int, "a whole number from 0 to 1,000,000,000", lambda v: 0 <= v <= 10**9)
 probability = _number(float, "a level strictly between 0 and 1 (for example 0.95)", lambda v: 0 < v < 1)
 positive_float = _number(float, "a number above 0", lambda v: 0 < v < float("inf"))
 non_negative_float = _number(float, "a number of 0 or more", lambda v: 0 <= v < float("inf"))
@@ -151,6 +151,20 @@ def _input_format(args: argparse.Namespace) -> Any:
     return InputFormat(delimiter=args.delimiter, encoding=args.encoding, sheet=args.sheet)
 
 
+def text_encoding(text: str) -> str:
+    """A text encoding Python knows (``utf-8``, ``cp1252``, ``latin-1``...), not a bytes-to-bytes codec."""
+    import codecs
+
+    try:
+        info = codecs.lookup(text)
+    except LookupError:
+        raise argparse.ArgumentTypeError(f"'{text}' is not a known text encoding (for example utf-8, cp1252 or "
+                                         "latin-1)") from None
+    if not getattr(info, "_is_text_encoding", True):
+        raise argparse.ArgumentTypeError(f"'{text}' is not a text encoding (for example utf-8, cp1252 or latin-1)")
+    return text
+
+
 def delimiter(text: str) -> str:
     """A CSV delimiter: one character, or the word ``tab``."""
     value = "\t" if text.lower() in ("tab", "\\t", "\t") else text
@@ -163,7 +177,7 @@ def _format_options(sp: argparse.ArgumentParser) -> None:
     g = sp.add_argument_group("member file format (when it is not comma-separated UTF-8, or not the first sheet)")
     g.add_argument("--delimiter", type=delimiter, default=",",
                    help="character between values in a CSV file: ';', '|' or tab (default ',')")
-    g.add_argument("--encoding", default="utf-8",
+    g.add_argument("--encoding", type=text_encoding, default="utf-8",
                    help="text encoding of a CSV file, e.g. cp1252 or latin-1 (default utf-8)")
     g.add_argument("--sheet", help="worksheet of an XLSX file, by name (default: the first sheet)")
 
@@ -212,7 +226,10 @@ def cmd_run(args: argparse.Namespace) -> int:
 
 
 def _experience_line(res: Any) -> str:
-    o = res.table.filter(res.table["dimension"] == "overall").row(0, named=True)
+    overall = res.table.filter(res.table["dimension"] == "overall")
+    if overall.height == 0:
+        return "deaths: no exposure in the period"
+    o = overall.row(0, named=True)
     d = res.summary.get("records", {}).get("deaths", {})
     counted = (f"deaths read {d['read']:,} = counted {d['counted']:,} + excluded {d['excluded']:,}\n"
                if {"read", "counted", "excluded"} <= set(d) else "")
@@ -247,7 +264,7 @@ def cmd_check(args: argparse.Namespace) -> int:
     from valuation.members import read_members
 
     if args.exceptions:
-        check_output_file(args.exceptions, overwrite=args.overwrite)
+        check_output_file(args.exceptions, overwrite=args.overwrite, inputs=[args.basis, args.members])
     basis = load_basis(args.basis)
     data = read_members(args.members, basis, _input_format(args))
     _say(args, data.reconciliation_text())
@@ -258,7 +275,7 @@ def cmd_check(args: argparse.Namespace) -> int:
         for sev, reason, n in counts.iter_rows():
             _say(args, f"  {sev:<8} {n:>6}  {reason}")
     if args.exceptions:
-        with atomic_file(args.exceptions, overwrite=args.overwrite) as tmp:
+        with atomic_file(args.exceptions, overwrite=args.overwrite, inputs=[args.basis, args.members]) as tmp:
             write_csv(data.exceptions, tmp)
         _say(args, f"exceptions written to {args.exceptions}")
     return EXIT_OK
@@ -323,12 +340,12 @@ def cmd_table(args: argparse.Namespace) -> int:
     if args.chart:
         if Path(args.chart).suffix.lower() != ".png":
             raise ValuationError("the chart file must end in .png", file=args.chart, fix="for example --chart q.png")
-        check_output_file(args.chart, overwrite=args.overwrite)
+        check_output_file(args.chart, overwrite=args.overwrite, inputs=[args.file])
     elif args.overwrite:
         args.parser.error("--overwrite applies to --chart only")
     _print(describe_tables(args.file, args.name))
     if args.chart:
-        with atomic_file(args.chart, overwrite=args.overwrite) as tmp:
+        with atomic_file(args.chart, overwrite=args.overwrite, inputs=[args.file]) as tmp:
             table_chart(args.file, args.name, tmp)
         _say(args, f"chart written to {args.chart}")
     return EXIT_OK
@@ -521,27 +538,56 @@ def main(argv: list[str] | None = None) -> int:
         signal.signal(signal.SIGTERM, _terminate)
     try:
         return int(args.func(args))
-    except ValuationError as exc:
-        _print(f"valuation: error: {exc}", file=sys.stderr)
-        return int(getattr(exc, "exit_code", EXIT_INPUT))
-    except BrokenPipeError:
+    except Exception as exc:
+        if _interrupted(exc):  # a library caught the interrupt and raised its own error
+            return _stop("valuation: interrupted; nothing was written", EXIT_INTERRUPTED)
+        return _failure(exc)
+    except KeyboardInterrupt:
+        return _stop("valuation: interrupted; nothing was written", EXIT_INTERRUPTED)
+
+
+def _interrupted(exc: BaseException) -> bool:
+    """True when ``exc`` was raised while handling an interrupt (Ctrl-C or SIGTERM)."""
+    seen: set[int] = set()
+    cur: BaseException | None = exc
+    while cur is not None and id(cur) not in seen:
+        if isinstance(cur, KeyboardInterrupt):
+            return True
+        seen.add(id(cur))
+        cur = cur.__cause__ or cur.__context__
+    return False
+
+
+def _stop(message: str, code: int) -> int:
+    """Say ``message`` on stderr, a further Ctrl-C or SIGTERM ignored while it is said, and return ``code``."""
+    if threading.current_thread() is not threading.main_thread():
+        _print(message, file=sys.stderr)
+        return code
+    previous = {sig: signal.signal(sig, signal.SIG_IGN) for sig in (signal.SIGINT, signal.SIGTERM)}
+    try:
+        _print(message, file=sys.stderr)
+    finally:
+        for sig, handler in previous.items():
+            signal.signal(sig, handler)
+    return code
+
+
+def _failure(exc: Exception) -> int:
+    """The message and exit code for an error that ended a command."""
+    if isinstance(exc, ValuationError):
+        return _stop(f"valuation: error: {exc}", int(getattr(exc, "exit_code", EXIT_INPUT)))
+    if isinstance(exc, BrokenPipeError):
         _silence(sys.stdout)
         return EXIT_OK
-    except KeyboardInterrupt:
-        _print("valuation: interrupted; nothing was written", file=sys.stderr)
-        return EXIT_INTERRUPTED
-    except MemoryError:
-        _print("valuation: error: not enough memory (try `run --stream` or a smaller --chunk-size)", file=sys.stderr)
-        return EXIT_INPUT
-    except OSError as exc:  # a file that cannot be read or written: disk full, permission, vanished file
+    if isinstance(exc, MemoryError):
+        return _stop("valuation: error: not enough memory (for a very large scheme, `valuation run --stream` "
+                     "with a smaller --chunk-size)", EXIT_INPUT)
+    if isinstance(exc, OSError):  # a file that cannot be read or written: disk full, permission, vanished file
         where = exc.filename or "a file"
-        _print(f"valuation: error: {where}: {exc.strerror or exc}; nothing was written", file=sys.stderr)
-        return EXIT_INPUT
-    except Exception as exc:  # an internal error: say so plainly, keep the details for a bug report
-        report = _crash_report(exc)
-        _print(f"valuation: internal error ({type(exc).__name__}); nothing was written. This is a bug in the "
-               f"tool, not in your data: please report it with the details saved in {report}", file=sys.stderr)
-        return EXIT_INTERNAL
+        return _stop(f"valuation: error: {where}: {exc.strerror or exc}; nothing was written", EXIT_INPUT)
+    report = _crash_report(exc)  # an internal error: said plainly, the details kept for a bug report
+    return _stop(f"valuation: internal error ({type(exc).__name__}); nothing was written. This is a bug in the "
+                 f"tool, not in your data: please report it with the details saved in {report}", EXIT_INTERNAL)
 
 
 if __name__ == "__main__":  # pragma: no cover

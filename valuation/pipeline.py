@@ -14,6 +14,8 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
+import polars as pl
+
 from valuation.basis import load_basis
 from valuation.basis.model import Basis
 from valuation.engine.gate import check_exclusions
@@ -21,7 +23,7 @@ from valuation.engine.results import ValuationResult
 from valuation.engine.run import DEFAULT_CHUNK, Progress, value_members
 from valuation.engine.stream import value_file_streaming
 from valuation.engine.write import ExtraWriter, atomic_folder, check_output_folder, write_into
-from valuation.errors import ValuationError
+from valuation.errors import DataError, ValuationError
 from valuation.experience import ExperienceSettings, analyse_experience
 from valuation.experience.implied import ValuedScheme
 from valuation.experience.result import ExperienceResult
@@ -60,6 +62,17 @@ class Outcome:
 
 def _quiet(_text: str) -> None:
     """A ``say`` that says nothing."""
+
+
+def _check_exposure(res: ExperienceResult, start_members: Path) -> ExperienceResult:
+    """An experience analysis with no exposure (no start member alive and in the scheme during the period)
+    tells nothing: an input error, before anything is written."""
+    overall = res.table.filter(pl.col("dimension") == "overall")
+    if overall.height == 0 or not float(overall["exposure_years"].fill_null(0.0).sum()) > 0.0:
+        raise DataError("the experience analysis has no exposure: no member of the start membership was in the "
+                        "scheme during the period", file=start_members,
+                        fix="check the start membership file and the period dates (--period-start, --period-end)")
+    return res
 
 
 def as_basis(basis: Basis | str | Path) -> Basis:
@@ -193,9 +206,9 @@ def run(
                            input_files=experience.files if experience else [])
     outcome = Outcome(result=result, data=data)
     if experience is not None:
-        outcome.experience = analyse_experience(
+        outcome.experience = _check_exposure(analyse_experience(
             experience.start_members, experience.deaths, loaded, experience.settings, exits_path=experience.exits,
-            valued=valued_scheme(loaded, data, result.total_liability, chunk_size))
+            valued=valued_scheme(loaded, data, result.total_liability, chunk_size)), experience.start_members)
     if out is not None:
         if progress:
             progress("writing", 0, 1)
@@ -240,8 +253,8 @@ def experience_only(
         data = read(loaded, valuation_members, fmt)
         base = value_members(loaded, data, sensitivities=False, chunk_size=chunk_size).total_liability
         valued = valued_scheme(loaded, data, base, chunk_size)
-    return analyse_experience(inputs.start_members, inputs.deaths, loaded, inputs.settings, exits_path=inputs.exits,
-                              valued=valued)
+    return _check_exposure(analyse_experience(inputs.start_members, inputs.deaths, loaded, inputs.settings,
+                                              exits_path=inputs.exits, valued=valued), inputs.start_members)
 
 
 def value_scheme(basis: Basis | str | Path, members: Any, *, fmt: InputFormat | None = None, sensitivities: bool = True,

@@ -59,18 +59,29 @@ def _manifest(folder: Path) -> dict | None:
     return data if isinstance(data, dict) else None
 
 
+def foreign_entries(folder: Path) -> list[str]:
+    """What ``folder`` holds that this tool did not write (paths relative to ``folder``): everything, when
+    it has no manifest of ours; else what its manifest does not list, looking into run folders inside."""
+    m = _manifest(folder)
+    entries = sorted(folder.iterdir())
+    if m is None or m.get("tool") != "valuation" or not isinstance(m.get("files"), list):
+        return [e.name for e in entries]
+    listed = {str(f) for f in m["files"]}
+    out: list[str] = []
+    for entry in entries:
+        if entry.name not in listed or entry.is_symlink():
+            out.append(entry.name)
+        elif entry.is_dir():
+            out += [f"{entry.name}/{inner}" for inner in foreign_entries(entry)]
+    return out
+
+
 def is_previous_run(folder: Path) -> bool:
     """True when ``folder`` holds only what a run of this tool wrote there, as its manifest lists."""
     m = _manifest(folder)
     if m is None or m.get("tool") != "valuation" or not isinstance(m.get("files"), list):
         return False
-    listed = {str(f) for f in m["files"]}
-    for entry in folder.iterdir():
-        if entry.name not in listed or entry.is_symlink():
-            return False
-        if entry.is_dir() and not is_previous_run(entry):
-            return False
-    return True
+    return not foreign_entries(folder)
 
 
 def _inside(path: Path, folder: Path) -> bool:
@@ -94,6 +105,11 @@ def _writable_parent(target: Path) -> None:
     if not os.access(parent, os.W_OK | os.X_OK):
         raise OutputError(f"no permission to write in '{parent}'", file=target,
                           fix="choose an output folder you can write to")
+    try:  # permissions alone do not tell (root, read-only or special file systems): try it
+        Path(tempfile.mkdtemp(prefix=".valuation-probe-", dir=parent)).rmdir()
+    except OSError as exc:
+        raise OutputError(f"cannot write in '{parent}' ({(exc.strerror or 'not allowed').lower()})", file=target,
+                          fix="choose an output folder you can write to") from None
 
 
 def _pid_alive(pid: int) -> bool:
@@ -135,7 +151,7 @@ def check_output_folder(target: str | Path, *, overwrite: bool = False, inputs: 
 
     Call it before any valuation work, so that a bad output path fails at once.
     """
-    target = Path(target)
+    target = Path(os.path.abspath(target))
     if target.is_symlink():
         raise OutputError("the output path is a link; the tool writes only real folders", file=target,
                           fix="give a new folder with --out")
@@ -150,7 +166,7 @@ def check_output_folder(target: str | Path, *, overwrite: bool = False, inputs: 
     remove_stale(target)
     if target.is_dir() and any(target.iterdir()):
         if not is_previous_run(target):
-            others = sorted(p.name for p in target.iterdir())
+            others = foreign_entries(target)
             shown = ", ".join(others[:5]) + (f" and {len(others) - 5} more" if len(others) > 5 else "")
             raise OutputError(f"the output folder already holds files the tool did not write ({shown}); "
                               "they are left as they are", file=target,
@@ -178,9 +194,14 @@ def free_folder(base: Path) -> Path:
         n += 1
 
 
-def check_output_file(target: str | Path, *, overwrite: bool = False) -> None:
-    """Raise :class:`OutputError` unless a single output file can be written at ``target``."""
-    target = Path(target)
+def check_output_file(target: str | Path, *, overwrite: bool = False, inputs: Iterable[str | Path] = ()) -> None:
+    """Raise :class:`OutputError` unless a single output file can be written at ``target``; an input file is
+    never overwritten, ``overwrite`` or not."""
+    target = Path(os.path.abspath(target))
+    for inp in inputs:
+        if Path(inp).exists() and Path(inp).resolve() == target.resolve():
+            raise OutputError(f"the output file is the input file '{inp}'; it is left as it is", file=target,
+                              fix="give a new file name")
     if target.is_dir():
         raise OutputError("the output path is a folder, not a file", file=target, fix="give a file name")
     if target.exists() and not overwrite:
@@ -190,10 +211,10 @@ def check_output_file(target: str | Path, *, overwrite: bool = False) -> None:
 
 
 @contextmanager
-def atomic_file(target: str | Path, *, overwrite: bool = False) -> Iterator[Path]:
+def atomic_file(target: str | Path, *, overwrite: bool = False, inputs: Iterable[str | Path] = ()) -> Iterator[Path]:
     """Yield a temporary path beside ``target`` that is renamed onto it when the block succeeds."""
-    target = Path(target)
-    check_output_file(target, overwrite=overwrite)
+    target = Path(os.path.abspath(target))
+    check_output_file(target, overwrite=overwrite, inputs=inputs)
     target.parent.mkdir(parents=True, exist_ok=True)
     fd, name = tempfile.mkstemp(prefix=f"{target.stem}.incomplete-", suffix=target.suffix, dir=target.parent)
     os.close(fd)
@@ -203,6 +224,9 @@ def atomic_file(target: str | Path, *, overwrite: bool = False) -> Iterator[Path
         if target.exists() and not overwrite:  # appeared while we were working
             raise OutputError("the output file appeared while the tool was writing; it is left as it is",
                               file=target, fix="give a new file name")
+        umask = os.umask(0)
+        os.umask(umask)
+        os.chmod(tmp, 0o666 & ~umask)  # as an ordinary new file (mkstemp makes it private)
         os.replace(tmp, target)
     finally:
         tmp.unlink(missing_ok=True)
@@ -233,7 +257,7 @@ def atomic_folder(
     ``overwrite``) a previous run, which is replaced atomically. On any exception, or SIGINT/SIGTERM, the
     temporary folder is removed and ``target`` is as it was.
     """
-    target = Path(target)
+    target = Path(os.path.abspath(target))
     check_output_folder(target, overwrite=overwrite, inputs=inputs)
     target.parent.mkdir(parents=True, exist_ok=True)
     held = {signal.SIGINT, signal.SIGTERM}
@@ -267,8 +291,18 @@ def atomic_folder(
                 raise OutputError("the output folder was filled by something else while the tool was working; "
                                   "it is left as it is", file=target, fix="give a new folder with --out")
             target.rename(old)
-        elif target.is_dir():
-            target.rmdir()  # an empty folder
+        elif target.is_dir():  # an empty folder of the user's: kept, and filled from the temporary one
+            moved = []
+            try:
+                for entry in sorted(tmp.iterdir()):
+                    entry.rename(target / entry.name)
+                    moved.append(target / entry.name)
+            except BaseException:
+                for path in moved:
+                    shutil.rmtree(path) if path.is_dir() else path.unlink()
+                raise
+            tmp.rmdir()
+            return
         tmp.rename(target)
         shutil.rmtree(old, ignore_errors=True)
     except BaseException:
