@@ -77,8 +77,11 @@ def load_batch(path: str | Path) -> BatchFile:
                 problems.append(f"{where}: unknown key '{key}' (allowed: {allowed}; misspelt?)")
             elif err["type"] == "missing":
                 problems.append(f"{where}: key '{key}' is missing")
+            elif err["type"] == "string_pattern_mismatch":
+                problems.append(f"{where}: key '{key}': expected letters, digits, '_', '.' or '-' only, starting with "
+                                f"a letter or digit (a run's name becomes its folder's name)")
             else:
-                problems.append(f"{where}: key '{key}': {err['msg']}")
+                problems.append(f"{where}: key '{key}': {err['msg'].removeprefix('Input should be ')}")
         raise BasisError("; ".join(problems), file=path,
                          fix="each [[run]] needs name (letters, digits, _ . -), basis and members; "
                              "sensitivities = true/false is optional") from None

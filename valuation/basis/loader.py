@@ -80,6 +80,21 @@ def _dotted(parts: list[str]) -> str:
     return out or "(top level)"
 
 
+#: Pydantic's own wording for common problems, said in the basis file's terms.
+_PLAIN: dict[str, str] = {
+    "float_parsing": "expected a number, such as 0.045 (without quotes)",
+    "float_type": "expected a number, such as 0.045",
+    "int_parsing": "expected a whole number (without quotes)",
+    "int_type": "expected a whole number",
+    "int_from_float": "expected a whole number, not a number with a fractional part",
+    "string_type": "expected a text in double quotes",
+    "bool_type": "expected true or false",
+    "bool_parsing": "expected true or false",
+    "list_type": "expected a list in square brackets, e.g. [1, 2]",
+    "dict_type": "expected a table (a [section] or { key = value, ... })",
+}
+
+
 def describe(err: dict[str, Any]) -> str:
     """One readable sentence for one pydantic error: the dotted key, the problem, the value given."""
     loc = tuple(err.get("loc", ()))
@@ -102,6 +117,13 @@ def describe(err: dict[str, Any]) -> str:
         msg = "expected " + msg.removeprefix("Input should be ")
     if kind.startswith(("date_", "datetime_")):
         msg = "expected a date written as YYYY-MM-DD without quotes, e.g. 2025-03-31"
+    msg = _PLAIN.get(kind, msg)
+    if kind == "string_pattern_mismatch":
+        msg = "expected letters, digits, '_', '.' or '-' only, starting with a letter or digit"
+    if kind in ("too_short", "too_long"):
+        ctx = err.get("ctx") or {}
+        msg = (f"expected at least {ctx.get('min_length')} item(s)" if kind == "too_short"
+               else f"expected at most {ctx.get('max_length')} item(s)")
     given = err.get("input")
     shown = "" if isinstance(given, dict | list) or given is None else f" (got {toml_text(given)})"
     if "[key]" in loc:
