@@ -233,6 +233,10 @@ def _experience_line(res: Any) -> str:
     d = res.summary.get("records", {}).get("deaths", {})
     counted = (f"deaths read {d['read']:,} = counted {d['counted']:,} + excluded {d['excluded']:,}\n"
                if {"read", "counted", "excluded"} <= set(d) else "")
+    m = res.summary.get("records", {}).get("members", {})
+    if {"read", "valued", "excluded"} <= set(m):
+        counted = (f"start membership read {m['read']:,} = used {m['valued']:,} + excluded {m['excluded']:,}\n"
+                   + counted)
     return counted + (f"deaths: A/E by lives {100 * o['ae_lives']:.1f} % ({100 * o['ae_lives_lower']:.1f} % to "
             f"{100 * o['ae_lives_upper']:.1f} %); by amounts {100 * o['ae_amounts']:.1f} % "
             f"({100 * o['ae_amounts_lower']:.1f} % to {100 * o['ae_amounts_upper']:.1f} %)")
@@ -322,7 +326,8 @@ def cmd_experience(args: argparse.Namespace) -> int:
     check_output_folder(out, overwrite=args.overwrite, inputs=inputs)
     request = pipeline.ExperienceInputs(start_members=args.members, deaths=args.deaths,
                                         settings=_experience_settings(args), exits=args.exits)
-    res = pipeline.experience_only(basis, request, valuation_members=args.valuation_members)
+    res = pipeline.experience_only(basis, request, valuation_members=args.valuation_members,
+                                   accept_exclusions=args.accept_exclusions, warn=_warn)
     with atomic_folder(out, overwrite=args.overwrite, inputs=inputs) as tmp:
         res.write(tmp)
         dump_json({"tool_version": __version__, "command": "experience", "inputs": input_hashes(inputs),
@@ -475,6 +480,8 @@ def build_parser() -> argparse.ArgumentParser:
     e.add_argument("--out", help="folder to write: new, empty, or a previous one with --overwrite "
                                  "(default: outputs/experience-<period end>, never an existing folder)")
     _overwrite(e, "a previous experience folder in --out")
+    e.add_argument("--accept-exclusions", action="store_true",
+                   help="analyse even when more start-membership records are excluded than the basis allows")
     common(e)
     e.set_defaults(parser=e, func=cmd_experience)
     t = sub.add_parser("table", help="look at a mortality table or improvement scale file before using it",

@@ -64,9 +64,15 @@ def _quiet(_text: str) -> None:
     """A ``say`` that says nothing."""
 
 
-def _check_exposure(res: ExperienceResult, start_members: Path) -> ExperienceResult:
+def _check_exposure(res: ExperienceResult, start_members: Path, basis: Basis | None = None, accept: bool = True,
+                    warn: Say = _quiet) -> ExperienceResult:
     """An experience analysis with no exposure (no start member alive and in the scheme during the period)
-    tells nothing: an input error, before anything is written."""
+    tells nothing: an input error, before anything is written. The start membership passes the same
+    exclusion limit as the valuation's member file."""
+    members = (res.summary.get("records") or {}).get("members") or {}
+    if basis is not None and members:
+        gate(basis, start_members, int(members.get("read", 0)), int(members.get("valued", 0)),
+             int(members.get("excluded", 0)), accept, warn)
     overall = res.table.filter(pl.col("dimension") == "overall")
     if overall.height == 0 or not float(overall["exposure_years"].fill_null(0.0).sum()) > 0.0:
         raise DataError("the experience analysis has no exposure: no member of the start membership was in the "
@@ -208,7 +214,8 @@ def run(
     if experience is not None:
         outcome.experience = _check_exposure(analyse_experience(
             experience.start_members, experience.deaths, loaded, experience.settings, exits_path=experience.exits,
-            valued=valued_scheme(loaded, data, result.total_liability, chunk_size)), experience.start_members)
+            valued=valued_scheme(loaded, data, result.total_liability, chunk_size)), experience.start_members,
+            loaded, accept_exclusions, warn)
     if out is not None:
         if progress:
             progress("writing", 0, 1)
@@ -244,6 +251,8 @@ def experience_only(
     valuation_members: str | Path | None = None,
     fmt: InputFormat = DEFAULT_FORMAT,
     chunk_size: int = DEFAULT_CHUNK,
+    accept_exclusions: bool = False,
+    warn: Say = _quiet,
 ) -> ExperienceResult:
     """The experience analysis on its own; with ``valuation_members``, the liability effect too (the members
     read once and valued on the basis, then on the basis at the implied percentages)."""
@@ -254,7 +263,8 @@ def experience_only(
         base = value_members(loaded, data, sensitivities=False, chunk_size=chunk_size).total_liability
         valued = valued_scheme(loaded, data, base, chunk_size)
     return _check_exposure(analyse_experience(inputs.start_members, inputs.deaths, loaded, inputs.settings,
-                                              exits_path=inputs.exits, valued=valued), inputs.start_members)
+                                              exits_path=inputs.exits, valued=valued), inputs.start_members,
+                           loaded, accept_exclusions, warn)
 
 
 def value_scheme(basis: Basis | str | Path, members: Any, *, fmt: InputFormat | None = None, sensitivities: bool = True,
