@@ -81,3 +81,30 @@ def test_deaths_file_through_the_member_reader(tmp_path: Path) -> None:
     assert df["member_id"].to_list() == ["P\u00e9001", "P002", "P003"]
     assert df["date"].to_list() == [date(2022, 5, 10), date(2022, 6, 1), None]
     assert df["row"].to_list() == [2, 3, 4]
+
+
+@pytest.mark.parametrize("fmt", [None, "%d/%m/%Y", "%Y%m%d", "%d.%m.%Y", "%d %b %Y", "%m-%d-%Y"])
+def test_one_date_parser_first_format_that_fits(fmt: str | None) -> None:
+    """The basis's format, then ISO, then an Excel date-time's text; the first that fits, within 1850-2200.
+
+    Reference: Python's ``datetime.strptime`` on the same zero-padded texts (the C standard's strftime
+    directives), tried in the stated order.
+    """
+    from datetime import datetime
+
+    from valuation.members.parse import to_date
+
+    texts = ["2021-03-04", "04/03/2021", "20210304", "04.03.2021", "04 Mar 2021", "03-04-2021",
+             "2021-03-04 00:00:00", "1849-12-31", "2201-01-01", "31/02/2021", "not a date", None]
+
+    def reference(t: str | None) -> date | None:
+        for f in [f for f in dict.fromkeys((fmt, "%Y-%m-%d")) if f] + ["%Y-%m-%d %H:%M:%S"]:
+            try:
+                d = datetime.strptime(t or "", f).date()
+            except ValueError:
+                continue
+            return d if date(1850, 1, 1) <= d <= date(2200, 12, 31) else None
+        return None
+
+    got = pl.DataFrame({"t": texts}, schema={"t": pl.String}).select(to_date(pl.col("t"), fmt)).to_series().to_list()
+    assert got == [reference(t) for t in texts]

@@ -46,10 +46,34 @@ def parse_code(col: str, table: dict[str, str]) -> pl.Expr:
     )
 
 
-def _date_tries(text: pl.Expr, fmt: str | None) -> list[pl.Expr]:
-    tries = [text.str.strptime(pl.Date, f, strict=False) for f in dict.fromkeys((fmt, "%Y-%m-%d")) if f]
-    tries.append(text.str.strptime(pl.Datetime, "%Y-%m-%d %H:%M:%S", strict=False).dt.date())
-    return tries
+#: Characters that, outside a ``%`` directive, a date format requires literally in the text.
+_SEPARATORS = "-/.:,"
+
+
+def _required_literals(fmt: str) -> set[str]:
+    """The separator characters a text must contain to parse under ``strftime`` pattern ``fmt``."""
+    out: set[str] = set()
+    k = 0
+    while k < len(fmt):
+        if fmt[k] == "%":
+            k += 1
+            while k < len(fmt) and fmt[k] in "-_0^#.:123456789":  # flags, widths, %.f, %:z
+                k += 1
+            k += 1  # the directive's letter (or the second % of %%)
+            continue
+        if fmt[k] in _SEPARATORS:
+            out.add(fmt[k])
+        k += 1
+    return out
+
+
+def _strptime(text: pl.Expr, fmt: str, dtype: type[pl.Date] | type[pl.Datetime]) -> pl.Expr:
+    """``text`` parsed by ``fmt``, null where it does not fit. Text lacking one of the format's separators
+    cannot fit, so it is left out before parsing (a cheap search, not a failed parse, for each value)."""
+    needed = sorted(_required_literals(fmt))
+    if needed:
+        text = pl.when(pl.all_horizontal([text.str.contains(c, literal=True) for c in needed])).then(text)
+    return text.str.strptime(dtype, fmt, strict=False)
 
 
 def to_date(text: pl.Expr, fmt: str | None, *, typed: bool = False) -> pl.Expr:
@@ -59,7 +83,12 @@ def to_date(text: pl.Expr, fmt: str | None, *, typed: bool = False) -> pl.Expr:
 
     ``typed`` says ``text`` already holds dates (a Parquet date column): only the range applies.
     """
-    value = text if typed else pl.coalesce(_date_tries(text, fmt))
+    if typed:
+        value = text
+    else:
+        tries = [_strptime(text, f, pl.Date) for f in dict.fromkeys((fmt, "%Y-%m-%d")) if f]
+        tries.append(_strptime(text, "%Y-%m-%d %H:%M:%S", pl.Datetime).dt.date())
+        value = pl.coalesce(tries)
     return pl.when(value.is_between(pl.lit(EARLIEST), pl.lit(LATEST))).then(value).otherwise(None)
 
 
