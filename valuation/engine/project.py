@@ -26,6 +26,7 @@ import numpy as np
 import polars as pl
 from numpy.typing import NDArray
 
+from valuation.basis.model import Basis
 from valuation.engine.benefits import LUMP_BENEFITS, PENSION_BENEFITS, RULES, BenefitRule
 from valuation.engine.benefits.base import BenefitContext, Leg, Members
 from valuation.engine.benefits.reversion import SPOUSE_AGE_COLUMN
@@ -124,7 +125,7 @@ def _sum_optional(arrays: list[NDArray[np.float64] | None]) -> NDArray[np.float6
 AGE_COLUMN = "_age_at_valuation"
 
 
-def with_ages(records: pl.DataFrame, basis: Any) -> pl.DataFrame:
+def with_ages(records: pl.DataFrame, basis: Basis) -> pl.DataFrame:
     """Add the member's and the known spouse's age at the valuation date [years] under the basis's
     age convention, so that every scenario's valuer reuses them."""
     at = np.datetime64(basis.valuation_date, "D")
@@ -147,7 +148,7 @@ class Valuer:
     """Builds the context for one scenario and values frames of member records under it."""
 
     def __init__(
-        self, basis: Any, scenario: Scenario = BASE, base_multiplier: float = 1.0, *,
+        self, basis: Basis, scenario: Scenario = BASE, base_multiplier: float = 1.0, *,
         survival_of: Valuer | None = None,
     ) -> None:
         """``survival_of``: a valuer on the same basis whose survival this scenario keeps (it changes no
@@ -186,7 +187,8 @@ class Valuer:
         # survival rows: every (group, sex) over every cohort alive
         self.mort_ids = {(g, s): i for i, (g, s) in enumerate((g, s) for g in GROUPS for s in SEXES)}
         self.mrows: MortalityRows
-        if survival_of is not None and not scenario.changes_mortality:
+        shared = survival_of is not None and not scenario.changes_mortality
+        if survival_of is not None and shared:
             self.mrows = survival_of.mrows
         else:
             bases = [mortality_for(basis, g, s, scenario, base_multiplier) for (g, s) in self.mort_ids]
@@ -196,8 +198,11 @@ class Valuer:
             basis=basis, ctx=self.ctx, mrows=self.mrows, tranches=self.tranches,
             valuation_date=self.valuation_date, year=self.year, increase=self.increase,
             first_increase=self.first_increase, revalue=self.revalue, mort_ids=self.mort_ids,
-            survival_key=f"survival {id(self.mrows)}",
         )
+        if survival_of is not None and shared:
+            if survival_of.bc.survival_key is None:
+                survival_of.bc.survival_key = f"survival {id(self.mrows)}"
+            self.bc.survival_key = survival_of.bc.survival_key
 
     # ------------------------------------------------------------------ main
     def prepare(self, records: pl.DataFrame) -> Prepared:
@@ -273,12 +278,11 @@ class Valuer:
 
     def _value_rule(self, rule: BenefitRule, shared: Members) -> Projection:
         bc = self.bc
-        key = bc.survival_key
-        lx0 = shared.once(f"{key} lx0", lambda: bc.l(shared.rows_x, shared.x0))
+        lx0 = shared.for_survival(bc, "lx0", lambda: bc.l(shared.rows_x, shared.x0))
         m = dataclasses.replace(shared, lx0=lx0)  # the cache stays shared
         N, J = m.n, len(self.tranches)
         # expected deaths in the next year
-        q_next = m.once(f"{key} q_next", lambda: 1.0 - bc.l(m.rows_x, m.x0 + 1.0) / lx0)
+        q_next = m.for_survival(bc, "q_next", lambda: 1.0 - bc.l(m.rows_x, m.x0 + 1.0) / lx0)
         terms = rule.terms(bc, m)
         cash = np.zeros(self.ctx.months)
         lumps: dict[Benefit, NDArray[np.float64]] = {}

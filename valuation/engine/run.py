@@ -22,6 +22,7 @@ import numpy as np
 import polars as pl
 
 from valuation import __version__
+from valuation.basis.model import Basis
 from valuation.discounting import (
     effective_duration,
     macaulay_duration,
@@ -56,7 +57,7 @@ def _chunks(records: pl.DataFrame, size: int) -> Iterable[pl.DataFrame]:
 
 
 def project_records(
-    records: pl.DataFrame, basis: Any, scenario: Scenario = BASE, *, base_multiplier: float = 1.0,
+    records: pl.DataFrame, basis: Basis, scenario: Scenario = BASE, *, base_multiplier: float = 1.0,
     chunk_size: int = DEFAULT_CHUNK,
 ) -> Projection:
     """Value ``records`` under one scenario, chunk by chunk, and join the per-member values."""
@@ -171,7 +172,7 @@ def _by(frame: pl.DataFrame, col: str, keys: Iterable[str]) -> dict[str, float]:
     return out
 
 
-def _assumptions_summary(basis: Any) -> dict[str, Any]:
+def _assumptions_summary(basis: Basis) -> dict[str, Any]:
     out: dict[str, Any] = {}
     for name, fn in (("discount", basis.discount_curve), ("inflation", basis.inflation_curve)):
         curve = fn()
@@ -191,7 +192,7 @@ def _assumptions_summary(basis: Any) -> dict[str, Any]:
     return out
 
 
-def life_expectancies(basis: Any) -> pl.DataFrame:
+def life_expectancies(basis: Basis) -> pl.DataFrame:
     """Cohort expectancy at 65 for members aged 65 and 45 now, and period expectancy at 65, by sex.
 
     Uses the pensioner mortality of each sex (common practice for disclosures).
@@ -218,7 +219,7 @@ class RunAccumulator:
 
     def __init__(
         self,
-        basis: Any,
+        basis: Basis,
         *,
         q_multiplier: float = 1.0,
         sensitivities: bool = True,

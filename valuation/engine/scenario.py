@@ -17,10 +17,11 @@ from typing import Any
 import numpy as np
 from scipy.optimize import brentq
 
+from valuation.basis.model import Basis
 from valuation.discounting import RateCurve
 from valuation.expectancy import complete_expectancy
 from valuation.mortality.basis import MortalityBasis
-from valuation.vocabulary import SEXES
+from valuation.vocabulary import SEXES, Group, Sex
 
 
 @dataclass(frozen=True)
@@ -59,7 +60,9 @@ def _long_term_rate(scale: Any) -> float:
     return 0.0
 
 
-def mortality_for(basis: Any, group: str, sex: str, scenario: Scenario, base_multiplier: float = 1.0) -> MortalityBasis:
+def mortality_for(
+    basis: Basis, group: Group, sex: Sex, scenario: Scenario, base_multiplier: float = 1.0,
+) -> MortalityBasis:
     """The basis's mortality for (group, sex) with the scenario's changes applied."""
     mb: MortalityBasis = basis.mortality(group, sex)
     changes: dict[str, Any] = {}
@@ -72,7 +75,7 @@ def mortality_for(basis: Any, group: str, sex: str, scenario: Scenario, base_mul
     return dataclasses.replace(mb, **changes) if changes else mb
 
 
-def curves(basis: Any, scenario: Scenario) -> tuple[RateCurve, RateCurve, float]:
+def curves(basis: Basis, scenario: Scenario) -> tuple[RateCurve, RateCurve, float]:
     """Discount curve, inflation curve and salary growth [per annum] under the scenario."""
     disc = basis.discount_curve()
     infl = basis.inflation_curve()
@@ -108,7 +111,7 @@ def period_expectancy_at(mb: MortalityBasis, year: int, at_age: float, fractiona
     return float(complete_expectancy(q_rows, np.array([0]), np.array([float(at_age)]), fractional)[0])  # type: ignore[arg-type]
 
 
-def life_expectancy_scenario(basis: Any, valuation_year: int, years: float, name: str, fractional: str) -> Scenario:
+def life_expectancy_scenario(basis: Basis, valuation_year: int, years: float, name: str, fractional: str) -> Scenario:
     """The scenario that adds ``years`` to cohort life expectancy at 65 for a pensioner aged 65 now.
 
     A multiplier on q is solved for each sex (scipy's brentq) so that the cohort expectancy at 65 rises by
@@ -128,7 +131,7 @@ def life_expectancy_scenario(basis: Any, valuation_year: int, years: float, name
     return Scenario(name=name, kind="life_expectancy", shift=years, q_multiplier=tuple(mults))
 
 
-def scenarios_from_basis(basis: Any, valuation_year: int) -> list[Scenario]:
+def scenarios_from_basis(basis: Basis, valuation_year: int) -> list[Scenario]:
     """One scenario for each sensitivity the basis names."""
     out: list[Scenario] = []
     for s in basis.sensitivities:

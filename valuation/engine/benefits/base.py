@@ -30,6 +30,7 @@ import numpy as np
 import polars as pl
 from numpy.typing import NDArray
 
+from valuation.basis.model import Basis
 from valuation.engine.context import Context, MortalityRows
 from valuation.engine.legs import Exits
 from valuation.survival import lx_at
@@ -46,7 +47,7 @@ MEMBER_PENSION: Benefit = "member_pension"
 class BenefitContext:
     """Everything a rule needs that does not depend on the member, under one scenario."""
 
-    basis: Any
+    basis: Basis
     ctx: Context
     mrows: MortalityRows
     tranches: list[str]
@@ -56,8 +57,9 @@ class BenefitContext:
     first_increase: NDArray[np.float64] | None  # (J, M) first-increase factor per start month; None: full
     revalue: NDArray[np.float64]  # (J, M) revaluation index in deferment per tranche
     mort_ids: dict[tuple[Group, Sex], int]
-    #: names the survival in use: what depends on survival alone is kept under it (``Members.once``)
-    survival_key: str = "survival"
+    #: names the survival in use when several scenarios share it: what depends on survival alone is then
+    #: kept under it for all of them (:meth:`Members.for_survival`); None: not shared, nothing kept
+    survival_key: str | None = None
 
     def rows(self, group: Group | NDArray, sex: NDArray, age: NDArray[np.float64]) -> NDArray[np.int64]:
         """Survival row of each life: the (group, sex) mortality for the cohort of its age now."""
@@ -110,6 +112,10 @@ class Members:
         if name not in self.cache:
             self.cache[name] = make()
         return self.cache[name]  # type: ignore[no-any-return]
+
+    def for_survival(self, bc: BenefitContext, name: str, make: Callable[[], T]) -> T:
+        """``make()`` for what depends on the survival in use alone: kept for the scenarios sharing it."""
+        return make() if bc.survival_key is None else self.once(f"{bc.survival_key} {name}", make)
 
     def column(self, name: str, fill: float | None = None) -> NDArray[np.float64] | None:
         """A numeric column as floats (nulls as ``fill``, or NaN), or None where the frame lacks it."""

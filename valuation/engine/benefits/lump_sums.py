@@ -47,7 +47,7 @@ def commutation(bc: BenefitContext, m: Members, terms: PensionTerms) -> Lump | N
         return None
     ctx, start = bc.ctx, terms.start
     pens_at_ret = (terms.base * terms.at_start_full).sum(axis=1)
-    surv = m.once(f"{bc.survival_key} to retirement", lambda: bc.l(m.rows_x, m.x0 + start / 12.0) / m.lx0)
+    surv = m.for_survival(bc, "to retirement", lambda: bc.l(m.rows_x, m.x0 + start / 12.0) / m.lx0)
     amount = comm.proportion * pens_at_ret * comm.factor * surv
     cash = np.bincount(start, weights=amount, minlength=ctx.months)[: ctx.months].astype(np.float64)
     return Lump(BENEFIT, pv=amount * ctx.v[start], cashflow=cash, earned_with_pension=True)
@@ -89,7 +89,7 @@ def death_in_service(bc: BenefitContext, m: Members, years: YearsInService) -> L
         return None
     ctx = bc.ctx
     mid, g = years.mid, years.salary_growth
-    lk = m.once(f"{bc.survival_key} in service",
+    lk = m.for_survival(bc, "in service",
                 lambda: bc.l(years.rows[:, None], years.x0[:, None] + np.arange(n_int + 1)[None, :]))
     lk0 = lk[:, :1]
     # expected payment per unit of salary in year i, in service and dying then (key level)
