@@ -37,7 +37,7 @@ from datetime import date
 import polars as pl
 
 from valuation.basis.rules import Thresholds
-from valuation.members.parse import parsed
+from valuation.members.parse import as_float, parsed
 from valuation.vocabulary import PAID_STATUSES
 
 TOLERANCE = 0.01  # [currency p.a.]: tranches must sum to the pension within a cent
@@ -85,12 +85,13 @@ def _fmt(template: str, *args: pl.Expr) -> pl.Expr:
 
 def _not_finite(col: str) -> pl.Expr:
     """Text that reads as a number but not a finite one: ``inf``, ``nan``, ``1e400`` (beyond a double)."""
-    value = pl.col(col).cast(pl.Float64, strict=False)
-    return pl.col(col).is_not_null() & value.is_not_null() & ~value.is_finite()
+    value = pl.col(as_float(col))
+    return value.is_not_null() & ~value.is_finite()
 
 
 def _bad_number(col: str) -> pl.Expr:
-    return pl.col(col).is_not_null() & _v(col).is_null() & ~_not_finite(col)
+    """Text that does not read as a number at all."""
+    return pl.col(col).is_not_null() & pl.col(as_float(col)).is_null()
 
 
 def _number_checks(col: str, what: str, low: float | None = 0.0, high: float | None = None) -> list[Check]:
@@ -137,7 +138,8 @@ def build_checks(
 
     Notes
     -----
-    The frame they run on carries helper columns: ``_dup`` (the member id is written more than once in
+    The frame they run on carries helper columns: ``<column>__f`` (each number column read as a double,
+    :func:`~valuation.members.parse.as_float`), ``_dup`` (the member id is written more than once in
     the file), and, on the rows that fail a check, ``_dup_n`` / ``_dup_rows`` (its copies and their rows),
     ``_age`` / ``_closing`` (age in whole years and the table's closing age), ``_exact_age`` [years],
     ``_sp_age`` / ``_sp_closing`` / ``_sp_exact_age`` (the same for a known spouse), ``_tr_given`` /

@@ -97,7 +97,18 @@ def parse_date(col: str, fmt: str | None, *, typed: bool = False) -> pl.Expr:
     return to_date(pl.col(col), fmt, typed=typed).alias(parsed(col))
 
 
+def as_float(col: str) -> str:
+    """Name of a raw column read as a double, finite or not (``inf``, ``NaN``, ``1e400``), null where it is
+    not a number: the column :func:`parse_number` and the number checks read."""
+    return f"{col}__f"
+
+
+def to_float(col: str) -> pl.Expr:
+    """The column :func:`as_float` names."""
+    return pl.col(col).cast(pl.Float64, strict=False).alias(as_float(col))
+
+
 def parse_number(col: str) -> pl.Expr:
-    """Parse a decimal number; text, NaN and infinities give null."""
-    value = pl.col(col).cast(pl.Float64, strict=False)
+    """Parse a decimal number (from the :func:`as_float` column); text, NaN and infinities give null."""
+    value = pl.col(as_float(col))
     return pl.when(value.is_finite()).then(value).otherwise(None).alias(parsed(col))

@@ -34,6 +34,7 @@ from valuation.members.parse import (
     parse_date,
     parse_number,
     parsed,
+    to_float,
 )
 from valuation.members.readers import as_written
 from valuation.members.schema import (
@@ -235,7 +236,8 @@ def _plan(
     source, typed = _source(raw, wanted)
     m = basis.mapping
     src = raw.lazy().select(source).with_row_index("row", offset=first_row).with_columns(
-        pl.col("row").cast(pl.Int64)).collect().lazy()  # held once: both passes below read it
+        pl.col("row").cast(pl.Int64), *(to_float(c) for c in [*NUMERIC_COLUMNS, *tranche_cols]),
+    ).collect().lazy()  # held once: both passes below read it
     # the distinct codes, and the ids written more than once: short lists, found before the main pass
     pre = src.select(pl.col("status").unique().implode(), pl.col("sex").unique().implode(),
                      _repeated(pl.col("member_id")).alias("member_id")).collect()
