@@ -22,7 +22,7 @@ import pyarrow.parquet as pq
 
 from valuation.engine.results import ValuationResult
 from valuation.engine.run import DEFAULT_CHUNK, Progress, RunAccumulator, input_hashes
-from valuation.members.data import CheckedFrame, MemberData, file_duplicates, iter_checked, sum_counts
+from valuation.members.data import CheckedFrame, MemberData, file_duplicates, iter_checked
 from valuation.members.readers import DEFAULT_FORMAT, InputFormat, file_kind
 
 
@@ -123,7 +123,6 @@ def value_file_streaming(
     acc = RunAccumulator(basis, sensitivities=sensitivities, member_sink=sink if sink is not None else _discard)
     counts: list[pl.DataFrame] = []
     exceptions: list[pl.DataFrame] = []
-    read = valued = 0
     ignored: list[str] = []
     try:
         if kind == "xlsx":  # a workbook is read whole (one chunk), and valued in chunks below
@@ -139,8 +138,6 @@ def value_file_streaming(
             n_chunks = max(1, -(-n_records // chunk_rows)) if n_records is not None else None
         done = 0
         for checked in chunks:
-            read += checked.read
-            valued += checked.records.height
             counts.append(checked.counts)
             exceptions.append(checked.exceptions)
             ignored = checked.ignored_columns
@@ -154,11 +151,7 @@ def value_file_streaming(
     finally:
         if sink is not None:
             sink.close()
-    data = MemberData(
-        path=p, records=pl.DataFrame(), exceptions=pl.concat(exceptions),
-        read=read, valued=valued, excluded=read - valued, ignored_columns=ignored,
-        _status_counts=sum_counts(counts),
-    )
+    data = MemberData.without_records(p, exceptions=exceptions, counts=counts, ignored_columns=ignored)
     result = acc.finish(
         read=data.read, valued=data.valued, excluded=data.excluded, counts=data.counts_by_status(),
         exceptions=data.exceptions, inputs=input_hashes([p, basis.source_path]), started=started,

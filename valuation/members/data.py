@@ -65,6 +65,18 @@ class MemberData:
     #: SHA-256 of the records as given, for records that came from a data frame rather than a file.
     digest: str | None = None
 
+    @classmethod
+    def without_records(
+        cls, path: str | Path, *, exceptions: list[pl.DataFrame], counts: list[pl.DataFrame],
+        ignored_columns: list[str],
+    ) -> MemberData:
+        """The exceptions and counts of a file whose chunks were valued as they were read (streaming):
+        ``records`` is empty; read, valued and excluded are the chunks' counts added up."""
+        total = sum_counts(counts)
+        read, valued = int(total.get_column("read").sum()), int(total.get_column("valued").sum())
+        return cls(path=Path(path), records=pl.DataFrame(), exceptions=pl.concat(exceptions), read=read,
+                   valued=valued, excluded=read - valued, ignored_columns=ignored_columns, _status_counts=total)
+
     def counts_by_status(self) -> pl.DataFrame:
         """Records read, valued and excluded by status, with a ``total`` row last.
 
