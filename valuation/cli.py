@@ -282,6 +282,11 @@ def cmd_check(args: argparse.Namespace) -> int:
         with atomic_file(args.exceptions, overwrite=args.overwrite, inputs=[args.basis, args.members]) as tmp:
             write_csv(data.exceptions, tmp)
         _say(args, f"exceptions written to {args.exceptions}")
+    # the verdict `valuation run` would reach on this file: nothing to value (3), too many exclusions (4)
+    from valuation.engine.gate import check_exclusions
+
+    check_exclusions(read=data.read, valued=data.valued, excluded=data.excluded, path=data.path,
+                     max_share=basis.thresholds.max_excluded_share, accept=args.accept_exclusions)
     return EXIT_OK
 
 
@@ -433,6 +438,8 @@ def build_parser() -> argparse.ArgumentParser:
     c.add_argument("members", type=existing_file, help="member data file (CSV, XLSX or Parquet)")
     c.add_argument("--exceptions", help="write the exceptions list to this new CSV file")
     _overwrite(c, "an existing --exceptions file")
+    c.add_argument("--accept-exclusions", action="store_true",
+                   help="exit 0 even when more records are excluded than the basis allows (as run would accept)")
     _format_options(c)
     common(c)
     c.set_defaults(parser=c, func=cmd_check)
