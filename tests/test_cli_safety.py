@@ -273,6 +273,7 @@ WRONG = [
     (["run", "{basis}", "{members}", "--stream", "--deaths", "{deaths}", "--start-members", "{start}",
       "--period-start", "2022-03-31", "--period-end", "2025-03-31"], 2, "--stream"),
     (["run", "{basis}", "{members}", "--bogus"], 2, "--bogus"),
+    (["run", "{basis}", "{members}", "--out", ""], 2, "empty path"),
     (["run", "{basis}", "{members}", "--chunk-size", "99999999999999999999"], 2, "--chunk-size"),
     (["run", "{basis}", "{members}", "--encoding", "rot13"], 2, "not a text encoding"),
     (["run", "{basis}", "{members}", "--encoding", "klingon"], 2, "not a known text encoding"),
@@ -483,3 +484,10 @@ def test_experience_with_no_exposure_is_an_input_error_and_writes_nothing(tmp_pa
     err = capsys.readouterr().err
     assert code == 3 and ("no exposure" in err or "no member records" in err) and "Traceback" not in err
     assert not out.exists()
+
+
+def test_a_failed_run_removes_the_folders_it_made(tmp_path, capsys):
+    """Folders the tool made above --out are removed again when the run fails (here: too many exclusions)."""
+    out = tmp_path / "new" / "deeper" / "run"
+    assert main(["run", str(BASIS), str(DIRTY), "--out", str(out), *QUICK]) == 4
+    assert not (tmp_path / "new").exists()

@@ -67,6 +67,13 @@ positive_float = _number(float, "a number above 0", lambda v: 0 < v < float("inf
 non_negative_float = _number(float, "a number of 0 or more", lambda v: 0 <= v < float("inf"))
 
 
+def new_path(text: str) -> str:
+    """An output path: not empty."""
+    if not text.strip():
+        raise argparse.ArgumentTypeError("an empty path; give a folder or file name")
+    return text
+
+
 def existing_file(text: str) -> Path:
     """A path to an input file that exists."""
     p = Path(text)
@@ -409,7 +416,7 @@ def build_parser() -> argparse.ArgumentParser:
         """) + EPILOG_EXIT)
     r.add_argument("basis", type=existing_file, help="assumptions basis (TOML)")
     r.add_argument("members", type=existing_file, help="member data file (CSV, XLSX or Parquet)")
-    r.add_argument("--out", help="run folder to write: new, empty, or a previous run with --overwrite "
+    r.add_argument("--out", type=new_path, help="run folder to write: new, empty, or a previous run with --overwrite "
                                  "(default: outputs/<member file name>-<valuation date>, never an existing folder)")
     _overwrite(r, "the previous run in --out (only a folder this tool wrote, holding nothing else)")
     r.add_argument("--no-sensitivities", action="store_true", help="skip the sensitivity re-valuations")
@@ -436,7 +443,7 @@ def build_parser() -> argparse.ArgumentParser:
                               " --exceptions exceptions.csv\n" + EPILOG_EXIT)
     c.add_argument("basis", type=existing_file, help="assumptions basis (TOML)")
     c.add_argument("members", type=existing_file, help="member data file (CSV, XLSX or Parquet)")
-    c.add_argument("--exceptions", help="write the exceptions list to this new CSV file")
+    c.add_argument("--exceptions", type=new_path, help="write the exceptions list to this new CSV file")
     _overwrite(c, "an existing --exceptions file")
     c.add_argument("--accept-exclusions", action="store_true",
                    help="exit 0 even when more records are excluded than the basis allows (as run would accept)")
@@ -447,7 +454,7 @@ def build_parser() -> argparse.ArgumentParser:
     b = sub.add_parser("batch", help="run every valuation listed in a batch file", formatter_class=fmt,
                        epilog="example:\n  valuation batch assumptions/demo_batch.toml\n" + EPILOG_EXIT)
     b.add_argument("batch", type=existing_file, help="batch file (TOML) listing runs")
-    b.add_argument("--out", help="folder for the run folders and the index (default: the batch file's `out`); "
+    b.add_argument("--out", type=new_path, help="folder for the run folders and the index (default: the batch file's `out`); "
                                  "new, empty, or a previous batch with --overwrite")
     _overwrite(b, "a previous batch in the output folder")
     b.add_argument("--accept-exclusions", action="store_true",
@@ -462,7 +469,7 @@ def build_parser() -> argparse.ArgumentParser:
     s.add_argument("--seed", type=non_negative_int, default=1, help="random seed, 0 or more (same seed, same file)")
     s.add_argument("--valuation-date", type=iso_date, default=date(2026, 12, 31),
                    help="ISO date YYYY-MM-DD the ages refer to (default 2026-12-31)")
-    s.add_argument("--out", required=True, help="new output file: .csv, .parquet or .xlsx")
+    s.add_argument("--out", type=new_path, required=True, help="new output file: .csv, .parquet or .xlsx")
     _overwrite(s, "an existing --out file")
     common(s)
     s.set_defaults(parser=s, func=cmd_synth)
@@ -484,7 +491,7 @@ def build_parser() -> argparse.ArgumentParser:
     e.add_argument("--valuation-members", type=existing_file,
                    help="member data at the valuation date, to re-value at the implied table")
     _experience_options(e)
-    e.add_argument("--out", help="folder to write: new, empty, or a previous one with --overwrite "
+    e.add_argument("--out", type=new_path, help="folder to write: new, empty, or a previous one with --overwrite "
                                  "(default: outputs/experience-<period end>, never an existing folder)")
     _overwrite(e, "a previous experience folder in --out")
     e.add_argument("--accept-exclusions", action="store_true",
@@ -499,7 +506,7 @@ def build_parser() -> argparse.ArgumentParser:
         """) + EPILOG_EXIT)
     t.add_argument("file", type=existing_file, help="table file: XTbML (.xml), CSV or XLSX")
     t.add_argument("--name", help="only this table of a file with several (as listed)")
-    t.add_argument("--chart", help="also draw the table's rates by age to this new PNG file")
+    t.add_argument("--chart", type=new_path, help="also draw the table's rates by age to this new PNG file")
     _overwrite(t, "an existing --chart file")
     common(t)
     t.set_defaults(parser=t, func=cmd_table)

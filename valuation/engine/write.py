@@ -210,15 +210,37 @@ def check_output_file(target: str | Path, *, overwrite: bool = False, inputs: It
     _writable_parent(target)
 
 
+def _make_parents(target: Path) -> list[Path]:
+    """Create the folders above ``target`` that are missing; return them, deepest first, so that a failed
+    run can remove what it made."""
+    made = []
+    parent = target.parent
+    while not parent.exists():
+        made.append(parent)
+        parent = parent.parent
+    target.parent.mkdir(parents=True, exist_ok=True)
+    return made
+
+
+def _remove_made(made: list[Path]) -> None:
+    """Remove the folders a failed run made, deepest first, as long as they are empty."""
+    for folder in made:
+        try:
+            folder.rmdir()
+        except OSError:
+            break
+
+
 @contextmanager
 def atomic_file(target: str | Path, *, overwrite: bool = False, inputs: Iterable[str | Path] = ()) -> Iterator[Path]:
     """Yield a temporary path beside ``target`` that is renamed onto it when the block succeeds."""
     target = Path(os.path.abspath(target))
     check_output_file(target, overwrite=overwrite, inputs=inputs)
-    target.parent.mkdir(parents=True, exist_ok=True)
+    made = _make_parents(target)
     fd, name = tempfile.mkstemp(prefix=f"{target.stem}.incomplete-", suffix=target.suffix, dir=target.parent)
     os.close(fd)
     tmp = Path(name)
+    done = False
     try:
         yield tmp
         if target.exists() and not overwrite:  # appeared while we were working
@@ -228,8 +250,11 @@ def atomic_file(target: str | Path, *, overwrite: bool = False, inputs: Iterable
         os.umask(umask)
         os.chmod(tmp, 0o666 & ~umask)  # as an ordinary new file (mkstemp makes it private)
         os.replace(tmp, target)
+        done = True
     finally:
         tmp.unlink(missing_ok=True)
+        if not done:
+            _remove_made(made)
 
 
 # ----------------------------------------------------------------------------------------------------
@@ -259,7 +284,7 @@ def atomic_folder(
     """
     target = Path(os.path.abspath(target))
     check_output_folder(target, overwrite=overwrite, inputs=inputs)
-    target.parent.mkdir(parents=True, exist_ok=True)
+    made = _make_parents(target)
     held = {signal.SIGINT, signal.SIGTERM}
     # Hold SIGINT/SIGTERM while the folder is created, so a signal cannot land between its creation and
     # the cleanup handler below; it is delivered as soon as the handler is in place.
@@ -272,6 +297,7 @@ def atomic_folder(
         (tmp / _WRITING).touch()
     except BaseException:
         signal.pthread_sigmask(signal.SIG_SETMASK, previous)
+        _remove_made(made)
         raise
     try:
         # a signal held until now is delivered here, inside the block that removes the folder
@@ -281,6 +307,7 @@ def atomic_folder(
         (tmp / _WRITING).unlink()
     except BaseException:
         shutil.rmtree(tmp, ignore_errors=True)
+        _remove_made(made)
         raise
     # The swap itself runs with signals held: it either happens whole or not at all.
     previous = signal.pthread_sigmask(signal.SIG_BLOCK, held)
