@@ -486,8 +486,14 @@ def test_experience_with_no_exposure_is_an_input_error_and_writes_nothing(tmp_pa
     assert not out.exists()
 
 
-def test_a_failed_run_removes_the_folders_it_made(tmp_path, capsys):
-    """Folders the tool made above --out are removed again when the run fails (here: too many exclusions)."""
+def test_a_failed_run_removes_the_folders_it_made(tmp_path, monkeypatch):
+    """Folders the tool made above --out are removed again when writing fails."""
+    small = _small_scheme(tmp_path)
+
+    def broken(*args, **kwargs):
+        raise OSError(28, "No space left on device", "cashflows.csv")
+
+    monkeypatch.setattr("valuation.engine.write.write_tables", broken)
     out = tmp_path / "new" / "deeper" / "run"
-    assert main(["run", str(BASIS), str(DIRTY), "--out", str(out), *QUICK]) == 4
+    assert main(["run", str(BASIS), str(small), "--out", str(out), *QUICK]) == 3
     assert not (tmp_path / "new").exists()
