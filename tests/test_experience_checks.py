@@ -219,3 +219,17 @@ def test_unreadable_event_files_say_what_to_do(tmp_path: Path, name: str, conten
     msg = str(info.value)
     assert msg.startswith(str(path)) and text in msg and fix in msg
     assert msg.count("(fix:") == 1 and "Error" not in msg and "polars" not in msg.lower()
+
+
+def test_a_pension_at_death_that_is_not_finite_is_listed_and_not_used(tmp_path) -> None:
+    """1e400 overflows a double to infinity (IEEE 754): it is no amount, so the record's pension is used and
+    the row is listed, rather than turning A/E by amounts into NaN."""
+    from datetime import date
+
+    from valuation.experience.events import read_events
+
+    path = tmp_path / "deaths.csv"
+    path.write_text("member_id,date_of_death,pension_at_death\nA1,2023-01-01,1e400\nA2,2023-02-01,inf\n")
+    df = read_events(path, "deaths")
+    assert df["pension_at_death"].to_list() == [None, None]
+    assert date(2023, 1, 1) in df["date"].to_list()

@@ -156,10 +156,7 @@ def read_events_with_headers(
         ),
     )
     if kind == "deaths":
-        out = out.with_columns(
-            pl.col("pension_text")
-            .str.replace_all(",", "")
-            .cast(pl.Float64, strict=False)
-            .alias("pension_at_death")
-        )
+        amount = pl.col("pension_text").str.replace_all(",", "").cast(pl.Float64, strict=False)
+        # inf, nan and 1e400 are no amounts: null, so the check lists them and the record's pension is used
+        out = out.with_columns(pl.when(amount.is_finite()).then(amount).otherwise(None).alias("pension_at_death"))
     return out, headers
