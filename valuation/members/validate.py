@@ -170,10 +170,13 @@ def _recode(col: str, written: pl.Series, table: dict[str, str], ours: tuple[str
             pl.lit(pl.Series([None if c is None else ours.index(c) for c in codes], dtype=pl.Int64)).gather(where))
 
 
-def _repeated(ids: pl.Expr) -> pl.Expr:
-    """The distinct ids written more than once (sorted, compared with their neighbours), as one list."""
-    s = ids.drop_nulls().sort()
-    return s.filter((s == s.shift(1)).fill_null(False) | (s == s.shift(-1)).fill_null(False)).unique().implode()
+def _repeated(ids: pl.Series) -> pl.Series:
+    """The distinct ids written more than once: sorted (unless they already are, as an administrator's
+    extract often is) and compared with their neighbours."""
+    s = ids.drop_nulls()
+    if not s.is_sorted():
+        s = s.sort()
+    return s.filter((s == s.shift(1)).fill_null(False) | (s == s.shift(-1)).fill_null(False)).unique()
 
 
 def _typed(dtype: pl.DataType, column: str) -> bool:
@@ -235,18 +238,17 @@ def _plan(
     wanted = [*REQUIRED, *DATE_COLUMNS[1:], *NUMERIC_COLUMNS, *tranche_cols]
     source, typed = _source(raw, wanted)
     m = basis.mapping
-    src = raw.lazy().select(source).with_row_index("row", offset=first_row).with_columns(
+    held = raw.lazy().select(source).with_row_index("row", offset=first_row).with_columns(
         pl.col("row").cast(pl.Int64), *(to_float(c) for c in [*NUMERIC_COLUMNS, *tranche_cols]),
-    ).collect().lazy()  # held once: both passes below read it
+    ).collect()  # held once: the short pass and the main pass below read it
     # the distinct codes, and the ids written more than once: short lists, found before the main pass
-    pre = src.select(pl.col("status").unique().implode(), pl.col("sex").unique().implode(),
-                     _repeated(pl.col("member_id")).alias("member_id")).collect()
-    repeated = pre.get_column("member_id")[0] if duplicates is None else duplicates.get_column("member_id")
-    status, status_k = _recode("status", pre.get_column("status")[0], code_lookup(m.status_codes, STATUSES), STATUSES)
-    sex, sex_k = _recode("sex", pre.get_column("sex")[0], code_lookup(m.sex_codes, SEXES), SEXES)
+    repeated = _repeated(held.get_column("member_id")) if duplicates is None else duplicates.get_column("member_id")
+    status, status_k = _recode("status", held.get_column("status").unique(), code_lookup(m.status_codes, STATUSES),
+                               STATUSES)
+    sex, sex_k = _recode("sex", held.get_column("sex").unique(), code_lookup(m.sex_codes, SEXES), SEXES)
     closing, sp_closing = _closing(basis, status_k, sex_k)
-    lf = src.with_columns(
-        pl.col("member_id").alias(parsed("member_id")), status, sex,
+    lf = held.lazy().with_columns(
+        pl.col("member_id").alias(parsed("member_id")), status, sex, status_k.alias("_status_k"),
         *(parse_number(c) for c in [*NUMERIC_COLUMNS, *tranche_cols]),
         *(parse_date(c, m.date_format, typed=typed[c]) for c in DATE_COLUMNS),
         pl.col("member_id").is_in(repeated.implode()).alias("_dup"),
@@ -415,12 +417,13 @@ def validate_frame(
     # every copy of a repeated id fails, so the failing rows give the copies unless the whole file's are given
     dups = duplicate_ids(failed.filter(pl.col("_dup"))) if duplicates is None else duplicates
     failed = failed.join(dups, on="member_id", how="left", maintain_order="left")
-    status_label = pl.col(parsed("status")).fill_null(UNKNOWN_STATUS)
+    labels = pl.Series([*STATUSES, UNKNOWN_STATUS], dtype=pl.String)
     records, counts, exceptions = pl.collect_all([
         _records(df.lazy(), basis, tranche_cols, all_tranches),
-        df.lazy().group_by(status_label.alias("status"))
+        df.lazy().group_by(pl.col("_status_k").fill_null(len(STATUSES)))  # by position: no strings hashed
         .agg(read=pl.len(), valued=(~pl.col("_excluded")).sum(), excluded=pl.col("_excluded").sum())
-        .with_columns(pl.col("read", "valued", "excluded").cast(pl.Int64)),
+        .select(pl.lit(labels).gather(pl.col("_status_k")).alias("status"),
+                pl.col("read", "valued", "excluded").cast(pl.Int64)),
         _exceptions(failed, checks, path, file_columns),
     ])
     if first_row == FIRST_ROW:
