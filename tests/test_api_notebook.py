@@ -51,7 +51,7 @@ def test_polars_and_pandas_frames_value_as_the_file(small, from_file):
     pandas_frame = pd.read_csv(small, dtype=str, keep_default_na=False).replace("", None)
     for members in (text, typed, pandas_frame):
         res = value_scheme(BASIS, members, sensitivities=False)
-        assert res.summary["records"] == from_file.summary["records"]
+        assert res.summary.records == from_file.summary.records
         assert res.total_liability == pytest.approx(from_file.total_liability, rel=1e-12)
 
 
@@ -69,7 +69,7 @@ def test_frame_input_is_in_the_manifest(small):
     basis = load_basis(BASIS)
     data = members_from_frame(pl.read_csv(small, infer_schema=False), basis, name="members from my notebook")
     res = value_members(basis, data, sensitivities=False)
-    inputs = res.summary["manifest"]["inputs"]
+    inputs = res.summary.manifest.inputs
     assert len(inputs["members from my notebook"]) == 64  # SHA-256 hex digest
     assert data.exceptions.height == 0 or set(data.exceptions["file"]) == {"members from my notebook"}
 

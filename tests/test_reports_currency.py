@@ -9,6 +9,7 @@ practice in reports for lay readers.
 from __future__ import annotations
 
 import shutil
+from dataclasses import replace
 from pathlib import Path
 
 import pytest
@@ -79,7 +80,8 @@ def test_money_in_prose_is_rounded_to_three_figures(value: float, words: str) ->
 
 def _with_currency(code: str | None):
     result = make_result()
-    result.summary["manifest"]["basis"]["currency"] = code
+    manifest = result.summary.manifest
+    result.summary = replace(result.summary, manifest=replace(manifest, basis={**manifest.basis, "currency": code}))
     return result
 
 

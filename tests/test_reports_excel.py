@@ -162,7 +162,7 @@ def test_basis_sheet_keeps_formula_like_basis_text(tmp_path: Path) -> None:
     result = make_result()
     ws = load_workbook(write_workbook(result, tmp_path / "b.xlsx"))["Basis"]
     cell = _find(ws, "name", 3)  # no basis file to read again: only the values as used
-    assert cell.value == result.summary["manifest"]["basis"]["name"] and cell.data_type == "s"
+    assert cell.value == result.summary.manifest.basis["name"] and cell.data_type == "s"
     assert _find(ws, "sensitivities[0].name", 3).value == "+0.5%"
 
 
@@ -266,7 +266,7 @@ def test_dates_are_date_cells(tmp_path: Path) -> None:
     experience = make_experience()
     path = write_workbook(result, tmp_path / "dates.xlsx", experience=experience)
     wb = load_workbook(path)
-    expected = date.fromisoformat(result.summary["valuation_date"])
+    expected = result.summary.valuation_date
     for sheet, label, day in [("Summary", "Valuation date", expected),
                               ("Experience", "Period start", experience.settings.period_start),
                               ("Experience", "Period end", experience.settings.period_end)]:
@@ -282,7 +282,7 @@ def test_dates_are_date_cells(tmp_path: Path) -> None:
 def test_manifest_start_time_stays_text(book) -> None:
     path, result = book
     cell = _find(load_workbook(path)["Manifest"], "started at")
-    assert cell.data_type == "s" and cell.value == result.summary["manifest"]["started_at"]
+    assert cell.data_type == "s" and cell.value == result.summary.manifest.started_at
 
 
 def _percent_cells(ws):

@@ -11,6 +11,7 @@ Filter Evasion Cheat Sheet).
 
 from __future__ import annotations
 
+from dataclasses import replace
 from datetime import date
 from functools import lru_cache
 from pathlib import Path
@@ -112,7 +113,8 @@ def make_result(n_members: int = 6) -> ValuationResult:
         "records": {"read": 12, "valued": 6, "excluded": 6,
                     "by_status": {"pensioner": {"read": 4, "valued": 2, "excluded": 2},
                                   "deferred": {"read": 4, "valued": 2, "excluded": 2},
-                                  "active": {"read": 4, "valued": 2, "excluded": 2}}},
+                                  "active": {"read": 4, "valued": 2, "excluded": 2}},
+                    "ignored_columns": []},
         "liability": {"total": total,
                       "by_status": {"pensioner": 410000.0, "dependant": 0.0, "deferred": 68000.0, "active": 30000.0},
                       "by_sex": {"M": 330000.0, "F": 178000.0},
@@ -121,6 +123,7 @@ def make_result(n_members: int = 6) -> ValuationResult:
                             "current_service_cost": 1500.0},
         "duration": {"macaulay": 14.237, "modified": 13.585, "effective": 13.6},
         "single_equivalent_discount_rate": 0.048,
+        "cashflow_present_value": total,
         "sensitivities": sens.to_dicts(),
         "life_expectancy": le.to_dicts(),
         "expected_deaths_next_year": {"lives": 0.06, "amounts": 650.0, "by_group": deaths.to_dicts()},
@@ -136,7 +139,8 @@ def make_result(n_members: int = 6) -> ValuationResult:
                                                       "improvement": {"kind": "constant", "rate": 0.01}}}},
                       "withdrawal": {"rates": [[18.0, 0.1], [30.0, 0.05]]},
                       "sensitivities": [{"name": "+0.5%", "kind": "discount_rate", "shift": 0.005}]},
-            "settings": {"sensitivities": True}, "started_at": "2025-04-01T09:00:00+00:00", "run_seconds": 0.5,
+            "settings": {"sensitivities": True, "q_multiplier": 1.0, "chunk_size": 1_000_000},
+            "ignored_columns": [], "started_at": "2025-04-01T09:00:00+00:00", "run_seconds": 0.5,
         },
     }
     return ValuationResult(summary=summary, liabilities=liabilities, cashflows=cashflows, members=members,
@@ -169,7 +173,9 @@ def make_empty_result() -> ValuationResult:
     r = make_result()
     for name in ("exceptions", "sensitivities", "cashflows", "members", "expected_deaths", "liabilities"):
         setattr(r, name, getattr(r, name).clear())
-    r.summary["liability"]["by_status"] = {k: 0.0 for k in r.summary["liability"]["by_status"]}
-    r.summary["duration"] = {"macaulay": None, "modified": None, "effective": None}
-    r.summary["single_equivalent_discount_rate"] = float("nan")
+    s = r.summary
+    nan = float("nan")
+    r.summary = replace(s, liability=replace(s.liability, by_status={k: 0.0 for k in s.liability.by_status}),
+                        duration=replace(s.duration, macaulay=nan, modified=nan, effective=nan),
+                        single_equivalent_discount_rate=nan)
     return r

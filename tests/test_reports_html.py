@@ -118,11 +118,11 @@ def test_headline_figures_equal_the_summary(page_text: str) -> None:
     """Each headline is the summary's number, formatted here independently of the library."""
     s = real_run()[0].summary
     values = parse(page_text).values
-    assert values["total_liability"] == f"{round(s['liability']['total']):,}"
-    assert values["duration"] == f"{s['duration']['macaulay']:.1f} years"
-    assert values["sedr"] == f"{100 * s['single_equivalent_discount_rate']:.2f}%"
-    assert values["members_valued"] == f"{s['records']['valued']:,}"
-    assert values["service_cost"] == f"{round(s['active_measures']['current_service_cost']):,}"
+    assert values["total_liability"] == f"{round(s.liability.total):,}"
+    assert values["duration"] == f"{s.duration.macaulay:.1f} years"
+    assert values["sedr"] == f"{100 * s.single_equivalent_discount_rate:.2f}%"
+    assert values["members_valued"] == f"{s.records.valued:,}"
+    assert values["service_cost"] == f"{round(s.active_measures.current_service_cost):,}"
 
 
 @pytest.mark.parametrize("which", ["page_text", "made_text"])
@@ -219,8 +219,8 @@ def test_data_section_counts_reasons_from_exceptions(page_text: str, probed: Val
     more = counts.height - TOP_REASONS
     text = words(parse(page_text))
     assert f"and {more} more kind{'s' if more > 1 else ''} of problem" in text
-    rec = probed.summary["records"]
-    assert f"{rec['read']} records were read: {rec['valued']} were valued and {rec['excluded']} were left out" in text
+    rec = probed.summary.records
+    assert f"{rec.read} records were read: {rec.valued} were valued and {rec.excluded} were left out" in text
 
 
 def test_without_experience_no_experience_section() -> None:

@@ -54,22 +54,22 @@ def test_cashflows_and_exceptions_files(demo_run):
     assert cf["total"].to_numpy() == pytest.approx(
         cf.select(pl.sum_horizontal("pensioner", "dependant", "deferred", "active")).to_series().to_numpy())
     # discounted payments add back to the liability (PV of the expected cash flows)
-    assert cf["discounted_total"].sum() == pytest.approx(res.summary["liability"]["total"], rel=1e-9)
+    assert cf["discounted_total"].sum() == pytest.approx(res.summary.liability.total, rel=1e-9)
     assert (out / "exceptions.csv").exists()
-    assert pl.read_parquet(out / "members.parquet").height == res.summary["records"]["valued"]
+    assert pl.read_parquet(out / "members.parquet").height == res.summary.records.valued
 
 
 def test_sensitivity_signs_and_durations(demo_run):
     """Rates up lower the liability, inflation/salary/longevity up raise it; 0.5 % p.a. on the discount
     rate moves a typical obligation by several per cent (common practice sanity check: 25 bp ~ 2-4 %)."""
     res, _ = demo_run
-    by = {s["kind"] + ("+" if s["shift"] > 0 else "-"): s["change_pct"] for s in res.summary["sensitivities"]}
+    by = {s.kind + ("+" if s.shift > 0 else "-"): s.change_pct for s in res.summary.sensitivities}
     assert by["discount_rate+"] < 0 < by["discount_rate-"]
     assert by["inflation+"] > 0 and by["salary_growth+"] > 0 and by["life_expectancy+"] > 0
     assert 4.0 < -by["discount_rate+"] < 12.0
-    d = res.summary["duration"]
+    d = res.summary.duration
     # effective duration from +/- 0.1 % shifts is close to the modified duration (first-order identity)
-    assert d["effective"] == pytest.approx(d["modified"], rel=0.01)
+    assert d.effective == pytest.approx(d.modified, rel=0.01)
 
 
 def test_same_inputs_same_numbers(demo_run, tmp_path):
@@ -86,10 +86,10 @@ def test_same_inputs_same_numbers(demo_run, tmp_path):
 
 def test_dirty_file_reconciles(tmp_path):
     res = value_scheme(BASIS, DIRTY, sensitivities=False)
-    r = res.summary["records"]
-    assert r["read"] == r["valued"] + r["excluded"]
-    assert r["excluded"] > 0
-    assert res.exceptions.filter(pl.col("severity") == "excluded")["row"].n_unique() == r["excluded"]
+    r = res.summary.records
+    assert r.read == r.valued + r.excluded
+    assert r.excluded > 0
+    assert res.exceptions.filter(pl.col("severity") == "excluded")["row"].n_unique() == r.excluded
 
 
 def test_batch_writes_each_run_and_an_index(tmp_path):

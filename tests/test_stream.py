@@ -67,11 +67,11 @@ def _numbers(tree: Any, prefix: str = "") -> dict[str, float]:
 
 
 def _assert_same(stream: ValuationResult, memory: ValuationResult) -> None:
-    a, b = _numbers(stream.summary), _numbers(memory.summary)
+    a, b = _numbers(stream.summary.to_json()), _numbers(memory.summary.to_json())
     assert a.keys() == b.keys()
     for key, ref in b.items():
         assert a[key] == pytest.approx(ref, rel=REL, abs=1e-6) or (math.isnan(ref) and math.isnan(a[key])), key
-    assert stream.summary["records"] == memory.summary["records"]
+    assert stream.summary.records == memory.summary.records
     for name in ("liabilities", "cashflows", "sensitivities", "expected_deaths", "life_expectancy"):
         assert_frame_equal(getattr(stream, name), getattr(memory, name), check_exact=False, rel_tol=REL, abs_tol=1e-6)
     assert_frame_equal(stream.exceptions, memory.exceptions)  # same rows, reasons and values, same order
@@ -86,9 +86,9 @@ def test_streaming_matches_in_memory(ext: str, scheme: pl.DataFrame, tmp_path: P
     out = tmp_path / "members_out.parquet"
     stream = value_file_streaming(BASIS, path, chunk_rows=CHUNK, member_results_path=out, sensitivities=False)
     _assert_same(stream, memory)
-    records = stream.summary["records"]
-    assert records["read"] == scheme.height == records["valued"] + records["excluded"]
-    assert records["excluded"] > 0
+    records = stream.summary.records
+    assert records.read == scheme.height == records.valued + records.excluded
+    assert records.excluded > 0
     # the per-member rows went to the Parquet file, not to memory
     assert stream.members.height == 0 and stream.extra["members_path"] == str(out)
     per_member = pl.read_parquet(out)
@@ -152,7 +152,7 @@ def test_header_only_file_and_fatal_errors_match(tmp_path: Path) -> None:
     empty = tmp_path / "empty.csv"
     empty.write_text(",".join(BASIS.mapping.columns) + "\n", encoding="utf-8")  # every mapped header, no record
     res = value_file_streaming(BASIS, empty, sensitivities=False)
-    assert res.summary["records"]["read"] == 0 and res.summary["liability"]["total"] == 0.0
+    assert res.summary.records.read == 0 and res.summary.liability.total == 0.0
     broken = tmp_path / "broken.csv"
     broken.write_text("member_id,status,sex\nA1,P,1\n", encoding="utf-8")
     with pytest.raises(DataError) as whole:

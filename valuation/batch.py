@@ -159,13 +159,13 @@ def run_batch(
                 raise exc.with_context(f"{path}: run '{run.name}'") from None
             s = outcome.result.summary
             rows.append({
-                "run": run.name, "folder": str(root / run.name), "valuation_date": s["valuation_date"],
+                "run": run.name, "folder": str(root / run.name), "valuation_date": s.valuation_date.isoformat(),
                 "basis": str(run.basis), "members": str(run.members),
-                "records_read": s["records"]["read"], "records_valued": s["records"]["valued"],
-                "records_excluded": s["records"]["excluded"], "liability": s["liability"]["total"],
-                **{f"liability_{k2}": v for k2, v in s["liability"]["by_status"].items()},
-                "duration_macaulay": s["duration"]["macaulay"],
-                "single_equivalent_discount_rate": s["single_equivalent_discount_rate"],
+                "records_read": s.records.read, "records_valued": s.records.valued,
+                "records_excluded": s.records.excluded, "liability": s.liability.total,
+                **{f"liability_{status}": v for status, v in s.liability.by_status.items()},
+                "duration_macaulay": s.duration.macaulay,
+                "single_equivalent_discount_rate": s.single_equivalent_discount_rate,
             })
         index = pl.DataFrame(rows)
         write_csv(index, tmp_root / "index.csv")

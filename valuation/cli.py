@@ -11,6 +11,7 @@ place at the end, and nothing the tool did not write is deleted or overwritten.
 from __future__ import annotations
 
 import argparse
+import math
 import os
 import signal
 import sys
@@ -20,10 +21,13 @@ import threading
 from collections.abc import Callable
 from datetime import date
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from valuation.errors import ValuationError
 from valuation.version import __version__
+
+if TYPE_CHECKING:
+    from valuation.engine.results import ValuationResult
 
 EXIT_OK, EXIT_INTERNAL, EXIT_USAGE, EXIT_INPUT, EXIT_EXCLUSIONS, EXIT_INTERRUPTED = 0, 1, 2, 3, 4, 130
 
@@ -135,19 +139,19 @@ def _say(args: argparse.Namespace, text: str) -> None:
         _print(text)
 
 
-def _headline(result: Any) -> str:
+def _headline(result: ValuationResult) -> str:
     from valuation.reports.format import currency_of, format_money
 
     s = result.summary
     code = currency_of(s)
-    lines = [f"valuation date {s['valuation_date']}: liability {format_money(s['liability']['total'], code)}"]
-    width = max(len(format_money(v, code)) for v in s["liability"]["by_status"].values())
-    for st, v in s["liability"]["by_status"].items():
+    by_status = s.liability.by_status
+    lines = [f"valuation date {s.valuation_date.isoformat()}: liability {format_money(s.liability.total, code)}"]
+    width = max((len(format_money(v, code)) for v in by_status.values()), default=0)
+    for st, v in by_status.items():
         lines.append(f"  {st:<10} {format_money(v, code):>{max(width, 16)}}")
-    d = s["duration"]
-    sedr = s["single_equivalent_discount_rate"]
-    sedr_text = f"{100 * sedr:.3f} %" if sedr is not None and sedr == sedr else "n/a"
-    lines.append(f"duration (Macaulay) {d['macaulay']:.2f} years; single equivalent rate {sedr_text}")
+    sedr = s.single_equivalent_discount_rate
+    sedr_text = f"{100 * sedr:.3f} %" if math.isfinite(sedr) else "n/a"
+    lines.append(f"duration (Macaulay) {s.duration.macaulay:.2f} years; single equivalent rate {sedr_text}")
     return "\n".join(lines)
 
 

@@ -232,12 +232,12 @@ def _run_streaming(
     with atomic_folder(out, overwrite=overwrite, inputs=inputs) as tmp:
         result = value_file_streaming(basis, path, chunk_rows=chunk_size, member_results_path=tmp / "members.parquet",
                                       sensitivities=sensitivities, progress=progress, fmt=fmt)
-        r = result.summary["records"]
-        say(f"records read {r['read']:,} = valued {r['valued']:,} + excluded {r['excluded']:,}")
-        if r.get("ignored_columns"):
+        r = result.summary.records
+        say(f"records read {r.read:,} = valued {r.valued:,} + excluded {r.excluded:,}")
+        if r.ignored_columns:
             warn("columns not used by the valuation (neither ours nor mapped in the basis's [mapping.columns]): "
-                 + ", ".join(r["ignored_columns"]))
-        gate(basis, path, r["read"], r["valued"], r["excluded"], accept_exclusions, warn)
+                 + ", ".join(r.ignored_columns))
+        gate(basis, path, r.read, r.valued, r.excluded, accept_exclusions, warn)
         if progress:
             progress("writing", 0, 1)
         write_into(result, tmp, report_writers() if reports else [])
@@ -284,14 +284,14 @@ def value_scheme(basis: Basis | str | Path, members: Any, *, fmt: InputFormat | 
         As for :func:`run`.
 
     Returns the results without writing anything; records excluded for data problems are in
-    ``result.exceptions`` and counted in ``result.summary["records"]`` (the exclusion limit that stops a
+    ``result.exceptions`` and counted in ``result.summary.records`` (the exclusion limit that stops a
     command-line run is not applied here; a file with no valued record is still an error).
 
     Example
     -------
     >>> from valuation import value_scheme                      # doctest: +SKIP
     >>> res = value_scheme("assumptions/demo_basis.toml", "member_data_demo/members.csv")  # doctest: +SKIP
-    >>> res.summary["liability"]["total"]                       # doctest: +SKIP
+    >>> res.summary.liability.total                             # doctest: +SKIP
     """
     if (isinstance(basis, (str, Path)) and Path(basis).suffix.lower() in _MEMBER_SUFFIXES
             and isinstance(members, (str, Path)) and Path(members).suffix.lower() == ".toml"):

@@ -1,37 +1,48 @@
 """The results of one valuation run: the stable contract shared by the engine, the writers and the reports.
 
-``summary`` is exactly what goes to ``summary.json``; the data frames hold the detail behind it.
+``summary`` is a :class:`~valuation.engine.summary.RunSummary`: its ``to_json()`` is exactly what goes to
+``summary.json``; the data frames hold the detail behind it.
 """
 
 from __future__ import annotations
 
+from collections.abc import Mapping
 from dataclasses import dataclass, field
-from typing import Any
+from typing import TYPE_CHECKING, ClassVar
 
 import polars as pl
 
+from valuation.basis.model import Basis
+from valuation.engine.summary import RunSummary
 from valuation.vocabulary import STATUSES
 
-__all__ = ["STATUSES", "ValuationResult"]
+if TYPE_CHECKING:
+    import pandas
+
+__all__ = ["STATUSES", "RunSummary", "ValuationResult"]
 
 
-@dataclass
+@dataclass(init=False)
 class ValuationResult:
     """Everything one valuation run produced.
 
     Attributes
     ----------
     summary
-        The content of ``summary.json``: ``valuation_date`` (ISO text); ``records`` {read, valued, excluded,
-        by_status: {status: {read, valued, excluded}}}; ``liability`` {total, by_status {pensioner,
-        dependant, deferred, active}, by_sex {M, F}, by_tranche {name: value}}; ``active_measures``
-        {projected_obligation, accrued_benefit_obligation, current_service_cost}; ``duration``
-        {macaulay, modified, effective}; ``single_equivalent_discount_rate``; ``sensitivities``
-        [{name, kind, shift, liability, change_pct}]; ``life_expectancy`` [{sex, age_now, at_age, basis,
-        years}]; ``expected_deaths_next_year`` {lives, amounts, by_group [{status, sex, lives, amounts}]};
-        ``assumptions`` {discount_rate, inflation, salary_growth, retirement_age, ... in words-ready form};
-        ``manifest`` {tool_version, inputs {path: sha256}, basis (as loaded), settings, started_at,
-        run_seconds}. Money is [currency], rates are annual effective decimals, durations [years].
+        The headline results, typed (:class:`~valuation.engine.summary.RunSummary`); ``summary.to_json()``
+        is the content of ``summary.json``: ``valuation_date`` (ISO text); ``basis_name``; ``records``
+        {read, valued, excluded, by_status: {status: {read, valued, excluded}}, ignored_columns};
+        ``liability`` {total, by_status {pensioner, dependant, deferred, active}, by_sex {M, F},
+        by_tranche {name: value, lump_sums}}; ``active_measures`` {projected_obligation,
+        accrued_benefit_obligation, current_service_cost}; ``duration`` {macaulay, modified, effective};
+        ``single_equivalent_discount_rate``; ``cashflow_present_value``; ``sensitivities`` [{name, kind,
+        shift, liability, change_pct}]; ``life_expectancy`` [{sex, age_now, at_age, basis, years}];
+        ``expected_deaths_next_year`` {lives, amounts, by_group [{status, sex, lives, amounts}]};
+        ``assumptions`` {discount_rate_flat or discount_curve_10y, inflation_..., salary_growth,
+        retirement_age, ... in words-ready form}; ``manifest`` {tool_version, inputs {path: sha256}, basis
+        (as loaded), settings, ignored_columns, started_at, run_seconds}. Money is [currency], rates are
+        annual effective decimals, durations [years]. Given as a dictionary (the engine's), it is read
+        with :meth:`RunSummary.from_json`, which checks every key.
     liabilities
         One row a (status, sex, tranche, benefit) cell: columns ``status, sex, tranche, benefit,
         liability``. ``benefit`` is one of ``member_pension, spouse_pension, lump_sum``.
@@ -50,7 +61,7 @@ class ValuationResult:
         ``file, row, member_id, column, value, reason, severity`` (severity ``excluded`` or ``warning``).
     """
 
-    summary: dict[str, Any]
+    summary: RunSummary
     liabilities: pl.DataFrame
     cashflows: pl.DataFrame
     members: pl.DataFrame
@@ -58,22 +69,43 @@ class ValuationResult:
     life_expectancy: pl.DataFrame
     expected_deaths: pl.DataFrame
     exceptions: pl.DataFrame
-    basis: Any = None
-    extra: dict[str, Any] = field(default_factory=dict)
+    basis: Basis | None = None
+    extra: dict[str, str | None] = field(default_factory=dict)
+
+    def __init__(
+        self, *, summary: RunSummary | Mapping[str, object], liabilities: pl.DataFrame, cashflows: pl.DataFrame,
+        members: pl.DataFrame, sensitivities: pl.DataFrame, life_expectancy: pl.DataFrame,
+        expected_deaths: pl.DataFrame, exceptions: pl.DataFrame, basis: Basis | None = None,
+        extra: dict[str, str | None] | None = None,
+    ) -> None:
+        # The engine hands its summary over as a dictionary (summary.json's shape): it is read into the
+        # typed summary here, at the boundary, so nothing past the engine reads it by string keys.
+        self.summary = summary if isinstance(summary, RunSummary) else RunSummary.from_json(summary)
+        self.liabilities = liabilities
+        self.cashflows = cashflows
+        self.members = members
+        self.sensitivities = sensitivities
+        self.life_expectancy = life_expectancy
+        self.expected_deaths = expected_deaths
+        self.exceptions = exceptions
+        self.basis = basis
+        self.extra = dict(extra or {})
 
     @property
     def total_liability(self) -> float:
-        return float(self.summary["liability"]["total"])
+        """The total liability [currency]."""
+        return self.summary.liability.total
 
     #: The frames :meth:`to_pandas` converts, in this order.
-    FRAMES = ("liabilities", "cashflows", "members", "sensitivities", "life_expectancy", "expected_deaths",
-              "exceptions")
+    FRAMES: ClassVar[tuple[str, ...]] = ("liabilities", "cashflows", "members", "sensitivities", "life_expectancy",
+                                         "expected_deaths", "exceptions")
 
-    def to_pandas(self) -> dict[str, Any]:
+    def to_pandas(self) -> dict[str, pandas.DataFrame]:
         """Every table of the result as a pandas DataFrame, by name (``liabilities``, ``cashflows``,
         ``members``, ``sensitivities``, ``life_expectancy``, ``expected_deaths``, ``exceptions``).
 
-        ``summary`` is already plain Python (a dict). Needs pandas (``pip install 'valuation[pandas]'``).
+        ``summary`` is a typed object; ``summary.to_json()`` gives it as plain Python (a dict). Needs
+        pandas (``pip install 'valuation[pandas]'``).
         """
         try:
             import pandas  # noqa: F401

@@ -346,8 +346,9 @@ def write_tables(result: ValuationResult, folder: Path) -> None:
 
     CSV files are formula-safe (:func:`valuation.csvout.write_csv`); Parquet keeps every text exactly.
     """
-    dump_json(result.summary, folder / "summary.json")
-    dump_json(result.summary["manifest"], folder / MANIFEST)
+    summary = result.summary.to_json()
+    dump_json(summary, folder / "summary.json")
+    dump_json(summary["manifest"], folder / MANIFEST)
     write_csv(result.cashflows, folder / "cashflows.csv")
     write_csv(result.exceptions, folder / "exceptions.csv")
     write_csv(result.liabilities, folder / "liabilities.csv")

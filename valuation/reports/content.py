@@ -5,11 +5,13 @@ HTML summary so both tell the same story.
 
 from __future__ import annotations
 
+from collections.abc import Mapping
 from dataclasses import dataclass
-from typing import Any
+from typing import Any, Literal
 
 import polars as pl
 
+from valuation.engine.summary import Assumptions, JsonValue, RunSummary
 from valuation.reports import format as fmt
 from valuation.vocabulary import STATUSES
 
@@ -34,59 +36,58 @@ class Headline:
 
     key: str
     label: str
-    value: Any
+    value: float
     text: str
     meaning: str
     unit: str = ""
 
 
-def headlines(summary: dict[str, Any]) -> list[Headline]:
+def headlines(summary: RunSummary) -> list[Headline]:
     """The headline figures of a run, each with one plain sentence on what it means.
 
     Money figures are whole units (their unit, the basis's currency code, apart); the sentences round
     money as a person would say it (:func:`valuation.reports.format.about_money`).
     """
-    liab = summary["liability"]
-    rec = summary["records"]
-    dur = summary.get("duration", {})
-    act = summary.get("active_measures", {})
+    liab = summary.liability
+    rec = summary.records
+    macaulay = summary.duration.macaulay
+    sedr = summary.single_equivalent_discount_rate
+    act = summary.active_measures
     code = fmt.currency_of(summary)
     unit = code or ""
-    if rec["excluded"]:
-        data_words = (f"Of the {fmt.number(rec['read'])} records in the member data, {fmt.number(rec['valued'])} "
-                      f"were valued and {fmt.number(rec['excluded'])} were left out because their data could not "
+    if rec.excluded:
+        data_words = (f"Of the {fmt.number(rec.read)} records in the member data, {fmt.number(rec.valued)} "
+                      f"were valued and {fmt.number(rec.excluded)} were left out because their data could not "
                       "be used (see the data section).")
     else:
-        data_words = f"All {fmt.number(rec['read'])} records in the member data were valued."
+        data_words = f"All {fmt.number(rec.read)} records in the member data were valued."
     out = [
-        Headline("total_liability", "Total liability", liab["total"], fmt.money(liab["total"]),
-                 f"About {fmt.about_money(liab['total'], code)}: the amount that, invested today and earning the "
+        Headline("total_liability", "Total liability", liab.total, fmt.money(liab.total),
+                 f"About {fmt.about_money(liab.total, code)}: the amount that, invested today and earning the "
                  "discount rate, would pay every pension and lump sum the members have earned so far, if the "
                  "future turns out as assumed.", unit),
-        Headline("duration", "Duration", dur.get("macaulay"), fmt.years(dur.get("macaulay")),
+        Headline("duration", "Duration", macaulay, fmt.years(macaulay),
                  "The average time until the payments are made, weighted by their present value; the longer "
                  "it is, the more the liability moves when interest rates change."),
-        Headline("sedr", "Single equivalent discount rate", summary.get("single_equivalent_discount_rate"),
-                 fmt.rate(summary.get("single_equivalent_discount_rate")),
+        Headline("sedr", "Single equivalent discount rate", sedr, fmt.rate(sedr),
                  "The one flat interest rate that gives the same liability as the discount rate basis."),
     ]
-    if act.get("projected_obligation"):
-        projected, accrued = act.get("projected_obligation"), act.get("accrued_benefit_obligation")
+    if act.projected_obligation:
+        projected, accrued = act.projected_obligation, act.accrued_benefit_obligation
         out.append(Headline(
             "active_obligation", "Active members: obligation", projected, fmt.money(projected),
             "The active members' part of the total liability: their pensions for service so far, on salaries "
             "projected to retirement or leaving (projected unit credit).", unit))
-        if accrued is not None:
-            gap = float(projected) - float(accrued)
-            out.append(Headline(
-                "accrued_benefit", "Active members: accrued benefits", accrued, fmt.money(accrued),
-                f"The same pensions on today's salaries, as if every active member left now; about "
-                f"{fmt.about_money(gap, code)} less, the cost of future pay rises on past service.", unit))
         out.append(Headline(
-            "service_cost", "Cost of next year's benefits", act.get("current_service_cost"),
-            fmt.money(act.get("current_service_cost")),
+            "accrued_benefit", "Active members: accrued benefits", accrued, fmt.money(accrued),
+            f"The same pensions on today's salaries, as if every active member left now; about "
+            f"{fmt.about_money(projected - accrued, code)} less, the cost of future pay rises on past service.",
+            unit))
+        out.append(Headline(
+            "service_cost", "Cost of next year's benefits", act.current_service_cost,
+            fmt.money(act.current_service_cost),
             "The value of the pension that active members are expected to earn over the coming year.", unit))
-    out.append(Headline("members_valued", "Members valued", rec["valued"], fmt.number(rec["valued"]), data_words))
+    out.append(Headline("members_valued", "Members valued", rec.valued, fmt.number(rec.valued), data_words))
     return out
 
 
@@ -107,27 +108,35 @@ _FIRST_INCREASE = {
 }
 
 
-def _rate_words(assumptions: dict[str, Any], name: str) -> tuple[str, str] | None:
-    flat = assumptions.get(f"{name}_rate_flat")
-    if flat is not None:
-        return fmt.rate(flat), "a single rate for all terms"
-    curve = assumptions.get(f"{name}_curve_10y")
-    if curve is not None:
-        return fmt.rate(curve), "a yield curve, shown here at the 10-year term"
-    return None
+def _rate_words(assumptions: Assumptions, name: Literal["discount", "inflation"]) -> tuple[str, str] | None:
+    given = assumptions.rate(name)
+    if given is None:
+        return None
+    value, flat = given
+    return fmt.rate(value), ("a single rate for all terms" if flat else "a yield curve, shown here at the 10-year term")
+
+
+def _table(value: JsonValue) -> Mapping[str, JsonValue]:
+    """A table of the basis as loaded (a JSON object), or an empty one where the value is not a table."""
+    return value if isinstance(value, dict) else {}
+
+
+def _number(value: JsonValue) -> float | None:
+    """A number of the basis as loaded, or None where the value is not a number."""
+    return float(value) if isinstance(value, (int, float)) and not isinstance(value, bool) else None
 
 
 def _plural(n: float, word: str) -> str:
     return f"{fmt.number(n, 0 if float(n).is_integer() else 1)} {word}{'' if n == 1 else 's'}"
 
 
-def _spouse_words(a: dict[str, Any]) -> str | None:
-    married = a.get("proportion_married") or {}
-    if not married or not a.get("spouse_fraction"):
+def _spouse_words(a: Assumptions) -> str | None:
+    married = a.proportion_married
+    if not married or not a.spouse_fraction:
         return None
     who = {"M": "men", "F": "women"}
     parts = " and ".join(f"{fmt.rate(v, 0)} of {who.get(k, k)}" for k, v in married.items())
-    gap = float(a.get("spouse_age_difference") or 0.0)
+    gap = a.spouse_age_difference
     if gap > 0:
         ages = f"a husband or male partner is taken to be {_plural(gap, 'year')} older than his wife or partner"
     elif gap < 0:
@@ -135,13 +144,13 @@ def _spouse_words(a: dict[str, Any]) -> str | None:
     else:
         ages = "partners are taken to be the same age"
     return (f"{parts[0].upper()}{parts[1:]} are assumed to leave a spouse or partner, who receives "
-            f"{fmt.rate(a.get('spouse_fraction'), 0)} of the member's pension; {ages}.")
+            f"{fmt.rate(a.spouse_fraction, 0)} of the member's pension; {ages}.")
 
 
-def assumption_lines(summary: dict[str, Any]) -> list[tuple[str, str]]:
+def assumption_lines(summary: RunSummary) -> list[tuple[str, str]]:
     """The key assumptions as (name, words) pairs, readable by a trustee."""
-    a = summary.get("assumptions", {})
-    basis = (summary.get("manifest") or {}).get("basis") or {}
+    a = summary.assumptions
+    manifest = summary.manifest
     lines: list[tuple[str, str]] = []
     disc = _rate_words(a, "discount")
     if disc:
@@ -151,37 +160,34 @@ def assumption_lines(summary: dict[str, Any]) -> list[tuple[str, str]]:
     if infl:
         lines.append(("Price inflation", f"{infl[0]} a year ({infl[1]}): drives pension increases and the "
                       "revaluation of deferred pensions, within their caps."))
-    if "salary_growth" in a:
-        lines.append(("Salary growth", f"{fmt.rate(a['salary_growth'])} a year for active members."))
-    if "retirement_age" in a:
-        lines.append(("Retirement age", f"{fmt.number(a['retirement_age'])}, unless a member's own retirement "
-                      "age is recorded."))
+    lines.append(("Salary growth", f"{fmt.rate(a.salary_growth)} a year for active members."))
+    lines.append(("Retirement age", f"{fmt.number(a.retirement_age)}, unless a member's own retirement age is "
+                  "recorded."))
     spouse = _spouse_words(a)
     if spouse:
         lines.append(("Spouses and partners", spouse))
-    if a.get("commutation_proportion"):
-        factor = (basis.get("commutation") or {}).get("factor")
-        cash = (f" for a cash sum of {fmt.number(factor, 0 if float(factor).is_integer() else 1)} times the pension "
+    if a.commutation_proportion:
+        factor = _number(manifest.section("commutation").get("factor"))
+        cash = (f" for a cash sum of {fmt.number(factor, 0 if factor.is_integer() else 1)} times the pension "
                 "given up (the commutation factor)") if factor else " for a cash sum"
-        lines.append(("Cash at retirement", f"Members give up {fmt.rate(a['commutation_proportion'], 0)} of "
+        lines.append(("Cash at retirement", f"Members give up {fmt.rate(a.commutation_proportion, 0)} of "
                       f"their pension{cash}."))
-    if "payment_frequency" in a:
-        freq = int(a["payment_frequency"])
-        how = _FREQUENCY.get(freq, f"{freq} times a year")
-        words = f"Pensions are paid {how}, in {a.get('payment_timing', 'advance')}"
-        payment = basis.get("payment") or {}
-        day = str(payment.get("increase_date") or "")
-        if len(day) == 5 and day[:2].isdigit() and day[3:].isdigit() and 1 <= int(day[:2]) <= 12:
-            words += f"; they increase each year on {int(day[3:])} {_MONTHS[int(day[:2]) - 1]}"
-            rule = _FIRST_INCREASE.get(str(payment.get("first_increase")))
-            if rule:
-                words += f", and {rule}"
-        lines.append(("Payments", words + "."))
+    freq = a.payment_frequency
+    how = _FREQUENCY.get(freq, f"{freq} times a year")
+    words = f"Pensions are paid {how}, in {a.payment_timing}"
+    payment = manifest.section("payment")
+    day = str(payment.get("increase_date") or "")
+    if len(day) == 5 and day[:2].isdigit() and day[3:].isdigit() and 1 <= int(day[:2]) <= 12:
+        words += f"; they increase each year on {int(day[3:])} {_MONTHS[int(day[:2]) - 1]}"
+        rule = _FIRST_INCREASE.get(str(payment.get("first_increase")))
+        if rule:
+            words += f", and {rule}"
+    lines.append(("Payments", words + "."))
     lines.extend(mortality_lines(summary))
     return lines
 
 
-def _improvement_words(imp: dict[str, Any]) -> str:
+def _improvement_words(imp: Mapping[str, JsonValue]) -> str:
     kind = imp.get("kind", "none")
     if kind == "none":
         return "no allowance for future improvements"
@@ -197,27 +203,26 @@ _GROUP_NOUN = {"pensioner": "pensioners", "dependant": "dependants", "deferred":
                "active": "active members", "spouse": "spouses"}
 
 
-def _mortality_who(group: str, sex: str, entries: dict[str, Any]) -> str:
+def _mortality_who(group: str, sex: str, entries: Mapping[str, JsonValue]) -> str:
     """Whom a mortality entry covers: ``men``, ``other women`` (the default where some groups have their
     own), ``male pensioners``."""
     if group == "default":
-        others = any(sex in (v or {}) for g, v in entries.items() if g != "default")
+        others = any(sex in _table(v) for g, v in entries.items() if g != "default")
         noun = SEX_LABELS.get(sex, sex).lower()
         return f"other {noun}" if others else noun
     return f"{_ADJECTIVE.get(sex, sex)} {_GROUP_NOUN.get(group, group)}"
 
 
-def mortality_lines(summary: dict[str, Any]) -> list[tuple[str, str]]:
+def mortality_lines(summary: RunSummary) -> list[tuple[str, str]]:
     """The mortality assumptions, one line a (group, sex) entry of the basis, then what each table is."""
-    basis = summary.get("manifest", {}).get("basis") or {}
     out = []
     tables: list[str] = []
-    entries = basis.get("mortality") or {}
+    entries = summary.manifest.section("mortality")
     for group in sorted(entries, key=lambda g: g == "default"):  # the groups' own tables, then the default
-        for sex, entry in (entries[group] or {}).items():
+        for sex, entry in _table(entries[group]).items():
             if not isinstance(entry, dict):
                 continue
-            rating = int(entry.get("age_rating") or 0)
+            rating = int(_number(entry.get("age_rating")) or 0)
             if rating:
                 older = "older" if rating > 0 else "younger"
                 rating_text = f", with ages taken as {_plural(abs(rating), 'year')} {older}"
@@ -227,9 +232,9 @@ def mortality_lines(summary: dict[str, Any]) -> list[tuple[str, str]]:
             name = str(entry.get("table_name") or table)
             if name not in tables:
                 tables.append(name)
-            out.append((f"Mortality: {_mortality_who(group, sex, basis.get('mortality') or {})}",
+            out.append((f"Mortality: {_mortality_who(group, sex, entries)}",
                         f"{fmt.rate(entry.get('percentage'), 0)} of table {name}{rating_text}; "
-                        f"{_improvement_words(entry.get('improvement') or {})}."))
+                        f"{_improvement_words(_table(entry.get('improvement')))}."))
     if tables:
         said = [f"{t} is {TABLE_WORDS[t]}" if t in TABLE_WORDS else f"{t} is a table named in the basis" for t in tables]
         out.append(("Mortality tables", "; ".join(said) + ". A percentage above 100% means more deaths than the "
@@ -262,14 +267,13 @@ def flatten(obj: Any, prefix: str = "") -> list[tuple[str, Any]]:
 TOP_REASONS = 8
 
 
-def data_notice(summary: dict[str, Any]) -> str | None:
+def data_notice(summary: RunSummary) -> str | None:
     """A sentence for the top of both reports when records were left out or columns were not used.
 
     ``None`` when every record was valued and every column of the member file was used.
     """
-    rec = summary.get("records") or {}
-    read, excluded = int(rec.get("read", 0)), int(rec.get("excluded", 0))
-    ignored = list(rec.get("ignored_columns") or [])
+    read, excluded = summary.records.read, summary.records.excluded
+    ignored = summary.records.ignored_columns
     parts = []
     if excluded:
         share = 100.0 * excluded / read if read else 0.0
@@ -294,15 +298,15 @@ def exception_reasons(exceptions: pl.DataFrame) -> pl.DataFrame:
     )
 
 
-def status_rows(summary: dict[str, Any]) -> list[dict[str, Any]]:
+def status_rows(summary: RunSummary) -> list[dict[str, str | float]]:
     """Per status: label, records read/valued/excluded and liability [currency]."""
-    by_rec = summary["records"].get("by_status", {})
-    by_liab = summary["liability"].get("by_status", {})
-    rows = []
+    by_rec = summary.records.by_status
+    by_liab = summary.liability.by_status
+    rows: list[dict[str, str | float]] = []
     for st in STATUSES:
-        rec = by_rec.get(st, {})
-        rows.append({"status": st, "label": STATUS_LABELS[st], "read": rec.get("read", 0),
-                     "valued": rec.get("valued", 0), "excluded": rec.get("excluded", 0),
+        rec = by_rec.get(st)
+        rows.append({"status": st, "label": STATUS_LABELS[st], "read": rec.read if rec else 0,
+                     "valued": rec.valued if rec else 0, "excluded": rec.excluded if rec else 0,
                      "liability": by_liab.get(st, 0.0)})
     return rows
 

@@ -8,7 +8,7 @@ from __future__ import annotations
 
 import hashlib
 import tomllib
-from collections.abc import Callable
+from collections.abc import Callable, Mapping
 from datetime import date
 from pathlib import Path
 from typing import Any
@@ -18,6 +18,7 @@ from openpyxl.utils import get_column_letter
 from openpyxl.worksheet.worksheet import Worksheet
 
 from valuation.engine.results import ValuationResult
+from valuation.engine.summary import LUMP_SUMS
 from valuation.engine.write import SMALL_SCHEME
 from valuation.reports import content
 from valuation.reports import excel_cells as xc
@@ -49,7 +50,7 @@ BASIS_PERCENT_PARENTS = frozenset({"proportion_married"})
 BENEFIT_WORDS = {"member_pension": "member's pension", "spouse_pension": "spouse's pension",
                  "lump_sum": "lump sums"}
 #: The by-tranche key of the summary that holds the lump sums (not a tranche).
-LUMP_SUMS_KEY = "lump_sums"
+LUMP_SUMS_KEY = LUMP_SUMS
 
 
 def member_labels(code: str | None) -> dict[str, str]:
@@ -121,35 +122,35 @@ def summary_sheet(ws: Worksheet, result: ValuationResult) -> str:
         cell.alignment = xc.WRAP
         ws.merge_cells("A2:C2")
         ws.row_dimensions[2].height = xc.wrapped_height(notice, sum(widths.values()))
-    rec = s["records"]
+    rec = s.records
+    liab = s.liability
     money = xc.money_format(code)
     rows: list[tuple[str, Any, str | None]] = [
-        ("Valuation date", xc.as_date(s.get("valuation_date")), xc.DATE),
-        ("Basis", s.get("basis_name"), None),
+        ("Valuation date", s.valuation_date, xc.DATE),
+        ("Basis", s.basis_name, None),
         ("Currency", code or "none named in the basis", None),
-        (fmt.money_label("Total liability", code), s["liability"]["total"], money),
+        (fmt.money_label("Total liability", code), liab.total, money),
     ]
     total_cell = f"$B${3 + len(rows) - 1}"
-    rows += [(f"  {content.STATUS_LABELS[st]}", s["liability"]["by_status"].get(st, 0.0), money)
-             for st in STATUSES]
-    rows += [(f"  {content.SEX_LABELS.get(k, k)}", v, money) for k, v in s["liability"].get("by_sex", {}).items()]
-    act = s.get("active_measures", {})
-    dur = s.get("duration", {})
+    rows += [(f"  {content.STATUS_LABELS[st]}", liab.by_status.get(st, 0.0), money) for st in STATUSES]
+    rows += [(f"  {content.SEX_LABELS.get(k, k)}", v, money) for k, v in liab.by_sex.items()]
+    act = s.active_measures
+    dur = s.duration
+    deaths = s.expected_deaths_next_year
     rows += [
-        (fmt.money_label("Active members: projected obligation", code), act.get("projected_obligation"), money),
-        (fmt.money_label("Active members: accrued-benefit obligation", code), act.get("accrued_benefit_obligation"),
+        (fmt.money_label("Active members: projected obligation", code), act.projected_obligation, money),
+        (fmt.money_label("Active members: accrued-benefit obligation", code), act.accrued_benefit_obligation,
          money),
-        (fmt.money_label("Current service cost", code, per_year=True), act.get("current_service_cost"), money),
-        ("Macaulay duration [years]", dur.get("macaulay"), xc.YEARS),
-        ("Modified duration [years]", dur.get("modified"), xc.YEARS),
-        ("Effective duration [years]", dur.get("effective"), xc.YEARS),
-        ("Single equivalent discount rate [p.a.]", s.get("single_equivalent_discount_rate"), xc.RATE),
-        ("Records read", rec["read"], xc.COUNT),
-        ("Records valued", rec["valued"], xc.COUNT),
-        ("Records excluded", rec["excluded"], xc.COUNT),
-        ("Expected deaths next year [lives]", s.get("expected_deaths_next_year", {}).get("lives"), xc.LIVES),
-        (fmt.money_label("Pension ceasing on deaths next year", code, per_year=True),
-         s.get("expected_deaths_next_year", {}).get("amounts"), money),
+        (fmt.money_label("Current service cost", code, per_year=True), act.current_service_cost, money),
+        ("Macaulay duration [years]", dur.macaulay, xc.YEARS),
+        ("Modified duration [years]", dur.modified, xc.YEARS),
+        ("Effective duration [years]", dur.effective, xc.YEARS),
+        ("Single equivalent discount rate [p.a.]", s.single_equivalent_discount_rate, xc.RATE),
+        ("Records read", rec.read, xc.COUNT),
+        ("Records valued", rec.valued, xc.COUNT),
+        ("Records excluded", rec.excluded, xc.COUNT),
+        ("Expected deaths next year [lives]", deaths.lives, xc.LIVES),
+        (fmt.money_label("Pension ceasing on deaths next year", code, per_year=True), deaths.amounts, money),
     ]
     nxt = xc.key_values(ws, 3, rows)
     xc.put(ws, nxt + 1, 1, "Key assumptions").font = xc.TITLE_FONT
@@ -188,10 +189,10 @@ def basis_as_given(basis: dict[str, Any], inputs: dict[str, Any]) -> dict[str, A
 def basis_sheet(ws: Worksheet, result: ValuationResult) -> None:
     """Every setting of the basis: as given in its file (the file's own form) and as the valuation used it
     (defaults filled in, rates shown as percentages)."""
-    manifest = result.summary.get("manifest") or {}
-    basis = dict(manifest.get("basis") or {})
+    manifest = result.summary.manifest
+    basis = dict(manifest.basis)
     source = basis.pop("source_path", None)
-    given = basis_as_given({"source_path": source}, manifest.get("inputs") or {})
+    given = basis_as_given({"source_path": source}, dict(manifest.inputs))
     where = f"the basis file {source}" if source else "the basis file"
     if given is None:
         text = (f"Every setting of the basis as the valuation used it; {where} could not be read again as it "
@@ -256,20 +257,20 @@ def liabilities_sheet(ws: Worksheet, result: ValuationResult) -> None:
     frame = _plain(frame, "benefit", BENEFIT_WORDS)
     labels = {"liability": fmt.money_label("liability", code)}
     xc.write_frame(ws, frame, top=HEAD, formats={"liability": money}, labels=labels, table="LiabilityCells")
-    liab = result.summary["liability"]
+    liab = result.summary.liability
     by_benefit: dict[str, float] = {}
     if {"benefit", "liability"} <= set(result.liabilities.columns):
         sums = result.liabilities.group_by("benefit", maintain_order=True).agg(pl.col("liability").sum())
         by_benefit = {BENEFIT_WORDS.get(b, b): float(v) for b, v in sums.iter_rows()}
-    tranches = {k: v for k, v in liab.get("by_tranche", {}).items() if k != LUMP_SUMS_KEY}
     col = result.liabilities.width + 2
     row = HEAD
-    for heading, values, words in (
-        ("by status", liab.get("by_status", {}), content.STATUS_LABELS),
-        ("by sex", liab.get("by_sex", {}), content.SEX_LABELS),
-        ("pensions by tranche", tranches, {}),
+    groups: tuple[tuple[str, Mapping[str, float], Mapping[str, str]], ...] = (
+        ("by status", {k: v for k, v in liab.by_status.items()}, content.STATUS_LABELS),
+        ("by sex", {k: v for k, v in liab.by_sex.items()}, content.SEX_LABELS),
+        ("pensions by tranche", liab.tranches, {}),
         ("by benefit", by_benefit, {}),
-    ):
+    )
+    for heading, values, words in groups:
         xc.header(ws, row, col, [heading, fmt.money_label("liability", code)])
         for i, (g, v) in enumerate(values.items(), start=row + 1):
             xc.put(ws, i, col, words.get(g, g))
@@ -346,9 +347,9 @@ def deaths_sheet(ws: Worksheet, result: ValuationResult) -> None:
               "amounts": fmt.money_label("pension ceasing", code, per_year=True)}
     last = xc.write_frame(ws, result.expected_deaths, top=HEAD, formats={"lives": xc.LIVES, "amounts": money},
                           labels=labels, table="ExpectedDeaths")
-    tot = result.summary.get("expected_deaths_next_year", {})
-    xc.key_values(ws, last + 2, [("Total lives", tot.get("lives"), xc.LIVES),
-                                 (fmt.money_label("Total pension ceasing", code, per_year=True), tot.get("amounts"),
+    tot = result.summary.expected_deaths_next_year
+    xc.key_values(ws, last + 2, [("Total lives", tot.lives, xc.LIVES),
+                                 (fmt.money_label("Total pension ceasing", code, per_year=True), tot.amounts,
                                   money)])
     xc.fit_widths(ws, HEAD)
     xc.print_setup(ws, header_row=HEAD)
@@ -423,7 +424,7 @@ def _manifest_rows(manifest: dict[str, Any]) -> list[tuple[str, Any]]:
 
 
 def manifest_sheet(ws: Worksheet, result: ValuationResult) -> None:
-    manifest = {k: v for k, v in (result.summary.get("manifest") or {}).items() if k != "basis"}
+    manifest = {k: v for k, v in result.summary.manifest.to_json().items() if k != "basis"}
     _list_sheet(ws, "Run manifest", "Tool version, input files with their SHA-256, settings and timing. The "
                 "basis is on the Basis sheet.")
     _write_pairs(ws, _manifest_rows(manifest), "Manifest", ("item", "value"))

@@ -6,7 +6,7 @@ by a symbol: a code reads the same in every locale and font. A basis without ``c
 with no currency named. Rates are annual effective decimals shown as percentages; durations and
 expectancies are [years].
 
-For the command line's headline: ``format_money(summary["liability"]["total"], currency_of(summary))``
+For the command line's headline: ``format_money(summary.liability.total, currency_of(summary))``
 gives ``GBP 358,032,135`` (or ``358,032,135`` when the basis names no currency).
 """
 
@@ -14,6 +14,8 @@ from __future__ import annotations
 
 import math
 from typing import Any
+
+from valuation.engine.summary import RunSummary
 
 #: Shown where a figure is missing or undefined (None, NaN, inf).
 MISSING = "n/a"
@@ -29,10 +31,9 @@ def _finite(value: Any) -> float | None:
     return x if math.isfinite(x) else None
 
 
-def currency_of(summary: dict[str, Any]) -> str | None:
+def currency_of(summary: RunSummary) -> str | None:
     """The ISO 4217 code of a run's amounts (the basis's ``currency``), or None when the basis names none."""
-    code = summary.get("currency") or ((summary.get("manifest") or {}).get("basis") or {}).get("currency")
-    return code if isinstance(code, str) and code else None
+    return summary.currency
 
 
 def money_unit(code: str | None, per_year: bool = False) -> str:

@@ -96,10 +96,9 @@ def build_context(result: ValuationResult, experience: ExperienceResult | None =
     s = result.summary
     code = fmt.currency_of(s)
     by_status = content.status_rows(s)
-    total = float(s["liability"]["total"]) or 1.0
+    total = s.liability.total or 1.0
     for row in by_status:
         row["share"] = 100.0 * float(row["liability"]) / total
-    manifest = s.get("manifest") or {}
     reasons = content.exception_reasons(result.exceptions)
     return {
         "s": s,
@@ -108,7 +107,7 @@ def build_context(result: ValuationResult, experience: ExperienceResult | None =
         "money_head": lambda label, per_year=False: fmt.money_label(label, code, per_year),
         "headlines": content.headlines(s),
         "by_status": by_status,
-        "group_chart": Markup(charts.liability_by_group(s["liability"]["by_status"], code)),
+        "group_chart": Markup(charts.liability_by_group({k: v for k, v in s.liability.by_status.items()}, code)),
         "payments_chart": Markup(charts.payments_profile(result.cashflows, code)),
         "payments_words": _payments_words(result.cashflows, code),
         "assumptions": content.assumption_lines(s),
@@ -118,8 +117,8 @@ def build_context(result: ValuationResult, experience: ExperienceResult | None =
         "reasons": reasons.head(content.TOP_REASONS).to_dicts(),
         "more_reasons": max(0, reasons.height - content.TOP_REASONS),
         "data_notice": content.data_notice(s),
-        "tool_version": manifest.get("tool_version", ""),
-        "generated": manifest.get("started_at") or datetime.now(timezone.utc).isoformat(timespec="seconds"),
+        "tool_version": s.manifest.tool_version,
+        "generated": s.manifest.started_at or datetime.now(timezone.utc).isoformat(timespec="seconds"),
     }
 
 
