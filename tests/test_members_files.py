@@ -21,6 +21,7 @@ from valuation.errors import DataError
 from valuation.members import read_members, synth_scheme, write_scheme
 from valuation.members.data import validate_frame
 from valuation.members.readers import iter_text_frames, map_headers, read_header
+from valuation.members.validate import BLANK_ROW
 
 DATA = Path(__file__).parent / "data" / "members"
 BASIS = load_basis(DATA / "basis.toml")
@@ -144,9 +145,21 @@ def test_workbook_rows_keep_the_sheet_numbering(tmp_path: Path) -> None:
     wb.active.cell(row=9, column=2).number_format = "0.00"  # a formatted but empty cell further down
     wb.save(tmp_path / "m.xlsx")
     md = read_members(tmp_path / "m.xlsx", BASIS)
-    assert md.read == 3  # rows 2-4; the empty row 3 is a record with nothing in it
+    assert md.read == 2  # rows 2 and 4; the empty row 3 is no record, and is listed as a blank row
     assert md.exceptions.filter(pl.col("value") == "Q")["row"].to_list() == [4]
-    assert md.exceptions.filter(pl.col("row") == 3)["reason"].to_list()[0] == "member_id is missing (expected a unique reference)"
+    blank = md.exceptions.filter(pl.col("row") == 3)
+    assert blank["reason"].to_list() == [BLANK_ROW] and blank["severity"].to_list() == ["warning"]
+
+
+def test_blank_lines_and_rows_of_commas_are_not_records(tmp_path: Path) -> None:
+    """RFC 4180 allows no empty records; spreadsheets export trailing rows of commas. Neither is a member
+    record (common practice): they are listed as warnings, not counted as read or excluded."""
+    path = tmp_path / "m.csv"
+    path.write_text("member_id,status,sex,date_of_birth,pension\nA1,pensioner,F,1950-06-01,6000\n\n,,,,\n"
+                    "A2,pensioner,M,1951-06-01,5000\n , , , , \n")
+    md = read_members(path, BASIS)
+    assert (md.read, md.valued, md.excluded) == (2, 2, 0)
+    assert md.exceptions.filter(pl.col("reason") == BLANK_ROW)["row"].to_list() == [3, 4, 6]
 
 
 def test_a_folder_is_not_a_member_file(tmp_path: Path) -> None:

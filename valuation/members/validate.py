@@ -231,7 +231,7 @@ def _required(raw: pl.DataFrame, basis: Basis, path: Path, file_columns: dict[st
 
 def _plan(
     raw: pl.DataFrame, basis: Basis, tranche_cols: list[str], first_row: int, duplicates: pl.DataFrame | None,
-    checks: list[Check],
+    checks: list[Check], blank: list[bool],
 ) -> pl.LazyFrame:
     """Parsed columns, helper columns and one boolean column ``_m<k>`` a check, plus ``_excluded`` and
     ``_failed``."""
@@ -240,7 +240,7 @@ def _plan(
     m = basis.mapping
     held = raw.lazy().select(source).with_row_index("row", offset=first_row).with_columns(
         pl.col("row").cast(pl.Int64), *(to_float(c) for c in [*NUMERIC_COLUMNS, *tranche_cols]),
-    ).collect()  # held once: the short pass and the main pass below read it
+    ).filter(~pl.Series(blank, dtype=pl.Boolean)).collect()  # held once: both passes below read it
     # the distinct codes, and the ids written more than once: short lists, found before the main pass
     repeated = _repeated(held.get_column("member_id")) if duplicates is None else duplicates.get_column("member_id")
     status, status_k = _recode("status", held.get_column("status").unique(), code_lookup(m.status_codes, STATUSES),
@@ -302,6 +302,30 @@ def _exceptions(
     if not parts:
         return empty_exceptions().lazy()
     return pl.concat(parts).sort(["row", "_order"]).drop("_order").cast(EXCEPTION_SCHEMA)  # type: ignore[arg-type]
+
+
+#: Reason of the warning row for a row of the file with every cell empty (not a record).
+BLANK_ROW = "blank row: every cell is empty, so it is not counted as a record"
+
+
+def blank_rows(raw: pl.DataFrame) -> list[bool]:
+    """For each row of ``raw``, whether every cell is empty (null, or text of spaces only): a blank line of
+    a CSV file, or a row of commas, which spreadsheets leave at the end of an export."""
+    if raw.width == 0:
+        return [False] * raw.height
+    empty = [pl.col(c).is_null() | (pl.col(c).str.strip_chars() == "") if t == pl.String else pl.col(c).is_null()
+             for c, t in raw.schema.items()]
+    return raw.select(pl.all_horizontal(empty).alias("b")).get_column("b").to_list()
+
+
+def blank_row_warnings(path: Path, rows: list[int]) -> pl.DataFrame:
+    """One warning row of the exceptions frame for each blank row (member_id and column empty)."""
+    n = len(rows)
+    return pl.DataFrame(
+        {"file": [str(path)] * n, "row": rows, "member_id": [None] * n, "column": [None] * n,
+         "file_column": [None] * n, "value": [None] * n, "reason": [BLANK_ROW] * n, "severity": ["warning"] * n},
+        schema=EXCEPTION_SCHEMA,
+    )
 
 
 def ignored_column_rows(path: Path, headers: list[str]) -> pl.DataFrame:
@@ -412,7 +436,8 @@ def validate_frame(
     tranche_cols = [c for c in all_tranches if c in raw.columns]
     ignored = [file_columns[c] for c in raw.columns if c not in ours]
     checks = member_checks(basis, tranche_cols)
-    df = _plan(raw, basis, tranche_cols, first_row, duplicates, checks).collect()
+    blank = blank_rows(raw)
+    df = _plan(raw, basis, tranche_cols, first_row, duplicates, checks, blank).collect()
     failed = df[df.get_column("_failed").arg_true()]  # a gather: few rows fail
     # every copy of a repeated id fails, so the failing rows give the copies unless the whole file's are given
     dups = duplicate_ids(failed.filter(pl.col("_dup"))) if duplicates is None else duplicates
@@ -428,6 +453,10 @@ def validate_frame(
     ])
     if first_row == FIRST_ROW:
         exceptions = pl.concat([ignored_column_rows(path, ignored), exceptions])
+    if any(blank):
+        rows = [first_row + k for k, b in enumerate(blank) if b]
+        exceptions = pl.concat([exceptions, blank_row_warnings(path, rows)]).sort("row", nulls_last=False,
+                                                                                  maintain_order=True)
     return CheckedFrame(records=records, exceptions=exceptions, counts=counts, read=df.height,
                         ignored_columns=ignored)
 
