@@ -147,9 +147,9 @@ def main() -> int:
 
             loop = time_per_member(basis, path, args.loop_sample)
     res = outcome.result
-    records = res.summary["records"]
-    print(f"members            {args.members:,} (valued {records['valued']:,}, excluded {records['excluded']:,})")
-    print(f"sensitivities      {len(res.summary['sensitivities']) if sens else 0}"
+    records = res.summary.records
+    print(f"members            {args.members:,} (valued {records.valued:,}, excluded {records.excluded:,})")
+    print(f"sensitivities      {len(res.summary.sensitivities) if sens else 0}"
           f"{'' if args.no_reports else '; workbook and HTML written'}{'; streamed' if args.stream else ''}")
     print(f"generate (child)   {t_gen:8.2f} s (not counted)")
     print(f"I/O floor          {floor['total']:8.2f} s (polars read {floor['read']:.2f} s + Parquet write "
@@ -160,9 +160,9 @@ def main() -> int:
     print(f"wall (end to end)  {total:8.2f} s   x{total / floor['total']:,.1f} the I/O floor")
     print(f"members/second     {args.members / total:,.0f}")
     print(f"peak memory        {peak_mb():,.0f} MB")
-    print(f"liability          {res.summary['liability']['total']:,.0f}")
+    print(f"liability          {res.summary.liability.total:,.0f}")
     if loop is not None:
-        engine_per_member = stages["value"] / max(records["valued"], 1)
+        engine_per_member = stages["value"] / max(records.valued, 1)
         print(f"per-member loop    {loop:.4f} s a member ({args.loop_sample} members); pipeline value stage "
               f"{engine_per_member * 1e6:,.1f} us a member; ratio x{loop / engine_per_member:,.0f}")
     return 0
