@@ -1,6 +1,7 @@
 """The valuation run: value a scheme on a basis, with sensitivities, and assemble the results.
 
-``value_scheme(basis, members)`` is the one call a notebook user needs; it returns a
+``valuation.value_scheme(basis, members)`` (:mod:`valuation.pipeline`) is the one call a notebook user needs; it
+returns a
 :class:`~valuation.engine.results.ValuationResult` with polars data frames. ``write_run`` writes a run
 folder (summary.json, cashflows.csv, exceptions.csv, liabilities.csv, members.parquet, ...).
 
@@ -21,7 +22,6 @@ from typing import Any
 import numpy as np
 import polars as pl
 
-from valuation import __version__
 from valuation.basis.model import Basis
 from valuation.discounting import (
     effective_duration,
@@ -41,6 +41,7 @@ from valuation.engine.scenario import (
     scenarios_from_basis,
 )
 from valuation.manifest import file_sha256
+from valuation.version import __version__
 from valuation.vocabulary import SEXES, STATUSES
 
 #: Members are valued in chunks of this many records, which keeps memory flat for any scheme size.
@@ -489,47 +490,3 @@ def value_members(
         settings={"sensitivities": sensitivities, "q_multiplier": q_multiplier, "chunk_size": chunk_size},
         ignored_columns=list(getattr(member_data, "ignored_columns", []) or []),
     )
-
-
-_MEMBER_SUFFIXES = (".csv", ".txt", ".xlsx", ".parquet")
-
-
-def value_scheme(basis: Any, members: Any, *, fmt: Any = None, **kw: Any) -> ValuationResult:
-    """Value a scheme: the basis first (a TOML path or a loaded ``Basis``), then the members.
-
-    Parameters
-    ----------
-    basis : str, Path or Basis
-        The assumptions basis file, or a basis from :func:`valuation.basis.load_basis`.
-    members : str, Path, polars.DataFrame, pandas.DataFrame or MemberData
-        A member file (CSV, XLSX or Parquet), a data frame with the same columns (mapped through the
-        basis's ``[mapping]`` as a file's headers are), or records already read with ``read_members``.
-    fmt : InputFormat, optional
-        A member file's delimiter and encoding, or sheet, where they are not the usual ones.
-    **kw
-        Passed to :func:`value_members` (``sensitivities``, ``chunk_size``, ``progress``...).
-
-    Example
-    -------
-    >>> from valuation import value_scheme                      # doctest: +SKIP
-    >>> res = value_scheme("assumptions/demo_basis.toml", "member_data_demo/members.csv")  # doctest: +SKIP
-    >>> res.summary["liability"]["total"]                       # doctest: +SKIP
-    """
-    from valuation.basis import load_basis
-    from valuation.basis.model import Basis
-    from valuation.errors import ValuationError
-    from valuation.members.data import MemberData, members_from_frame, read_members
-    from valuation.members.readers import DEFAULT_FORMAT
-
-    if (isinstance(basis, (str, Path)) and Path(basis).suffix.lower() in _MEMBER_SUFFIXES
-            and isinstance(members, (str, Path)) and Path(members).suffix.lower() == ".toml"):
-        raise ValuationError("the basis comes first: value_scheme(basis, members), as on the command line",
-                             file=basis, fix=f"call value_scheme('{members}', '{basis}')")
-    loaded = basis if isinstance(basis, Basis) else load_basis(basis)
-    if isinstance(members, MemberData):
-        data = members
-    elif isinstance(members, (str, Path)):
-        data = read_members(members, loaded, fmt or DEFAULT_FORMAT)
-    else:
-        data = members_from_frame(members, loaded)
-    return value_members(loaded, data, **kw)
