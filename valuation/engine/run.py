@@ -1,9 +1,8 @@
 """The valuation run: value a scheme on a basis, with sensitivities, and assemble the results.
 
-``valuation.value_scheme(basis, members)`` (:mod:`valuation.pipeline`) is the one call a notebook user needs; it
-returns a
-:class:`~valuation.engine.results.ValuationResult` with polars data frames. ``write_run`` writes a run
-folder (summary.json, cashflows.csv, exceptions.csv, liabilities.csv, members.parquet, ...).
+Here the records are valued; :mod:`valuation.pipeline` chains reading, valuing and writing, and its
+``value_scheme(basis, members)`` is the one call a notebook user needs. A run returns a
+:class:`~valuation.engine.results.ValuationResult` with polars data frames.
 
 References
 ----------
