@@ -10,7 +10,8 @@ Usage::
 What is timed, in one process, after the scheme is generated in a child process (not counted):
 
 - the **I/O floor**: a plain polars read of the member file, and a Parquet write of one row a member (id
-  and one number) — what any tool must spend to read the file and write per-member results;
+  and one number) — what any tool must spend to read the file and write per-member results (timed in a
+  child process, so that holding the whole file does not count in the run's peak memory);
 - the **run**, through the same pipeline as ``valuation run`` (:func:`valuation.pipeline.run`) into a run
   folder with every output file, the workbook and the HTML summary included, split into its stages
   (read + validate, value, write) from the pipeline's progress calls, each with its ratio to the I/O floor;
@@ -88,6 +89,21 @@ class StageClock:
         return {"read + validate": t_value - self.start, "value": t_write - t_value, "write": end - t_write}
 
 
+def io_floor_in_child(path: Path, tmp: Path) -> dict[str, float]:
+    """:func:`io_floor` in a child process, so that its memory does not count in this process's peak."""
+    ctx = multiprocessing.get_context("spawn")
+    queue = ctx.Queue()
+    child = ctx.Process(target=_io_floor_to, args=(path, tmp, queue))
+    child.start()
+    result = queue.get()
+    child.join()
+    return result
+
+
+def _io_floor_to(path: Path, tmp: Path, queue: multiprocessing.Queue) -> None:  # type: ignore[type-arg]
+    queue.put(io_floor(path, tmp))
+
+
 def io_floor(path: Path, tmp: Path) -> dict[str, float]:
     """A plain polars read of the file, and a Parquet write of one row a member [s]."""
     import polars as pl
@@ -133,7 +149,7 @@ def main() -> int:
             print(f"generating the scheme failed (exit code {child.exitcode})", file=sys.stderr)
             return 1
         t_gen = time.perf_counter() - t0
-        floor = io_floor(path, tmp)
+        floor = io_floor_in_child(path, tmp)
         clock = StageClock()
         outcome = pipeline.run(basis, path, out=tmp / "run", sensitivities=sens, reports=not args.no_reports,
                                chunk_size=args.chunk_size, stream=args.stream, accept_exclusions=True,
