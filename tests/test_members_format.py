@@ -110,3 +110,24 @@ def test_bad_delimiter_option_is_a_usage_error(capsys):
         main(["check", str(BASIS_PATH), str(MEMBERS), "--delimiter", ";;"])
     assert exc.value.code == 2
     assert "one character" in capsys.readouterr().err
+
+
+def test_parquet_date_times_are_read_as_dates(tmp_path, basis):
+    """pandas and many tools write dates to Parquet as date-times at midnight (Apache Parquet's TIMESTAMP
+    logical type): they are the same dates as the file's text, with or without a time zone."""
+    import polars as pl
+
+    text = pl.read_csv(MEMBERS, infer_schema=False).head(25)
+    fmt = basis.mapping.date_format
+    plain = read_members(_write(tmp_path / "text.parquet", text), basis)
+    for tz in (None, "UTC"):
+        as_dt = text.with_columns(pl.col("DOB").str.strptime(pl.Datetime, fmt))
+        if tz:
+            as_dt = as_dt.with_columns(pl.col("DOB").dt.replace_time_zone(tz))
+        data = read_members(_write(tmp_path / f"dt{tz}.parquet", as_dt), basis)
+        assert data.records.equals(plain.records)
+
+
+def _write(path, frame):
+    frame.write_parquet(path)
+    return path

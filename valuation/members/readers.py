@@ -241,7 +241,10 @@ def _check_sheet(p: Path, sheet: str) -> None:
 
 def _as_text(df: pl.DataFrame, keep_types: bool) -> pl.DataFrame:
     """Every column cast to text, or (``keep_types``) every column but the 64-bit float, integer and date
-    ones, which validation reads in their own types."""
+    ones, which validation reads in their own types. A date-time column (as pandas writes dates) is read
+    as its calendar date, in its own time zone where it has one."""
+    if any(isinstance(t, pl.Datetime) for t in df.schema.values()):
+        df = df.with_columns(pl.col(pl.Datetime).dt.date())
     if not keep_types:
         return df.with_columns(pl.all().cast(pl.String))
     kept = [c for c, t in df.schema.items() if t == pl.Float64 or t == pl.Date or t.is_integer()]
