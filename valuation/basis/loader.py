@@ -128,6 +128,8 @@ def describe(err: dict[str, Any]) -> str:
     shown = "" if isinstance(given, dict | list) or given is None else f" (got {toml_text(given)})"
     if "[key]" in loc:
         shown = f" (got key {toml_text(loc[loc.index('[key]') - 1])})"
+    if not parts:  # a check across keys: its message names the keys itself
+        return f"{msg}{shown}"
     return f"key '{key}': {msg}{shown}"
 
 
