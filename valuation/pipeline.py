@@ -22,6 +22,7 @@ from valuation.engine.gate import check_exclusions
 from valuation.engine.results import ValuationResult
 from valuation.engine.run import DEFAULT_CHUNK, Progress, value_members
 from valuation.engine.stream import value_file_streaming
+from valuation.engine.summary import Records
 from valuation.engine.write import ExtraWriter, atomic_folder, check_output_folder, write_into
 from valuation.errors import DataError, ValuationError
 from valuation.experience import ExperienceSettings, analyse_experience
@@ -29,6 +30,7 @@ from valuation.experience.implied import ValuedScheme
 from valuation.experience.result import ExperienceResult
 from valuation.members.data import MemberData, members_from_frame, read_members
 from valuation.members.readers import DEFAULT_FORMAT, InputFormat
+from valuation.members.validate import UNKNOWN_STATUS
 from valuation.reports import write_html, write_workbook
 
 Say = Callable[[str], None]
@@ -233,7 +235,7 @@ def _run_streaming(
         result = value_file_streaming(basis, path, chunk_rows=chunk_size, member_results_path=tmp / "members.parquet",
                                       sensitivities=sensitivities, progress=progress, fmt=fmt)
         r = result.summary.records
-        say(f"records read {r.read:,} = valued {r.valued:,} + excluded {r.excluded:,}")
+        say(_reconciliation(r))
         if r.ignored_columns:
             warn("columns not used by the valuation (neither ours nor mapped in the basis's [mapping.columns]): "
                  + ", ".join(r.ignored_columns))
@@ -242,6 +244,17 @@ def _run_streaming(
             progress("writing", 0, 1)
         write_into(result, tmp, report_writers() if reports else [])
     return Outcome(result=result, folder=out)
+
+
+def _reconciliation(r: Records) -> str:
+    """records read = valued + excluded, then by status, as :meth:`MemberData.reconciliation_text` says it."""
+    lines = [f"records read {r.read:,} = valued {r.valued:,} + excluded {r.excluded:,}"]
+    for status, c in r.by_status.items():
+        lines.append(f"  {status}: read {c.read:,} = valued {c.valued:,} + excluded {c.excluded:,}")
+    unknown = r.read - sum(c.read for c in r.by_status.values())
+    if unknown:
+        lines.append(f"  {UNKNOWN_STATUS}: read {unknown:,} = valued 0 + excluded {unknown:,}")
+    return "\n".join(lines)
 
 
 def experience_only(
