@@ -207,7 +207,7 @@ def run(
     data = read(loaded, members, fmt)
     say(data.reconciliation_text())
     if data.ignored_columns:
-        warn("columns not used by the valuation (neither ours nor mapped in the basis's [mapping.columns]): "
+        warn("warning: columns not used by the valuation (neither ours nor mapped in the basis's [mapping.columns]): "
              + ", ".join(data.ignored_columns))
     gate(loaded, data.path, data.read, data.valued, data.excluded, accept_exclusions, warn)
     result = value_members(loaded, data, sensitivities=sensitivities, chunk_size=chunk_size, progress=progress,
@@ -237,7 +237,7 @@ def _run_streaming(
         r = result.summary.records
         say(_reconciliation(r))
         if r.ignored_columns:
-            warn("columns not used by the valuation (neither ours nor mapped in the basis's [mapping.columns]): "
+            warn("warning: columns not used by the valuation (neither ours nor mapped in the basis's [mapping.columns]): "
                  + ", ".join(r.ignored_columns))
         gate(basis, path, r.read, r.valued, r.excluded, accept_exclusions, warn)
         if progress:
