@@ -34,6 +34,7 @@ from valuation.experience.credibility import (
     full_credibility_standard,
     standard_text,
 )
+from valuation.experience.result import AE_COLUMNS
 from valuation.experience.settings import ExperienceSettings
 
 if TYPE_CHECKING:
@@ -50,17 +51,7 @@ BY_TABLE_COLUMNS: tuple[str, ...] = (
     "sex",
     "members",
     "current_percentage",
-    "exposure_years",
-    "actual_lives",
-    "expected_lives",
-    "ae_lives",
-    "ae_lives_lower",
-    "ae_lives_upper",
-    "actual_amounts",
-    "expected_amounts",
-    "ae_amounts",
-    "ae_amounts_lower",
-    "ae_amounts_upper",
+    *AE_COLUMNS,
     "expected_lives_at_risk",
     "credibility",
     "implied_percentage",

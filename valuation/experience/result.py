@@ -13,10 +13,9 @@ import polars as pl
 from valuation.csvout import write_csv
 from valuation.experience.settings import ExperienceSettings
 
-#: Columns of ``ExperienceResult.table`` (and experience.csv).
-TABLE_COLUMNS: tuple[str, ...] = (
-    "dimension",
-    "group",
+#: Exposure, actual and expected deaths and A/E with its interval, by lives and by amounts: the measures of
+#: every row of the experience tables.
+AE_COLUMNS: tuple[str, ...] = (
     "exposure_years",
     "actual_lives",
     "expected_lives",
@@ -29,6 +28,9 @@ TABLE_COLUMNS: tuple[str, ...] = (
     "ae_amounts_lower",
     "ae_amounts_upper",
 )
+
+#: Columns of ``ExperienceResult.table`` (and experience.csv).
+TABLE_COLUMNS: tuple[str, ...] = ("dimension", "group", *AE_COLUMNS)
 
 #: Columns experience.csv adds for the mortality-table rows (and the overall row): each table's own
 #: A/E by amounts with its credibility and implied percentage [%].
