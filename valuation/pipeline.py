@@ -129,6 +129,18 @@ def gate(basis: Basis, path: Any, read_n: int, valued: int, excluded: int, accep
             "listed in exceptions.csv and at the top of the reports")
 
 
+def _reconcile(
+    basis: Basis, path: Any, text: str, read_n: int, valued: int, excluded: int, ignored: Sequence[str],
+    accept: bool, say: Say, warn: Say,
+) -> None:
+    """Say the reconciliation, warn of the columns not used, and stop at the exclusion gate."""
+    say(text)
+    if ignored:
+        warn("warning: columns not used by the valuation (neither ours nor mapped in the basis's [mapping.columns]): "
+             + ", ".join(ignored))
+    gate(basis, path, read_n, valued, excluded, accept, warn)
+
+
 def valued_scheme(basis: Basis, data: MemberData, liability: float, chunk_size: int = DEFAULT_CHUNK) -> ValuedScheme:
     """The base liability and a re-valuation of the same records on another basis, for the experience."""
     return ValuedScheme(
@@ -205,11 +217,8 @@ def run(
     if progress:
         progress("reading", 0, 1)
     data = read(loaded, members, fmt)
-    say(data.reconciliation_text())
-    if data.ignored_columns:
-        warn("warning: columns not used by the valuation (neither ours nor mapped in the basis's [mapping.columns]): "
-             + ", ".join(data.ignored_columns))
-    gate(loaded, data.path, data.read, data.valued, data.excluded, accept_exclusions, warn)
+    _reconcile(loaded, data.path, data.reconciliation_text(), data.read, data.valued, data.excluded,
+               data.ignored_columns, accept_exclusions, say, warn)
     result = value_members(loaded, data, sensitivities=sensitivities, chunk_size=chunk_size, progress=progress,
                            input_files=experience.files if experience else [])
     outcome = Outcome(result=result, data=data)
@@ -235,11 +244,8 @@ def _run_streaming(
         result = value_file_streaming(basis, path, chunk_rows=chunk_size, member_results_path=tmp / "members.parquet",
                                       sensitivities=sensitivities, progress=progress, fmt=fmt)
         r = result.summary.records
-        say(_reconciliation(r))
-        if r.ignored_columns:
-            warn("warning: columns not used by the valuation (neither ours nor mapped in the basis's [mapping.columns]): "
-                 + ", ".join(r.ignored_columns))
-        gate(basis, path, r.read, r.valued, r.excluded, accept_exclusions, warn)
+        _reconcile(basis, path, _reconciliation(r), r.read, r.valued, r.excluded, r.ignored_columns,
+                   accept_exclusions, say, warn)
         if progress:
             progress("writing", 0, 1)
         write_into(result, tmp, report_writers() if reports else [])
