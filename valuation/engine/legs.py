@@ -26,6 +26,7 @@ References
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import NamedTuple
 
 import numpy as np
 from numpy.typing import NDArray
@@ -66,6 +67,15 @@ class Exits:
 
     def take(self, idx: NDArray[np.int64]) -> "Exits":
         return Exits(self.in_service[idx], self.left[idx], self.growth_left)
+
+
+class KeyClasses(NamedTuple):
+    """Keys grouped into classes (see :func:`key_classes`): class c holds ``order[bounds[c]:bounds[c + 1]]``."""
+
+    order: NDArray[np.int64]  # keys in class order
+    bounds: NDArray[np.int64]  # (C + 1,)
+    month_x: NDArray[np.int64]  # (C,) the member's month of age (0-11) in each class
+    month_y: NDArray[np.int64]  # (C,) the spouse's (0 for an own leg)
 
 
 @dataclass
@@ -299,22 +309,27 @@ def value_leg(
     guarantee: NDArray[np.int64] | None = None,
     rows_y: NDArray[np.int64] | None = None,
     y0: NDArray[np.float64] | None = None,
+    kept: dict[str, object] | None = None,
 ) -> LegResult:
-    """Value a leg with the compiled kernel; same parameters and results as :func:`value_leg_numpy`.
+    """Value a leg with the compiled kernels; same parameters and results as :func:`value_leg_numpy`.
+
+    Under UDD the keys are valued by classes (:func:`key_classes`, one walk over the months a class);
+    otherwise one walk a key. ``kept``: a dictionary kept by the caller for every scenario valued on the
+    same keys (a chunk's): the classes found are kept in it, since they depend on the keys' ages, rows and
+    dates alone.
 
     References
     ----------
     [DHW] eq. (5.12) and section 9.5; guaranteed annuities [DHW] section 5.6; attribution of a benefit on
     death to service, IAS 19 *Employee Benefits* para 70.
     """
-    from valuation.engine.kernels import leg_kernel
+    from valuation.engine.kernels import class_leg_kernel, leg_kernel
 
     K, J = weights.shape
     M = ctx.months
     unit_pv = np.zeros((K, J))
-    cashflow = np.zeros(M)
     if K == 0:
-        return LegResult(unit_pv, cashflow, np.zeros((J, M)))
+        return LegResult(unit_pv, np.zeros(M), np.zeros((J, M)))
     reversion = kind == "reversion"
     guar = np.zeros(K, dtype=np.int64) if guarantee is None else guarantee.astype(np.int64)
     first, end = payment_window(ctx, kind, x0, start, stop, y0)
@@ -327,10 +342,9 @@ def value_leg(
     left = exits.left if exits is not None else dummy
     grow_left = exits.growth_left if exits is not None else dummy
     svc = service if service is not None else np.zeros(1)
-    blocks = np.zeros((max(1, min(K // 256, 16)), J, M))
     f64 = np.float64
-    leg_kernel(
-        mrows.lx, mrows.q_rows, ctx.fractional == "udd", reversion, int(ctx.frequency), int(ctx.step),
+    common = (
+        reversion, int(ctx.frequency), int(ctx.step),
         np.ascontiguousarray(rows_x, dtype=np.int64), np.ascontiguousarray(x0, dtype=f64),
         np.ascontiguousarray(ry, dtype=np.int64), np.ascontiguousarray(yy, dtype=f64),
         first.astype(np.int64), end.astype(np.int64), np.ascontiguousarray(start, dtype=np.int64), guar,
@@ -340,10 +354,74 @@ def value_leg(
         np.ascontiguousarray(in_service, dtype=f64), np.ascontiguousarray(left, dtype=f64),
         np.ascontiguousarray(grow_left, dtype=f64), exits is not None,
         np.ascontiguousarray(svc, dtype=f64), service is not None,
-        ctx.v, np.ascontiguousarray(weights, dtype=f64), unit_pv, blocks,
+        ctx.v, np.ascontiguousarray(weights, dtype=f64), unit_pv,
     )
+    classes: KeyClasses | None
+    if kept is not None and "classes" in kept:
+        classes = kept["classes"]  # type: ignore[assignment]
+    else:
+        classes = key_classes(ctx, kind, rows_x, x0, first, end, start, guar, rows_y=rows_y, y0=y0, exits=exits,
+                              service=service)
+        if kept is not None:
+            kept["classes"] = classes
+    if classes is None:  # constant force, or an age below 0: one walk a key
+        blocks = np.zeros((max(1, min(K // 256, 16)), J, M))
+        leg_kernel(mrows.lx, mrows.q_rows, ctx.fractional == "udd", *common, blocks)
+    else:
+        blocks = np.zeros((max(1, min((len(classes.bounds) - 1) // 4, 16)), J, M))
+        class_leg_kernel(classes.order, classes.bounds, classes.month_x, classes.month_y, mrows.lx, mrows.q_rows, *common, blocks)
     by_tranche = blocks.sum(axis=0)
     return LegResult(unit_pv, by_tranche.sum(axis=0), by_tranche)
+
+
+def key_classes(
+    ctx: Context,
+    kind: str,
+    rows_x: NDArray[np.int64],
+    x0: NDArray[np.float64],
+    first: NDArray[np.int64],
+    end: NDArray[np.int64],
+    start: NDArray[np.int64],
+    guar: NDArray[np.int64],
+    *,
+    rows_y: NDArray[np.int64] | None = None,
+    y0: NDArray[np.float64] | None = None,
+    exits: Exits | None = None,
+    service: NDArray[np.float64] | None = None,
+) -> KeyClasses | None:
+    """Keys grouped into classes that one walk over the months values together (UDD only; see
+    :func:`valuation.engine.kernels.class_leg_kernel`): the same survival rows, whole years and months of
+    age, first and last payment month, start, guarantee end and, for a spouse's pension on a death before
+    the start, the same withdrawal row and service. None where classes do not apply (constant force between
+    ages, or an age below 0).
+
+    References
+    ----------
+    UDD: l(x + s) = l_x - s d_x for 0 <= s <= 1, linear in s [DHW section 3.3; Bowers et al. section 3.6].
+    """
+    reversion = kind == "reversion"
+    if ctx.fractional != "udd" or np.any(x0 < 0) or (reversion and y0 is not None and np.any(y0 < 0)):
+        return None
+
+    def month_of_age(age: NDArray[np.float64]) -> NDArray[np.int64]:
+        return np.clip(np.floor((age - np.floor(age)) * 12.0), 0, 11).astype(np.int64)
+
+    bx = month_of_age(x0)
+    cols: list[NDArray] = [rows_x, bx, first, end, start, guar]
+    by = np.zeros(len(x0), dtype=np.int64)
+    if reversion:
+        assert rows_y is not None and y0 is not None, "a reversion needs the spouse's row and age"
+        by = month_of_age(y0)
+        cols += [rows_y, by]
+        if service is not None:
+            cols.append(service)
+        if exits is not None:
+            cols.append(dedupe(*exits.in_service.T, *exits.left.T)[1])
+    _, cls = dedupe(*cols)
+    order = np.argsort(cls, kind="stable").astype(np.int64)
+    bounds = np.concatenate([[0], np.cumsum(np.bincount(cls))]).astype(np.int64)
+    heads = order[bounds[:-1]]
+    return KeyClasses(order, bounds, bx[heads], by[heads])
 
 
 def dedupe(*columns: NDArray) -> tuple[NDArray[np.int64], NDArray[np.int64]]:

@@ -303,7 +303,7 @@ class Valuer:
             m.once(f"leg {i} indexed", partial(_indexed_from_now, leg)) for i, leg in enumerate(legs)) else None
         for i, leg in enumerate(legs):
             values, flows, by_tranche = self.value_leg(
-                leg, m.once(f"leg {i} keys", partial(dedupe, *leg.key_columns())))
+                leg, m.once(f"leg {i} keys", partial(dedupe, *leg.key_columns())), m.once(f"leg {i} kept", dict))
             pensions[leg.benefit] = pensions.get(leg.benefit, np.zeros((N, J))) + values
             cash += flows
             if indexed is not None:
@@ -317,10 +317,12 @@ class Valuer:
 
     def value_leg(
         self, leg: Leg, keys: tuple[NDArray[np.int64], NDArray[np.int64]] | None = None,
+        kept: dict[str, object] | None = None,
     ) -> tuple[NDArray[np.float64], NDArray[np.float64], NDArray[np.float64]]:
         """Per-member PV (N, J) of a leg and its expected payments on the monthly grid, in all (M,) and by
         tranche (J, M), valued on keys (``keys``: each key's first member and each member's key, from
-        :func:`legs.dedupe`)."""
+        :func:`legs.dedupe`; ``kept``: what :func:`legs.value_leg` keeps for the next scenario on the same
+        keys)."""
         first, inv = keys if keys is not None else dedupe(*leg.key_columns())
 
         def at(a: NDArray | None) -> NDArray | None:
@@ -332,7 +334,7 @@ class Valuer:
             first_increase=leg.first_increase, growth=leg.growth,
             exits=None if leg.exits is None else leg.exits[0].take(leg.exits[1][first]),
             service=at(leg.service), stop=at(leg.stop), guarantee=at(leg.guarantee), rows_y=at(leg.rows_y),
-            y0=at(leg.y0),
+            y0=at(leg.y0), kept=kept,
         )
         by_tranche = res.cashflow_by_tranche if res.cashflow_by_tranche is not None else res.cashflow[None, :]
         return leg.amount * res.unit_pv[inv], res.cashflow, by_tranche
