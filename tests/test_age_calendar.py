@@ -45,3 +45,18 @@ def test_birthdays_follow_the_29_february_rule() -> None:
     dob = np.array([date(1960, 2, 29)] * 3 + [date(1970, 7, 15)], dtype="datetime64[D]")
     got = birthday(dob, np.array([60, 61, 64, 50])).astype(object).tolist()
     assert got == [date(2020, 2, 29), date(2021, 3, 1), date(2024, 2, 29), date(2020, 7, 15)]
+
+
+def test_exact_age_of_many_lives_is_the_date_by_date_age():
+    """Many dates of birth at one date are aged once a distinct day and looked up: the numbers must be the
+    date-by-date ones exactly (29 February births, missing dates and a wide span included)."""
+    import numpy as np
+
+    from valuation.survival import _exact_age, exact_age
+
+    rng = np.random.default_rng(3)
+    at = np.datetime64("2024-02-29")
+    dob = (np.datetime64("1920-01-01") + rng.integers(0, 38_000, 20_000)).astype("datetime64[D]")
+    dob[:50] = np.datetime64("1952-02-29")
+    dob[::301] = np.datetime64("NaT")
+    np.testing.assert_array_equal(exact_age(dob, at), _exact_age(dob, np.asarray(at)))

@@ -95,6 +95,15 @@ def exact_age(dob: ArrayLike, at: date | np.datetime64 | ArrayLike) -> NDArray[n
     """
     d = np.asarray(dob, dtype="datetime64[D]")
     a = np.asarray(at, dtype="datetime64[D]")
+    if a.ndim == 0 and d.size > _BY_DAY_MIN:
+        by_day = _exact_age_by_day(d, a)
+        if by_day is not None:
+            return by_day
+    return _exact_age(d, a)
+
+
+def _exact_age(d: NDArray[np.datetime64], a: NDArray[np.datetime64]) -> NDArray[np.float64]:
+    """:func:`exact_age` worked out date by date."""
     missing = np.isnat(d)
     d_ok = np.where(missing, a, d)
     birth_month = d_ok.astype("datetime64[M]")
@@ -110,6 +119,27 @@ def exact_age(dob: ArrayLike, at: date | np.datetime64 | ArrayLike) -> NDArray[n
     frac = (a - last).astype(np.float64) / (nxt - last).astype(np.float64)
     age = completed.astype(np.float64) + frac
     return np.where(missing, np.nan, age)
+
+
+#: From this many dates of birth on, :func:`exact_age` at one date works once a distinct day (the same
+#: numbers, by a look-up).
+_BY_DAY_MIN = 4096
+
+
+def _exact_age_by_day(d: NDArray[np.datetime64], a: NDArray[np.datetime64]) -> NDArray[np.float64] | None:
+    """:func:`exact_age` of many dates of birth at one date ``a``, computed once for each day from the
+    earliest to the latest date of birth and looked up; None when that span is longer than the dates."""
+    days = d.astype(np.int64)
+    known = ~np.isnat(d)
+    if not known.any():
+        return None
+    lo, hi = int(days[known].min()), int(days[known].max())
+    if hi - lo + 1 > d.size:
+        return None
+    table = _exact_age(np.arange(lo, hi + 1).astype("datetime64[D]"), a)
+    out = np.full(d.shape, np.nan)
+    out[known] = table[days[known] - lo]
+    return out
 
 
 def age_at(

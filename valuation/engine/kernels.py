@@ -697,3 +697,37 @@ def class_leg_kernel(
                                  rows_y, y0, first, end, start, guar, at_start, increase, first_adj, use_adj,
                                  increase_month, growth, in_service, left, growth_left, use_exits, service,
                                  use_service, pre, v, weights, unit_pv, cashflow)
+
+
+@njit(cache=True)
+def distinct_in_order(h: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Distinct values of ``h`` (int64, e.g. row hashes) in the order they first appear: (index of each
+    distinct value's first occurrence, number of each element's distinct value). One pass over an
+    open-addressing table of twice the length (linear probing)."""
+    n = h.shape[0]
+    size = 2
+    while size < 2 * n:
+        size *= 2
+    mask = size - 1
+    slots = np.full(size, -1, np.int64)
+    seen = np.empty(n, np.int64)
+    first = np.empty(n, np.int64)
+    inverse = np.empty(n, np.int64)
+    count = 0
+    for i in range(n):
+        x = h[i]
+        s = x & mask
+        while True:
+            k = slots[s]
+            if k == -1:
+                slots[s] = count
+                seen[count] = x
+                first[count] = i
+                inverse[i] = count
+                count += 1
+                break
+            if seen[k] == x:
+                inverse[i] = k
+                break
+            s = (s + 1) & mask
+    return first[:count].copy(), inverse

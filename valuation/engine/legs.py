@@ -427,16 +427,18 @@ def key_classes(
 def dedupe(*columns: NDArray) -> tuple[NDArray[np.int64], NDArray[np.int64]]:
     """Distinct rows of the stacked key columns: (index of each key's first member, key of each member).
 
-    Rows are hashed (polars) and the hashes de-duplicated; the result is verified column by column and,
-    in the unlikely event of a hash collision, recomputed with an exact row sort.
+    Rows are hashed (polars) and the hashes de-duplicated in one pass, keys numbered in the order they first
+    appear; the result is verified column by column and, in the unlikely event of a hash collision,
+    recomputed with an exact row sort.
     """
     import polars as pl
+
+    from valuation.engine.kernels import distinct_in_order
 
     cols = [np.asarray(c, dtype=float) for c in columns]
     frame = pl.DataFrame({f"c{i}": c for i, c in enumerate(cols)})
     hashes = frame.hash_rows(seed=17).to_numpy()
-    _, first, inverse = np.unique(hashes, return_index=True, return_inverse=True)
-    inverse = inverse.ravel()
+    first, inverse = distinct_in_order(np.ascontiguousarray(hashes).view(np.int64))
     same = all(np.array_equal(c, c[first][inverse], equal_nan=True) for c in cols)
     if not same:  # pragma: no cover - a 64-bit hash collision
         _, first, inverse = np.unique(np.column_stack(cols), axis=0, return_index=True, return_inverse=True)

@@ -15,7 +15,6 @@ References
 
 from __future__ import annotations
 
-import dataclasses
 from collections.abc import Iterator, Sequence
 from dataclasses import dataclass
 from datetime import date
@@ -54,7 +53,7 @@ class Projection:
     earned_with_pension: NDArray[np.float64]  # (N,) PV of lump sums that grow with the pension (commutation)
     lump_next_year: NDArray[np.float64]  # (N,) PV of one more year's attribution of lump sums on death
     annuity_factor: NDArray[np.float64]  # (N,) PV of own pension per 1 p.a. at its start
-    q_next: NDArray[np.float64]  # (N,) probability of death within a year
+    q_next: NDArray[np.float64]  # (N,) probability of death within a year (NaN: not asked of the valuer)
     amount_now: NDArray[np.float64]  # (N,) pension in payment or accrued today [currency p.a.]
     cashflow: NDArray[np.float64]  # (S, M) expected nominal payments by status and month
     tranches: list[str]
@@ -149,12 +148,14 @@ class Valuer:
 
     def __init__(
         self, basis: Basis, scenario: Scenario = BASE, base_multiplier: float = 1.0, *,
-        survival_of: Valuer | None = None,
+        survival_of: Valuer | None = None, deaths_next_year: bool = True,
     ) -> None:
         """``survival_of``: a valuer on the same basis whose survival this scenario keeps (it changes no
         mortality): its survival rows are reused, and what depends on them alone is worked out once a
-        chunk for both."""
+        chunk for both. ``deaths_next_year``: work out each member's probability of death within a year
+        (``Projection.q_next``; NaN otherwise, for a scenario whose expected deaths nobody reports)."""
         self.basis = basis
+        self.deaths_next_year = deaths_next_year
         self.scenario = scenario
         vd: date = basis.valuation_date
         self.valuation_date = np.datetime64(vd, "D")
@@ -209,7 +210,7 @@ class Valuer:
         """What valuing ``records`` needs that no scenario changes: each rule's records, ages and survival
         rows (every scenario's survival rows have the same layout), and, filled in as the first scenario
         asks, their keys. Value the result under as many scenarios as needed (:meth:`value`)."""
-        status = records["status"].to_numpy()
+        status = records["status"]
         parts = []
         for rule in RULES:
             sel = np.flatnonzero(rule.applies_to(status))
@@ -274,15 +275,15 @@ class Valuer:
         else:
             x0 = np.asarray(age_at(dob, self.valuation_date, self.basis.age_convention), dtype=float)
         rows_x = self.bc.rows(GROUP_OF_STATUS[rule.status], sex, x0)
-        return Members(frame=df, status=rule.status, sex=sex, dob=dob, x0=x0, rows_x=rows_x, lx0=np.empty(0))
+        return Members(frame=df, status=rule.status, sex=sex, dob=dob, x0=x0, rows_x=rows_x)
 
     def _value_rule(self, rule: BenefitRule, shared: Members) -> Projection:
         bc = self.bc
-        lx0 = shared.for_survival(bc, "lx0", lambda: bc.l(shared.rows_x, shared.x0))
-        m = dataclasses.replace(shared, lx0=lx0)  # the cache stays shared
+        m = shared
         N, J = m.n, len(self.tranches)
         # expected deaths in the next year
-        q_next = m.for_survival(bc, "q_next", lambda: 1.0 - bc.l(m.rows_x, m.x0 + 1.0) / lx0)
+        q_next = (m.for_survival(bc, "q_next", lambda: 1.0 - bc.l(m.rows_x, m.x0 + 1.0) / m.l_now(bc))
+                  if self.deaths_next_year else np.full(N, np.nan))
         terms = rule.terms(bc, m)
         cash = np.zeros(self.ctx.months)
         lumps: dict[Benefit, NDArray[np.float64]] = {}

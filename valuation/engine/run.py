@@ -233,10 +233,11 @@ class RunAccumulator:
         self.scenarios = scenarios_from_basis(basis, basis.valuation_date.year) if sensitivities else []
         self.base = Valuer(basis, BASE, q_multiplier)
         # scenarios that keep mortality share the base's survival (worked out once a chunk)
-        self.no_growth = Valuer(basis, Scenario(no_salary_growth=True), q_multiplier, survival_of=self.base)
+        self.no_growth = Valuer(basis, Scenario(no_salary_growth=True), q_multiplier, survival_of=self.base,
+                                deaths_next_year=False)
         # discount-rate scenarios come from the cash flows; the others are valued again
-        self.valuers = {sc.name: Valuer(basis, sc, q_multiplier, survival_of=self.base) for sc in self.scenarios
-                        if sc.kind != "discount_rate"}
+        self.valuers = {sc.name: Valuer(basis, sc, q_multiplier, survival_of=self.base, deaths_next_year=False)
+                        for sc in self.scenarios if sc.kind != "discount_rate"}
         self.member_sink = member_sink
         self.cash: np.ndarray | None = None
         self.cell_sums: dict[tuple[str, str], np.ndarray] = {}
@@ -264,8 +265,7 @@ class RunAccumulator:
         for _, lump in proj.lumps.items():
             self.lumps += float(lump.sum())
         self.cash = proj.cashflow if self.cash is None else self.cash + proj.cashflow
-        status = records["status"].to_numpy()
-        active = salary_dependent(status)
+        active = salary_dependent(records["status"])
         if active.any():
             act = records.filter(pl.Series(active))
             self.active_total += float(liability[active].sum())

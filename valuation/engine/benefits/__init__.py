@@ -8,6 +8,7 @@ it applies to, their pension's terms, its legs and lump sums, each carrying a be
 from __future__ import annotations
 
 import numpy as np
+import polars as pl
 from numpy.typing import NDArray
 
 from valuation.engine.benefits.active import ActivePension
@@ -30,7 +31,7 @@ PENSION_BENEFITS: tuple[Benefit, ...] = tuple(b for b in BENEFITS if any(b in r.
 LUMP_BENEFITS: tuple[Benefit, ...] = tuple(b for b in BENEFITS if any(b in r.lump_sums for r in RULES))
 
 
-def salary_dependent(status: NDArray) -> NDArray[np.bool_]:
+def salary_dependent(status: pl.Series) -> NDArray[np.bool_]:
     """Mask of the records whose benefits depend on salary (the accrued-benefit measure, the service cost
     and the salary-growth sensitivity re-value only these)."""
     mask = np.zeros(len(status), dtype=bool)

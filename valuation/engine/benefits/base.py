@@ -34,7 +34,7 @@ from valuation.basis.model import Basis
 from valuation.engine.context import Context, MortalityRows
 from valuation.engine.legs import Exits
 from valuation.survival import lx_at
-from valuation.vocabulary import Benefit, Group, Sex, Status, tranche_column
+from valuation.vocabulary import SEXES, Benefit, Group, Sex, Status, tranche_column
 
 LegKind = Literal["own", "reversion"]
 T = TypeVar("T")
@@ -63,11 +63,13 @@ class BenefitContext:
 
     def rows(self, group: Group | NDArray, sex: NDArray, age: NDArray[np.float64]) -> NDArray[np.int64]:
         """Survival row of each life: the (group, sex) mortality for the cohort of its age now."""
-        if isinstance(group, str):
-            group = np.full(len(sex), group)
         mid = np.zeros(len(sex), dtype=np.int64)
-        for (g, s), i in self.mort_ids.items():
-            mid[(group == g) & (sex == s)] = i
+        if isinstance(group, str):  # one group: a look-up by sex
+            for s in SEXES:
+                mid[sex == s] = self.mort_ids[(group, s)]
+        else:
+            for (g, s), i in self.mort_ids.items():
+                mid[(group == g) & (sex == s)] = i
         cohort = self.year - np.floor(age).astype(np.int64)
         return self.mrows.rows(mid, cohort)
 
@@ -100,7 +102,6 @@ class Members:
     dob: NDArray[np.datetime64]
     x0: NDArray[np.float64]  # exact age at the valuation date [years]
     rows_x: NDArray[np.int64]
-    lx0: NDArray[np.float64]
     cache: dict[str, Any] = field(default_factory=dict)
 
     @property
@@ -116,6 +117,10 @@ class Members:
     def for_survival(self, bc: BenefitContext, name: str, make: Callable[[], T]) -> T:
         """``make()`` for what depends on the survival in use alone: kept for the scenarios sharing it."""
         return make() if bc.survival_key is None else self.once(f"{bc.survival_key} {name}", make)
+
+    def l_now(self, bc: BenefitContext) -> NDArray[np.float64]:
+        """l at each member's age now on the survival in use."""
+        return self.for_survival(bc, "lx0", lambda: bc.l(self.rows_x, self.x0))
 
     def column(self, name: str, fill: float | None = None) -> NDArray[np.float64] | None:
         """A numeric column as floats (nulls as ``fill``, or NaN), or None where the frame lacks it."""
@@ -207,9 +212,9 @@ class BenefitRule(ABC):
     lump_sums: ClassVar[tuple[Benefit, ...]] = ()
     uses_salary: ClassVar[bool] = False
 
-    def applies_to(self, status: NDArray) -> NDArray[np.bool_]:
+    def applies_to(self, status: pl.Series) -> NDArray[np.bool_]:
         """Mask of the records this rule values (by the status column)."""
-        return np.asarray(status == self.status)
+        return (status == self.status).to_numpy()
 
     @abstractmethod
     def terms(self, bc: BenefitContext, m: Members) -> PensionTerms:

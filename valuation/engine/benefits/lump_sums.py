@@ -47,7 +47,7 @@ def commutation(bc: BenefitContext, m: Members, terms: PensionTerms) -> Lump | N
         return None
     ctx, start = bc.ctx, terms.start
     pens_at_ret = (terms.base * terms.at_start_full).sum(axis=1)
-    surv = m.for_survival(bc, "to retirement", lambda: bc.l(m.rows_x, m.x0 + start / 12.0) / m.lx0)
+    surv = m.for_survival(bc, "to retirement", lambda: bc.l(m.rows_x, m.x0 + start / 12.0) / m.l_now(bc))
     amount = comm.proportion * pens_at_ret * comm.factor * surv
     cash = np.bincount(start, weights=amount, minlength=ctx.months)[: ctx.months].astype(np.float64)
     return Lump(BENEFIT, pv=amount * ctx.v[start], cashflow=cash, earned_with_pension=True)
