@@ -38,7 +38,7 @@ from valuation.engine.context import (
     increase_month,
     revaluation_index,
 )
-from valuation.engine.legs import dedupe, sum_by_key, value_leg
+from valuation.engine.legs import LegResult, dedupe, sum_by_key, value_leg
 from valuation.engine.scenario import BASE, Scenario, curves, mortality_for
 from valuation.survival import age_at
 from valuation.vocabulary import GROUP_OF_STATUS, GROUPS, SEXES, STATUSES, Benefit
@@ -325,17 +325,49 @@ class Valuer:
         :func:`legs.dedupe`; ``kept``: what :func:`legs.value_leg` keeps for the next scenario on the same
         keys)."""
         first, inv = keys if keys is not None else dedupe(*leg.key_columns())
+        res, _ = self._leg_on_keys(leg, first, inv, kept)
+        by_tranche = res.cashflow_by_tranche if res.cashflow_by_tranche is not None else res.cashflow[None, :]
+        return leg.amount * res.unit_pv[inv], res.cashflow, by_tranche
+
+    def _leg_on_keys(
+        self, leg: Leg, first: NDArray[np.int64], inv: NDArray[np.int64], kept: dict[str, object] | None,
+    ) -> tuple[LegResult, NDArray[np.float64]]:
+        """The leg valued on its keys, and each key's amounts (the sum of its members' amounts), (K, J)."""
 
         def at(a: NDArray | None) -> NDArray | None:
             return None if a is None else a[first]
 
+        weights = sum_by_key(inv, len(first), leg.amount)
         res = value_leg(
             self.ctx, self.mrows, kind=leg.kind, rows_x=leg.rows_x[first], x0=leg.x0[first], start=leg.start[first],
-            weights=sum_by_key(inv, len(first), leg.amount), at_start=leg.at_start[first], increase=self.increase,
+            weights=weights, at_start=leg.at_start[first], increase=self.increase,
             first_increase=leg.first_increase, growth=leg.growth,
             exits=None if leg.exits is None else leg.exits[0].take(leg.exits[1][first]),
             service=at(leg.service), stop=at(leg.stop), guarantee=at(leg.guarantee), rows_y=at(leg.rows_y),
             y0=at(leg.y0), kept=kept,
         )
-        by_tranche = res.cashflow_by_tranche if res.cashflow_by_tranche is not None else res.cashflow[None, :]
-        return leg.amount * res.unit_pv[inv], res.cashflow, by_tranche
+        return res, weights
+
+    def total(self, records: Prepared, rules: Sequence[BenefitRule] | None = None) -> float:
+        """The liability [currency] of the records (of ``rules``' members only, if given): what
+        ``value(records, rules).liability.sum()`` gives, added up by key instead of by member, for a
+        scenario of which only the total is reported (a sensitivity).
+
+        References
+        ----------
+        PV of a group = sum over keys of (the key's amounts x its PV per unit) [DHW 2013, section 2.2;
+        the keys are lives with identical survival and dates].
+        """
+        bc = self.bc
+        total = 0.0
+        for rule, _, m in records.parts:
+            if rules is not None and rule not in rules:
+                continue
+            terms = rule.terms(bc, m)
+            for lump in rule.lumps(bc, m, terms):
+                total += float(lump.pv.sum())
+            for i, leg in enumerate(rule.legs(bc, m, terms)):
+                first, inv = m.once(f"leg {i} keys", partial(dedupe, *leg.key_columns()))
+                res, weights = self._leg_on_keys(leg, first, inv, m.once(f"leg {i} kept", dict))
+                total += float((weights * res.unit_pv).sum())
+        return total

@@ -269,7 +269,7 @@ class RunAccumulator:
         if active.any():
             act = records.filter(pl.Series(active))
             self.active_total += float(liability[active].sum())
-            self.abo += float(self.no_growth.value(prepared, SALARY_RULES).liability[active].sum())
+            self.abo += self.no_growth.total(prepared, SALARY_RULES)
             self._step("accrued-benefit measure")
             # current service cost: the value of the benefits the coming year of service earns. Pensions
             # (and the cash commuted from them) grow with service or with the accrued pension; the
@@ -289,18 +289,16 @@ class RunAccumulator:
                 continue
             if sc.kind == "salary_growth":
                 # salary growth changes actives' benefits only: re-value them, keep the rest
-                part = (self.valuers[sc.name].value(prepared, SALARY_RULES).liability[active].sum()
-                        if active.any() else 0.0)
+                part = self.valuers[sc.name].total(prepared, SALARY_RULES) if active.any() else 0.0
                 self.scenario_totals[sc.name] += float(liability[~active].sum() + part)
             elif not sc.changes_mortality:
                 # the same survival: pensions in payment follow from the base's expected payments per unit
                 # of the increase index; the other members are valued again
                 valuer = self.valuers[sc.name]
                 others = [r for r in RULES if r not in proj.indexed_rules]
-                self.scenario_totals[sc.name] += float(valuer.value(prepared, others).liability.sum()
-                                                       + valuer.indexed_value(proj))
+                self.scenario_totals[sc.name] += valuer.total(prepared, others) + valuer.indexed_value(proj)
             else:
-                self.scenario_totals[sc.name] += float(self.valuers[sc.name].value(prepared).liability.sum())
+                self.scenario_totals[sc.name] += self.valuers[sc.name].total(prepared)
             self._step(f"sensitivity: {sc.name}")
         code = _group_code(records)
         for key, values in proj.cells():

@@ -57,6 +57,40 @@ class ActiveTerms(PensionTerms):
     years: YearsInService | None = None
 
 
+def _on_tranche(n: int, n_tranches: int, j: int, values: NDArray[np.float64]) -> NDArray[np.float64]:
+    """(n, n_tranches) zeros with ``values`` in tranche column ``j``."""
+    out = np.zeros((n, n_tranches))
+    out[:, j] = values
+    return out
+
+
+def withdrawal(
+    rates: list[tuple[float, float]] | None, x0: NDArray[np.float64], years_to_retirement: NDArray[np.float64],
+    mid: NDArray[np.float64],
+) -> tuple[NDArray[np.bool_], NDArray[np.float64], NDArray[np.float64]]:
+    """Withdrawal at the mid-years ``mid`` [years] of lives aged ``x0`` now: whether each year's mid-point
+    is before retirement (K, Y), the rate of leaving then (the basis's step rates by age at the start of
+    the year, 0 from retirement on) and the probability of being in service at the end of each year
+    (withdrawal alone), (K, Y).
+
+    References
+    ----------
+    [DHW] section 10.5 (withdrawal as a decrement before retirement; service table).
+    """
+    n_int = len(mid)
+    in_window = mid[None, :] < years_to_retirement[:, None]
+    if rates:
+        steps = sorted(rates)
+        ages_from = np.array([a for a, _ in steps])
+        step_rates = np.array([r for _, r in steps])
+        pos = np.searchsorted(ages_from, x0[:, None] + np.arange(n_int)[None, :], side="right") - 1
+        w: NDArray[np.float64] = np.where(pos >= 0, step_rates[np.clip(pos, 0, None)], 0.0) * in_window
+    else:
+        w = np.zeros((len(x0), n_int))
+    stay = np.cumprod(1.0 - w, axis=1).astype(np.float64, copy=False)
+    return in_window, w, stay
+
+
 class ActivePension(BenefitRule):
     """Active members: projected unit credit pension with withdrawal; spouse's reversion; commutation cash
     and a lump sum on death in service."""
@@ -91,22 +125,15 @@ class ActivePension(BenefitRule):
         yrs = np.arange(n_int)
         mid = (yrs + 0.5).astype(np.float64)
         mid_m = np.clip(np.rint(mid * 12).astype(np.int64), 0, ctx.months - 1)
-        # everything that depends on age, survival row and retirement date alone is done once a key
+        # everything that depends on age, survival row and retirement date alone is done once a key, and
+        # once a chunk for every scenario
         first, inv = m.once("keys", lambda: dedupe(m.rows_x, m.x0, start))
         kx, kstart, krows = m.x0[first], start[first], m.rows_x[first]
         K = len(first)
         n_years = kstart / 12.0
-        in_window = mid[None, :] < n_years[:, None]  # (K, Y)
-        if basis.withdrawal:
-            steps = sorted(basis.withdrawal)
-            ages_from = np.array([a for a, _ in steps])
-            rates = np.array([r for _, r in steps])
-            pos = np.searchsorted(ages_from, kx[:, None] + yrs[None, :], side="right") - 1
-            w = np.where(pos >= 0, rates[np.clip(pos, 0, None)], 0.0) * in_window
-        else:
-            w = np.zeros((K, n_int))
-        stay = np.cumprod(1.0 - w, axis=1)  # in service at the end of year i (withdrawal only)
-        stay_before = np.column_stack([np.ones(K), stay[:, :-1]]) if n_int else np.ones((K, 0))
+        in_window, w, stay = m.once("withdrawal", lambda: withdrawal(basis.withdrawal, kx, n_years, mid))
+        stay_before = m.once("in service before", lambda: np.column_stack([np.ones(K), stay[:, :-1]])
+                             if n_int else np.ones((K, 0)))
         stay_to_ret = stay[:, -1] if n_int else np.ones(K)
 
         exits: tuple[Exits, NDArray[np.int64]] | None = None
@@ -115,8 +142,7 @@ class ActivePension(BenefitRule):
             at_ret = bc.revalue[:, start].T
             growth = bc.revalue
         else:
-            base = np.zeros((N, J))
-            base[:, dj] = float(basis.accrual_rate) * service * salary
+            base = m.once("base", lambda: _on_tranche(N, J, dj, float(basis.accrual_rate) * service * salary))
             rev = bc.revalue[dj]
             rev_to_ret = rev[kstart][:, None] / rev[mid_m][None, :]
             leavers = (stay_before * w * (1.0 + g) ** mid[None, :] * rev_to_ret).sum(axis=1)
@@ -126,7 +152,7 @@ class ActivePension(BenefitRule):
             growth = np.vstack([ctx.salary_index()] * J)
             # a death in month d follows m = exits_before(d) exit dates: in service with stay after m
             # exits; a leaver's pension revalued from exit to the death
-            in_service = np.column_stack([np.ones(K), stay])
+            in_service = m.once("in service", lambda: np.column_stack([np.ones(K), stay]))
             left_unit = stay_before * w * (1.0 + g) ** mid[None, :] / rev[mid_m][None, :]
             left = np.column_stack([np.zeros(K), np.cumsum(left_unit, axis=1)])
             exits = (Exits(in_service, left, np.vstack([rev] * J)), inv)
