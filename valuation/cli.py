@@ -27,6 +27,9 @@ from valuation.errors import ValuationError
 from valuation.version import __version__
 
 if TYPE_CHECKING:
+    from valuation.experience.result import ExperienceResult
+
+if TYPE_CHECKING:
     from valuation.engine.results import ValuationResult
 
 EXIT_OK, EXIT_INTERNAL, EXIT_USAGE, EXIT_INPUT, EXIT_EXCLUSIONS, EXIT_INTERRUPTED = 0, 1, 2, 3, 4, 130
@@ -236,21 +239,20 @@ def cmd_run(args: argparse.Namespace) -> int:
     return EXIT_OK
 
 
-def _experience_line(res: Any) -> str:
-    overall = res.table.filter(res.table["dimension"] == "overall")
-    if overall.height == 0:
+def _experience_line(res: ExperienceResult) -> str:
+    if res.table.filter(res.table["dimension"] == "overall").height == 0:
         return "deaths: no exposure in the period"
-    o = overall.row(0, named=True)
-    d = res.summary.get("records", {}).get("deaths", {})
-    counted = (f"deaths read {d['read']:,} = counted {d['counted']:,} + excluded {d['excluded']:,}\n"
-               if {"read", "counted", "excluded"} <= set(d) else "")
-    m = res.summary.get("records", {}).get("members", {})
-    if {"read", "valued", "excluded"} <= set(m):
-        counted = (f"start membership read {m['read']:,} = used {m['valued']:,} + excluded {m['excluded']:,}\n"
-                   + counted)
-    return counted + (f"deaths: A/E by lives {100 * o['ae_lives']:.1f} % ({100 * o['ae_lives_lower']:.1f} % to "
-            f"{100 * o['ae_lives_upper']:.1f} %); by amounts {100 * o['ae_amounts']:.1f} % "
-            f"({100 * o['ae_amounts_lower']:.1f} % to {100 * o['ae_amounts_upper']:.1f} %)")
+    o = res.overall()
+    d, m = res.summary["records"]["deaths"], res.summary["records"]["members"]
+    counted = (f"start membership read {m['read']:,} = used {m['valued']:,} + excluded {m['excluded']:,}\n"
+               f"deaths read {d['read']:,} = counted {d['counted']:,} + excluded {d['excluded']:,}\n")
+
+    def pct(ratio: float | None) -> str:
+        return "n/a" if ratio is None else f"{100 * ratio:.1f} %"
+
+    return counted + (f"deaths: A/E by lives {pct(o['ae_lives'])} ({pct(o['ae_lives_lower'])} to "
+                      f"{pct(o['ae_lives_upper'])}); by amounts {pct(o['ae_amounts'])} "
+                      f"({pct(o['ae_amounts_lower'])} to {pct(o['ae_amounts_upper'])})")
 
 
 #: Experience options and their defaults (``None`` on the parser, so that a value given without the

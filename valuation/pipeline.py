@@ -30,7 +30,7 @@ from valuation.errors import DataError, ValuationError
 from valuation.experience import ExperienceSettings, analyse_experience
 from valuation.experience.implied import ValuedScheme
 from valuation.experience.result import ExperienceResult
-from valuation.members.data import MemberData, members_from_frame, read_members
+from valuation.members.data import MemberData, MemberInput, members_from_frame, read_members
 from valuation.members.readers import DEFAULT_FORMAT, InputFormat
 from valuation.members.validate import UNKNOWN_STATUS
 from valuation.reports import write_html, write_workbook
@@ -73,10 +73,9 @@ def _check_exposure(res: ExperienceResult, start_members: Path, basis: Basis | N
     """An experience analysis with no exposure (no start member alive and in the scheme during the period)
     tells nothing: an input error, before anything is written. The start membership passes the same
     exclusion limit as the valuation's member file."""
-    members = (res.summary.get("records") or {}).get("members") or {}
-    if basis is not None and members:
-        gate(basis, start_members, int(members.get("read", 0)), int(members.get("valued", 0)),
-             int(members.get("excluded", 0)), accept, warn)
+    members = res.summary["records"]["members"]
+    if basis is not None:
+        gate(basis, start_members, members["read"], members["valued"], members["excluded"], accept, warn)
     overall = res.table.filter(pl.col("dimension") == "overall")
     if overall.height == 0 or not float(overall["exposure_years"].fill_null(0.0).sum()) > 0.0:
         raise DataError("the experience analysis has no exposure: no member of the start membership was in the "
@@ -90,7 +89,7 @@ def as_basis(basis: Basis | str | Path) -> Basis:
     return basis if isinstance(basis, Basis) else load_basis(basis)
 
 
-def read(basis: Basis, members: Any, fmt: InputFormat = DEFAULT_FORMAT) -> MemberData:
+def read(basis: Basis, members: MemberInput, fmt: InputFormat = DEFAULT_FORMAT) -> MemberData:
     """The member records, read once: from a file (CSV, XLSX, Parquet), a polars or pandas data frame, or
     records already read."""
     if isinstance(members, MemberData):
@@ -122,7 +121,7 @@ def writers_for(outcome: Outcome, *, reports: bool) -> list[ExtraWriter]:
     return writers
 
 
-def gate(basis: Basis, path: Any, read_n: int, valued: int, excluded: int, accept: bool, say: Say) -> None:
+def gate(basis: Basis, path: str | Path, read_n: int, valued: int, excluded: int, accept: bool, say: Say) -> None:
     """Stop a run that values nothing or leaves out too many records (:func:`check_exclusions`)."""
     check_exclusions(read=read_n, valued=valued, excluded=excluded, path=path,
                      max_share=basis.thresholds.max_excluded_share, accept=accept)
@@ -132,7 +131,7 @@ def gate(basis: Basis, path: Any, read_n: int, valued: int, excluded: int, accep
 
 
 def _reconcile(
-    basis: Basis, path: Any, text: str, read_n: int, valued: int, excluded: int, ignored: Sequence[str],
+    basis: Basis, path: str | Path, text: str, read_n: int, valued: int, excluded: int, ignored: Sequence[str],
     accept: bool, say: Say, warn: Say,
 ) -> None:
     """Say the reconciliation, warn of the columns not used, and stop at the exclusion gate."""
@@ -153,7 +152,7 @@ def valued_scheme(basis: Basis, data: MemberData, liability: float, chunk_size: 
 
 def run(
     basis: Basis | str | Path,
-    members: Any,
+    members: MemberInput,
     *,
     out: str | Path | None = None,
     overwrite: bool = False,
@@ -307,7 +306,7 @@ def experience_only(
                            loaded, accept_exclusions, warn)
 
 
-def value_scheme(basis: Basis | str | Path, members: Any, *, fmt: InputFormat | None = None, sensitivities: bool = True,
+def value_scheme(basis: Basis | str | Path, members: MemberInput, *, fmt: InputFormat | None = None, sensitivities: bool = True,
                  chunk_size: int = DEFAULT_CHUNK, progress: Progress | None = None) -> ValuationResult:
     """Value a scheme: the basis first (a TOML path or a loaded ``Basis``), then the members.
 

@@ -22,7 +22,7 @@ import re
 from datetime import date
 from fractions import Fraction
 from pathlib import Path
-from typing import Any, Literal
+from typing import TYPE_CHECKING, Any, Literal
 
 from pydantic import ConfigDict, Field, PrivateAttr, field_validator, model_validator
 
@@ -46,6 +46,10 @@ from valuation.basis.rules import (
 )
 from valuation.errors import BasisError, ValuationError, describe
 from valuation.vocabulary import GROUPS, OUR_COLUMNS, SEXES, Group, Sex, known_columns, tranche_column
+
+if TYPE_CHECKING:
+    from valuation.discounting import RateCurve
+    from valuation.mortality.basis import MortalityBasis
 
 _TRANCHE_NAME = re.compile(r"^[a-z][a-z0-9_]*$")
 _CURRENCY = re.compile(r"[A-Z]{3}")
@@ -255,19 +259,21 @@ class Basis(BasisModel):
         """Folder that relative paths in the basis are resolved against."""
         return self.source_path.parent
 
-    def discount_curve(self) -> Any:
+    def discount_curve(self) -> RateCurve:
         """The discount :class:`~valuation.discounting.RateCurve` (flat rate or spot curve file)."""
         key = ("discount", self.discount, self.base_dir)
         if key not in self._cache:
             self._cache[key] = build_curve(self.discount, self.base_dir, "discount")
-        return self._cache[key]
+        curve: RateCurve = self._cache[key]
+        return curve
 
-    def inflation_curve(self) -> Any:
+    def inflation_curve(self) -> RateCurve:
         """The price-inflation :class:`~valuation.discounting.RateCurve` (flat rate or curve file)."""
         key = ("inflation", self.inflation, self.base_dir)
         if key not in self._cache:
             self._cache[key] = build_curve(self.inflation, self.base_dir, "inflation")
-        return self._cache[key]
+        curve: RateCurve = self._cache[key]
+        return curve
 
     def mortality_key(self, group: Group, sex: Sex) -> str:
         """Dotted key of the entry a member group and sex use, e.g. ``"mortality.default.M"``.
@@ -283,7 +289,7 @@ class Basis(BasisModel):
         assert found is not None  # guaranteed by validation
         return f"mortality.{found}.{sex}"
 
-    def mortality(self, group: Group, sex: Sex) -> Any:
+    def mortality(self, group: Group, sex: Sex) -> MortalityBasis:
         """The :class:`~valuation.mortality.basis.MortalityBasis` for a member group and sex (cached).
 
         A group without its own entry falls back to ``default`` for that sex; ``spouse`` first falls back
@@ -317,7 +323,8 @@ class Basis(BasisModel):
                 said = str(exc.args[0]) if isinstance(exc, KeyError) and exc.args else describe(exc)
                 raise BasisError(f"key '{key}': {said}", file=self.source_path, fix=fix) from exc
             self._cache[cache_key] = (entry, mb)  # holding the entry keeps its id unique
-        return self._cache[cache_key][1]
+        found_basis: MortalityBasis = self._cache[cache_key][1]
+        return found_basis
 
     def closing_age(self, group: Group, sex: Sex) -> int:
         """Oldest integer age [years] the group's table can value after its age rating.

@@ -23,6 +23,7 @@ import polars as pl
 
 from valuation.basis.model import Basis
 from valuation.discounting import (
+    RateCurve,
     effective_duration,
     macaulay_duration,
     modified_duration,
@@ -40,6 +41,7 @@ from valuation.engine.scenario import (
     scenarios_from_basis,
 )
 from valuation.manifest import file_sha256
+from valuation.members.data import MemberData
 from valuation.version import __version__
 from valuation.vocabulary import SEXES, STATUSES
 
@@ -72,12 +74,12 @@ def _month_times(months: int) -> np.ndarray:
     return np.arange(months) / 12.0
 
 
-def discounted_total(cash: np.ndarray, curve: Any) -> float:
+def discounted_total(cash: np.ndarray, curve: RateCurve) -> float:
     """Present value [currency] of expected payments by month (index = months after the valuation date)."""
     return float(present_value(cash, _month_times(len(cash)), curve))
 
 
-def cashflow_measures(cash: np.ndarray, curve: Any) -> dict[str, float]:
+def cashflow_measures(cash: np.ndarray, curve: RateCurve) -> dict[str, float]:
     """PV, Macaulay, modified and effective duration and the single equivalent rate of monthly cash flows.
 
     References
@@ -104,7 +106,7 @@ def cashflow_measures(cash: np.ndarray, curve: Any) -> dict[str, float]:
     }
 
 
-def _yearly(cash: np.ndarray, curve: Any) -> pl.DataFrame:
+def _yearly(cash: np.ndarray, curve: RateCurve) -> pl.DataFrame:
     """Expected payments by projection year: nominal by status and in total, the year's discount factor and
     the discounted total.
 
@@ -434,7 +436,7 @@ def input_hashes(paths: Iterable[str | Path | None]) -> dict[str, str]:
     return out
 
 
-def _member_inputs(member_data: Any) -> dict[str, str]:
+def _member_inputs(member_data: MemberData) -> dict[str, str]:
     """The member records' entry in the manifest: the file's SHA-256, or the data frame's."""
     digest = getattr(member_data, "digest", None)
     if digest is not None:
@@ -443,8 +445,8 @@ def _member_inputs(member_data: Any) -> dict[str, str]:
 
 
 def value_members(
-    basis: Any,
-    member_data: Any,
+    basis: Basis,
+    member_data: MemberData,
     *,
     q_multiplier: float = 1.0,
     sensitivities: bool = True,
@@ -457,8 +459,6 @@ def value_members(
     ``q_multiplier`` scales every mortality rate (used by the experience analysis to re-value at an
     implied percentage of the table). Returns the full results; nothing is written.
     """
-    from valuation.basis.model import Basis
-
     if not isinstance(basis, Basis) and isinstance(member_data, Basis):
         raise TypeError("value_members takes the basis first: value_members(basis, member_data)")
     started = datetime.now(timezone.utc)

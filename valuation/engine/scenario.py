@@ -21,6 +21,7 @@ from valuation.basis.model import Basis
 from valuation.discounting import RateCurve
 from valuation.expectancy import complete_expectancy
 from valuation.mortality.basis import MortalityBasis
+from valuation.mortality.improvement import ImprovementScale
 from valuation.vocabulary import SEXES, Group, Sex
 
 
@@ -53,7 +54,7 @@ class Scenario:
 BASE = Scenario()
 
 
-def _long_term_rate(scale: Any) -> float:
+def _long_term_rate(scale: ImprovementScale) -> float:
     for attr in ("long_term_rate", "rate"):
         if hasattr(scale, attr):
             return float(getattr(scale, attr))

@@ -10,10 +10,12 @@ References
 from __future__ import annotations
 
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, cast
 
 import polars as pl
 
+if TYPE_CHECKING:
+    from valuation.basis.model import Basis
 from valuation.experience.cells import RateLookup, build_cells
 from valuation.experience.checks import EXCEPTION_SCHEMA, check_events, empty_exceptions
 from valuation.experience.events import read_events_with_headers
@@ -27,6 +29,13 @@ from valuation.experience.implied import (
 )
 from valuation.experience.result import TABLE_COLUMNS, ExperienceResult
 from valuation.experience.settings import ExperienceSettings
+from valuation.experience.summary import (
+    AERow,
+    ExperienceRecords,
+    ExperienceSummary,
+    RecordCounts,
+    SettingValue,
+)
 from valuation.experience.tables import (
     DIMENSIONS,
     ae_by_table,
@@ -47,7 +56,7 @@ def _conform(df: pl.DataFrame) -> pl.DataFrame:
     )
 
 
-def _member_headers(path: str | Path, basis: Any) -> dict[str, str]:
+def _member_headers(path: str | Path, basis: Basis) -> dict[str, str]:
     """Our column name -> the member file's header as written (for the exceptions' ``file_column``).
 
     Read from the file's header line where that is cheap (CSV, Parquet); otherwise the basis mapping's
@@ -73,7 +82,7 @@ def analyse_records(
     *,
     excluded_ids: pl.Series | None = None,
     member_exceptions: pl.DataFrame | None = None,
-    member_counts: dict[str, int] | None = None,
+    member_counts: RecordCounts | None = None,
     files: dict[str, str] | None = None,
     date_format: str | None = None,
     table_key: TableKey | None = None,
@@ -191,18 +200,20 @@ def analyse_records(
         ],
         how="vertical",
     )
-    counts: dict[str, Any] = {
+    d, x = checked.counts["deaths"], checked.counts["exits"]
+    in_cells = int(cells["deaths"].sum())
+    counts: ExperienceRecords = {
         "members": member_counts or {"read": records.height, "valued": records.height, "excluded": 0},
-        **checked.counts,
+        "deaths": {
+            "read": d["read"], "counted": d["counted"], "excluded": d["excluded"], "in_cells": in_cells,
+            "no_amounts_weight": int(cells.filter((pl.col("deaths") > 0) & (pl.col("actual_amounts") == 0)).height),
+            "left_out_at_closing_age": d["counted"] - in_cells,
+        },
+        "exits": {"read": x["read"], "applied": x["applied"], "excluded": x["excluded"]},
     }
-    counts["deaths"]["in_cells"] = int(cells["deaths"].sum())
-    counts["deaths"]["no_amounts_weight"] = int(
-        cells.filter((pl.col("deaths") > 0) & (pl.col("actual_amounts") == 0)).height
-    )
-    counts["deaths"]["left_out_at_closing_age"] = counts["deaths"]["counted"] - counts["deaths"]["in_cells"]
     public = table.select(TABLE_COLUMNS)
-    summary: dict[str, Any] = {
-        "settings": settings.as_dict(),
+    summary: ExperienceSummary = {
+        "settings": cast(dict[str, SettingValue], settings.as_dict()),
         "pension_band_edges": list(edges),
         "amounts_weight": (
             "each life weighted by its pension [currency p.a.]: actual deaths by the pension at death when "
@@ -210,9 +221,11 @@ def analyse_records(
             "no weight in actual or expected amounts"
         ),
         "records": counts,
-        "overall": public.filter(pl.col("dimension") == "overall").to_dicts()[0] if overall.height else None,
+        "overall": cast(AERow, public.filter(pl.col("dimension") == "overall").row(0, named=True))
+        if overall.height else None,
         "by_group": {
-            d: public.filter(pl.col("dimension") == d).drop("dimension").to_dicts() for d in DIMENSIONS[1:]
+            dim: cast(list[AERow], public.filter(pl.col("dimension") == dim).drop("dimension").to_dicts())
+            for dim in DIMENSIONS[1:]
         },
         "implied": implied,
         "exceptions": {
@@ -235,7 +248,7 @@ def analyse_records(
 def analyse_experience(
     members_path: str | Path,
     deaths_path: str | Path,
-    basis_path_or_basis: Any,
+    basis_path_or_basis: Basis | str | Path,
     settings: ExperienceSettings,
     *,
     exits_path: str | Path | None = None,

@@ -36,8 +36,10 @@ from valuation.experience.credibility import (
 )
 from valuation.experience.result import AE_COLUMNS
 from valuation.experience.settings import ExperienceSettings
+from valuation.experience.summary import ImpliedSummary, LiabilityEffect, PercentageChange, TableLine
 
 if TYPE_CHECKING:
+    from valuation.basis.model import Basis
     from valuation.basis.rules import Sex
     from valuation.vocabulary import Group
 
@@ -95,19 +97,23 @@ def _row(
     members: list[str],
     current: float | None,
     n_full: float,
-) -> dict[str, Any]:
+) -> TableLine:
     """One table's (or the overall) line: A/E by amounts, credibility and implied percentage."""
     ae = _finite(sums["ae_amounts"])
     lo = _finite(sums["ae_amounts_lower"])
     hi = _finite(sums["ae_amounts_upper"])
-    out: dict[str, Any] = {
+    out: TableLine = {
         "table": table,
         "group": group,
         "sex": sex,
         "members": members,
         "current_percentage": None if current is None else round(100.0 * current, 10),
-        **{k: float(sums[k]) for k in ("exposure_years", "actual_lives", "expected_lives")},
-        **{k: _finite(sums[k]) for k in ("ae_lives", "ae_lives_lower", "ae_lives_upper")},
+        "exposure_years": float(sums["exposure_years"]),
+        "actual_lives": float(sums["actual_lives"]),
+        "expected_lives": float(sums["expected_lives"]),
+        "ae_lives": _finite(sums["ae_lives"]),
+        "ae_lives_lower": _finite(sums["ae_lives_lower"]),
+        "ae_lives_upper": _finite(sums["ae_lives_upper"]),
         "actual_amounts": float(sums["actual_amounts"]),
         "expected_amounts": float(sums["expected_amounts"]),
         "ae_amounts": ae,
@@ -121,7 +127,7 @@ def _row(
         "note": None,
     }
     if ae is None or not sums["expected_amounts"] > 0:
-        out.update(ae_amounts=None, ae_amounts_lower=None, ae_amounts_upper=None, note=NO_AMOUNTS_NOTE)
+        out.update({"ae_amounts": None, "ae_amounts_lower": None, "ae_amounts_upper": None, "note": NO_AMOUNTS_NOTE})
         return out
     z = float(credibility_factor(sums["expected_lives_at_risk"], n_full))
     out["credibility"] = z
@@ -141,7 +147,7 @@ def implied_percentages(
     lookup: RateLookup,
     table_key: TableKey,
     settings: ExperienceSettings,
-) -> dict[str, Any]:
+) -> ImpliedSummary:
     """Each table's own A/E by amounts, credibility factor and credibility-weighted implied percentage.
 
     Parameters
@@ -225,7 +231,7 @@ def implied_percentages(
         if overall is not None
         else None
     )
-    o = overall_row or {}
+    o: TableLine | dict[str, None] = overall_row or {}
     return {
         "credibility_standard": {
             "probability": p,
@@ -250,7 +256,7 @@ def implied_percentages(
     }
 
 
-def by_table_frame(implied: dict[str, Any]) -> pl.DataFrame:
+def by_table_frame(implied: ImpliedSummary) -> pl.DataFrame:
     """``implied["by_table"]`` as a frame (:data:`BY_TABLE_COLUMNS`, members joined by ", ")."""
     schema: dict[str, Any] = dict.fromkeys(BY_TABLE_COLUMNS, pl.Float64)
     schema.update(table=pl.String, group=pl.String, sex=pl.String, members=pl.String, note=pl.String)
@@ -258,15 +264,15 @@ def by_table_frame(implied: dict[str, Any]) -> pl.DataFrame:
     return pl.DataFrame([{c: r.get(c) for c in BY_TABLE_COLUMNS} for r in rows], schema=schema)
 
 
-def revalued_basis(basis: Any, by_table: list[dict[str, Any]]) -> tuple[Any, dict[str, dict[str, float]]]:
+def revalued_basis(basis: Basis, by_table: list[TableLine]) -> tuple[Basis, dict[str, PercentageChange]]:
     """The basis with each analysed entry's percentage replaced by its implied percentage.
 
     Returns the new basis and the changes made, ``{"mortality.<group>.<sex>": {"from": %, "to": %}}``;
     entries with no implied percentage (no pension at risk) and entries no member of the start data
     uses are left as they are.
     """
-    entries = {g: dict(by_sex) for g, by_sex in basis.mortality_entries.items()}
-    changes: dict[str, dict[str, float]] = {}
+    entries: dict[str, dict[str, Any]] = {g: {s: e for s, e in by_sex.items()} for g, by_sex in basis.mortality_entries.items()}
+    changes: dict[str, PercentageChange] = {}
     for row in by_table:
         implied = row.get("implied_percentage")
         _, group, sex = str(row["table"]).split(".")
@@ -293,12 +299,12 @@ class ValuedScheme:
     """
 
     liability: float
-    revalue: Callable[[Any], float]
+    revalue: Callable[[Basis], float]
 
 
 def liability_effect(
-    valued: ValuedScheme | None, basis: Any, by_table: list[dict[str, Any]]
-) -> dict[str, Any]:
+    valued: ValuedScheme | None, basis: Basis | None, by_table: list[TableLine]
+) -> LiabilityEffect:
     """Liability on the basis as it stands, and with each table at its own implied percentage.
 
     Parameters
@@ -323,8 +329,9 @@ def liability_effect(
     (``valued.revalue`` on the basis with the new percentages), as for the life
     expectancy sensitivity of IAS 19 para. 145.
     """
-    skipped: dict[str, Any] = {"liability_before": None, "liability_after": None, "change_pct": None, "basis_changes": {}}
-    if valued is None:
+    skipped: LiabilityEffect = {"liability_before": None, "liability_after": None, "change_pct": None,
+                                "basis_changes": {}, "reason": None}
+    if valued is None or basis is None:
         return {**skipped, "reason": "no valuation member file given: liability effect not calculated"}
     changed, changes = revalued_basis(basis, by_table)
     if not changes:

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import json
 import math
+from collections.abc import Mapping
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
@@ -12,6 +13,7 @@ import polars as pl
 
 from valuation.csvout import write_csv
 from valuation.experience.settings import ExperienceSettings
+from valuation.experience.summary import AERow, ExperienceSummary, ImpliedSummary
 
 #: Exposure, actual and expected deaths and A/E with its interval, by lives and by amounts: the measures of
 #: every row of the experience tables.
@@ -90,15 +92,16 @@ class ExperienceResult:
 
     settings: ExperienceSettings
     table: pl.DataFrame
-    implied: dict[str, Any]
+    implied: ImpliedSummary
     exceptions: pl.DataFrame
-    summary: dict[str, Any]
+    summary: ExperienceSummary
     cells: pl.DataFrame | None = None
     by_table: pl.DataFrame | None = None
 
-    def overall(self) -> dict[str, Any]:
-        """The overall row of the table as a dict."""
-        return self.table.filter(pl.col("dimension") == "overall").row(0, named=True)
+    def overall(self) -> AERow:
+        """The overall row of the table."""
+        row: AERow = self.table.filter(pl.col("dimension") == "overall").row(0, named=True)  # type: ignore[assignment]
+        return row
 
     def csv_frame(self) -> pl.DataFrame:
         """What experience.csv holds: the overall row, one row a mortality table (dimension
@@ -109,18 +112,18 @@ class ExperienceResult:
         schema.update(sex=pl.String, table=pl.String, members=pl.String)
         rename = {"lower": "implied_percentage_lower", "upper": "implied_percentage_upper"}
 
-        def rows_of(d: dict[str, Any], dimension: str, group: str) -> dict[str, Any]:
-            d = {rename.get(k, k): v for k, v in d.items()}
+        def rows_of(line: Mapping[str, Any], dimension: str, group: str) -> dict[str, Any]:
+            d = {rename.get(k, k): v for k, v in line.items()}
             if isinstance(d.get("members"), list):
                 d["members"] = ", ".join(d["members"])
             return {c: d.get(c) for c in schema} | {"dimension": dimension, "group": group}
 
         base = self.table.select(TABLE_COLUMNS)
         overall = base.filter(pl.col("dimension") == "overall").to_dicts()
-        o = (self.implied or {}).get("overall") or {}
+        o: Mapping[str, Any] = self.implied.get("overall") or {}
         head = [rows_of(r | {k: v for k, v in o.items() if k in schema or k in rename}, "overall", r["group"])
                 for r in overall]
-        by_table = [rows_of(t, "mortality_table", t["group"]) for t in (self.implied or {}).get("by_table") or []]
+        by_table = [rows_of(t, "mortality_table", t["group"]) for t in self.implied.get("by_table") or []]
         first = pl.DataFrame(head + by_table, schema=schema)
         rest = base.filter(pl.col("dimension") != "overall")
         return pl.concat([first, rest], how="diagonal_relaxed").select(list(schema))

@@ -10,11 +10,14 @@ import hashlib
 from collections.abc import Iterator
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, TypeAlias
 
 import polars as pl
 
 from valuation.basis.model import Basis
+
+if TYPE_CHECKING:
+    import pandas as pd
 from valuation.members.parse import clean_text
 from valuation.members.readers import (
     DEFAULT_FORMAT,
@@ -40,7 +43,8 @@ from valuation.members.validate import (
     validate_frame,
 )
 
-__all__ = ["EXCEPTION_SCHEMA", "FIRST_ROW", "IGNORED_COLUMN", "UNKNOWN_STATUS", "CheckedFrame", "MemberData",
+__all__ = ["EXCEPTION_SCHEMA", "FIRST_ROW", "IGNORED_COLUMN", "UNKNOWN_STATUS", "CheckedFrame", "MemberData", "MemberFrame",
+           "MemberInput",
            "duplicate_ids", "empty_exceptions", "file_duplicates", "ignored_column_rows", "iter_checked",
            "members_from_frame", "read_members", "sum_counts", "validate_frame", "write_exceptions"]
 
@@ -201,7 +205,13 @@ def read_members(path: str | Path, basis: Basis, fmt: InputFormat = DEFAULT_FORM
     return _from_checked(p, list(iter_checked(p, basis, fmt)))
 
 
-def members_from_frame(frame: Any, basis: Basis, *, name: str = "(data frame)") -> MemberData:
+#: Member records held in memory: a polars or a pandas data frame.
+MemberFrame: TypeAlias = "pl.DataFrame | pd.DataFrame"
+#: What the pipeline values: a member file, a data frame, or records already read and checked.
+MemberInput: TypeAlias = "str | Path | pl.DataFrame | pd.DataFrame | MemberData"
+
+
+def members_from_frame(frame: MemberFrame, basis: Basis, *, name: str = "(data frame)") -> MemberData:
     """Validate member records held in a polars or pandas data frame, as :func:`read_members` does a file.
 
     Columns are matched and mapped as a file's headers are. Every value is read as text first (dates and

@@ -12,6 +12,8 @@ from typing import Any, Literal
 import polars as pl
 
 from valuation.engine.summary import Assumptions, JsonValue, RunSummary
+from valuation.experience.result import ExperienceResult
+from valuation.experience.summary import ImpliedSummary
 from valuation.reports import format as fmt
 from valuation.vocabulary import STATUSES
 
@@ -311,11 +313,11 @@ def status_rows(summary: RunSummary) -> list[dict[str, str | float]]:
     return rows
 
 
-def implied_notes(implied: dict[str, Any]) -> list[str]:
+def implied_notes(implied: ImpliedSummary) -> list[str]:
     """Plain sentences on the implied mortality level and the liability effect of an experience analysis
     (none when there is nothing to explain)."""
     out = []
-    std = implied.get("credibility_standard") or {}
+    std = implied.get("credibility_standard")
     if std and implied.get("by_table"):
         n_full = fmt.number(std.get("full_expected_deaths"))
         out.append(
@@ -346,7 +348,7 @@ def implied_notes(implied: dict[str, Any]) -> list[str]:
 _SHORT_GROUP = {"pensioner": "pensioners", "dependant": "dependants", "deferred": "deferred", "active": "actives"}
 
 
-def table_members(row: dict[str, Any]) -> str:
+def table_members(row: Mapping[str, Any]) -> str:
     """Who an experience table row covers, in words: ``Pensioners``, ``Default table: deferred,
     actives``, ``All members``."""
     group = str(row.get("group"))
@@ -358,7 +360,7 @@ def table_members(row: dict[str, Any]) -> str:
     return STATUS_LABELS.get(group, group.capitalize() + "s")
 
 
-def table_label(row: dict[str, Any]) -> str:
+def table_label(row: Mapping[str, Any]) -> str:
     """:func:`table_members` and the sex: ``Pensioners, men``."""
     if row.get("group") == "all":
         return "All members"
@@ -370,7 +372,7 @@ def _plain_reason(reason: str) -> str:
     return reason.split(": liability effect not calculated")[0].strip()
 
 
-def ae_by_age(experience: Any) -> pl.DataFrame:
+def ae_by_age(experience: ExperienceResult) -> pl.DataFrame:
     """The experience table's age-band rows (empty when no analysis was run)."""
     if experience is None:
         return pl.DataFrame()

@@ -8,11 +8,14 @@ in percent; they are divided by 100 here.
 
 from __future__ import annotations
 
+from collections.abc import Mapping
 from typing import Any, cast
 
 import polars as pl
 from openpyxl.worksheet.worksheet import Worksheet
 
+from valuation.experience.result import ExperienceResult
+from valuation.experience.summary import ImpliedSummary, TableLine
 from valuation.reports import content
 from valuation.reports import excel_cells as xc
 from valuation.reports import format as fmt
@@ -90,11 +93,11 @@ def _fraction(percent: Any) -> float | None:
     return None if percent is None else float(percent) / 100.0
 
 
-def headline_rows(implied: dict[str, Any], code: str | None = None) -> list[tuple[str, Any, str | None]]:
+def headline_rows(implied: ImpliedSummary, code: str | None = None) -> list[tuple[str, Any, str | None]]:
     """The overall A/E by amounts, the implied percentage of the table (when the tables share one), the
     credibility standard and the liability effect, as (label, value, number format) rows; percentages as
     fractions."""
-    std = implied.get("credibility_standard") or {}
+    std: Mapping[str, Any] = implied.get("credibility_standard") or {}
     rows: list[tuple[str, Any, str | None]] = [
         ("A/E by amounts (weighted by pension)", implied.get("multiplier"), PERCENT),
         ("  lower", implied.get("multiplier_lower"), PERCENT),
@@ -112,10 +115,10 @@ def headline_rows(implied: dict[str, Any], code: str | None = None) -> list[tupl
     return [r for r in rows if r[1] is not None]
 
 
-def by_table_frame(implied: dict[str, Any]) -> pl.DataFrame:
+def by_table_frame(implied: ImpliedSummary) -> pl.DataFrame:
     """One row a mortality table, then the overall line: who it covers in words, its own A/E by amounts
     and interval, credibility factor and implied percentage; percentages as fractions."""
-    rows = [*(implied.get("by_table") or []), *([implied["overall"]] if implied.get("overall") else [])]
+    rows: list[TableLine] = [*implied.get("by_table", []), *([o] if (o := implied.get("overall")) else [])]
     frame = pl.DataFrame(
         [{c: r.get(c) for c in _BY_TABLE_SCHEMA}
          | {"group": content.table_members(r), "sex": content.SEX_LABELS.get(str(r.get("sex")), "All"),
@@ -137,7 +140,7 @@ def _mark_missing(ws: Worksheet, frame: pl.DataFrame, top: int) -> None:
                 xc.put(ws, i, j, NONE_SHOWN)
 
 
-def experience_sheet(ws: Worksheet, experience: Any, currency: str | None = None) -> None:
+def experience_sheet(ws: Worksheet, experience: ExperienceResult, currency: str | None = None) -> None:
     """Write the experience analysis: period, headline A/E and its effect, implied percentages by table,
     A/E by age band with a chart, and every group; amounts in ``currency`` (an ISO 4217 code)."""
     head = xc.HEAD
@@ -150,7 +153,7 @@ def experience_sheet(ws: Worksheet, experience: Any, currency: str | None = None
     exp_labels, exp_formats = _in_currency(EXPERIENCE_LABELS, EXPERIENCE_FORMATS, currency)
     table_labels, table_formats = _in_currency(BY_TABLE_LABELS, _BY_TABLE_FORMATS, currency)
     ws.freeze_panes = ws.cell(row=head, column=1)
-    implied = experience.implied or {}
+    implied = experience.implied
     rows: list[tuple[str, Any, str | None]] = [
         ("Period start", settings.period_start, xc.DATE),
         ("Period end", settings.period_end, xc.DATE),

@@ -21,6 +21,7 @@ from valuation.reports import format as fmt
 
 if TYPE_CHECKING:
     from valuation.experience.result import ExperienceResult
+    from valuation.experience.summary import TableLine
 
 TEMPLATES = Path(__file__).with_name("templates")
 
@@ -71,7 +72,8 @@ def _experience(experience: ExperienceResult | None, code: str | None) -> dict[s
     bands = content.ae_by_age(experience)
     overall = experience.table.filter(pl.col("dimension") == "overall")
     settings = experience.settings
-    implied = experience.implied or {}
+    implied = experience.implied
+    lines: list[TableLine] = [*implied.get("by_table", []), *([o] if (o := implied.get("overall")) else [])]
     charted = content.chart_bands(bands)
     return {
         "overall": overall.row(0, named=True) if overall.height else None,
@@ -82,10 +84,8 @@ def _experience(experience: ExperienceResult | None, code: str | None) -> dict[s
         "implied": implied,
         "notes": content.implied_notes(implied),
         "amounts_unit": f" (pensions in {code} a year)" if code else "",
-        "by_table": [t | {"group_label": content.table_members(t),
-                          "sex_label": content.SEX_LABELS.get(t["sex"], "All")}
-                     for t in [*(implied.get("by_table") or []),
-                               *([implied["overall"]] if implied.get("overall") else [])]],
+        "by_table": [{**t, "group_label": content.table_members(t), "sex_label": content.SEX_LABELS.get(t["sex"], "All")}
+                     for t in lines],
         "period": f"{settings.period_start.isoformat()} to {settings.period_end.isoformat()}",
         "confidence": settings.confidence,
     }
