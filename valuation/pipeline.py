@@ -9,7 +9,6 @@ way to value the records already read on another basis (:class:`~valuation.exper
 
 from __future__ import annotations
 
-import threading
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -20,7 +19,6 @@ import polars as pl
 from valuation.basis import load_basis
 from valuation.basis.model import Basis
 from valuation.engine.gate import check_exclusions
-from valuation.engine.legs import load_kernels
 from valuation.engine.results import ValuationResult
 from valuation.engine.run import DEFAULT_CHUNK, Progress, value_members
 from valuation.engine.stream import value_file_streaming
@@ -215,15 +213,11 @@ def run(
                               sensitivities=sensitivities, reports=reports, chunk_size=chunk_size,
                               accept_exclusions=accept_exclusions, progress=progress, say=say, warn=warn,
                               inputs=inputs)
-    kernels = _kernels_in_background()
-    try:
-        if progress:
-            progress("reading", 0, 1)
-        data = read(loaded, members, fmt)
-        _reconcile(loaded, data.path, data.reconciliation_text(), data.read, data.valued, data.excluded,
-                   data.ignored_columns, accept_exclusions, say, warn)
-    finally:
-        kernels.join()  # never left running behind an error
+    if progress:
+        progress("reading", 0, 1)
+    data = read(loaded, members, fmt)
+    _reconcile(loaded, data.path, data.reconciliation_text(), data.read, data.valued, data.excluded,
+               data.ignored_columns, accept_exclusions, say, warn)
     result = value_members(loaded, data, sensitivities=sensitivities, chunk_size=chunk_size, progress=progress,
                            input_files=experience.files if experience else [])
     outcome = Outcome(result=result, data=data)
@@ -239,21 +233,6 @@ def run(
             write_into(result, tmp, writers_for(outcome, reports=reports))
         outcome.folder = Path(out)
     return outcome
-
-
-def _kernels_in_background() -> threading.Thread:
-    """Have the compiled kernels made ready while the member file is read (:func:`load_kernels`); a
-    failure there is left to the valuation itself to meet and report."""
-
-    def load() -> None:
-        try:
-            load_kernels()
-        except Exception:  # noqa: BLE001 - the valuation meets the same problem and reports it
-            pass
-
-    thread = threading.Thread(target=load, name="valuation-kernels", daemon=True)
-    thread.start()
-    return thread
 
 
 def _run_streaming(

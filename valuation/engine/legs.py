@@ -453,30 +453,3 @@ def sum_by_key(inverse: NDArray[np.int64], n_keys: int, values: NDArray[np.float
         out[:, j] = np.bincount(inverse, weights=values[:, j], minlength=n_keys)
     return out
 
-
-def load_kernels() -> None:
-    """Make the compiled kernels ready (numba loads them from its cache, or compiles them on a first run)
-    by valuing a tiny made-up scheme through every kernel a valuation under UDD calls, with arguments of
-    the same types, so that a caller can have it done while it reads the member file (``pipeline.run``)."""
-    from valuation.discounting import RateCurve
-    from valuation.engine.kernels import death_in_service_kernel
-    from valuation.survival import cohort_lx
-
-    ctx = Context(valuation_year=2025, frequency=12, advance=True, discount=RateCurve.flat(0.03),
-                  inflation=RateCurve.flat(0.02), salary_growth=0.0, fractional="udd", months=24)
-    q = np.full((2, MAX_AGE + 1), 0.5)
-    q[:, -1] = 1.0
-    mrows = MortalityRows(q_rows=q, lx=cohort_lx(q), offset=np.zeros(1, dtype=np.int64),
-                          first=np.zeros(1, dtype=np.int64), count=np.full(1, 2, dtype=np.int64))
-    rows = np.zeros(3, dtype=np.int64)
-    x0 = np.array([119.01, 119.02, 119.5])
-    index = np.ones((1, ctx.months))
-    common = dict(rows_x=rows, x0=x0, weights=np.ones((3, 1)), at_start=np.ones((3, 1)), increase=index)
-    value_leg(ctx, mrows, kind="own", start=np.zeros(3, dtype=np.int64), **common)  # type: ignore[arg-type]
-    value_leg(ctx, mrows, kind="reversion", start=np.full(3, 3, dtype=np.int64), first_increase=index,
-              growth=index, exits=Exits(np.ones((3, 2)), np.zeros((3, 2)), index), service=np.ones(3),
-              rows_y=rows, y0=x0, **common)  # type: ignore[arg-type]
-    inv = np.zeros(2, dtype=np.int64)
-    death_in_service_kernel(np.zeros((1, 1)), inv, np.ones(2), np.ones(2), np.ones(1), np.ones(1), np.zeros(2),
-                            np.zeros(1))
-    dedupe(x0)
