@@ -534,28 +534,33 @@ def _class_reversion(
     if not pre_start:
         a0 = _a_of(lxr, qxr, ax, bucket_x, 0, last)
         d0 = _d_of(lxr, qxr, ax, bucket_x, 0, last)
+        t0 = max(g, s)
+        if t0 > f_k:  # the first payment month on the grid from the guarantee's end and the start on
+            f_k += step * ((t0 - f_k + step - 1) // step)
         for tau in range(f_k, end[rep], step):
-            if tau < g or tau < s:
-                continue
-            ys[0] = _a_of(lyr, qyr, ay, bucket_y, tau, last)
-            ys[1] = _d_of(lyr, qyr, ay, bucket_y, tau, last)
-            if ys[0] == 0.0 and ys[1] == 0.0:
+            ya = _a_of(lyr, qyr, ay, bucket_y, tau, last)
+            yd = _d_of(lyr, qyr, ay, bucket_y, tau, last)
+            if ya == 0.0 and yd == 0.0:
                 break
-            xs[0] = a0 - _a_of(lxr, qxr, ax, bucket_x, tau, last)
-            xs[1] = d0 - _d_of(lxr, qxr, ax, bucket_x, tau, last)
+            xa = a0 - _a_of(lxr, qxr, ax, bucket_x, tau, last)
+            xd = d0 - _d_of(lxr, qxr, ax, bucket_x, tau, last)
+            q00 = xa * ya
+            q01 = xa * yd
+            q10 = xd * ya
+            q11 = xd * yd
             disc = v[tau]
             adj_on = use_adj and tau >= tf
             for j in range(J):
                 amount = increase[j, tau]
                 if adj_on:
                     amount *= first_adj[j, s]
-                cf = 0.0
-                for u in range(2):
-                    for e in range(2):
-                        paid = xs[u] * ys[e] * amount
-                        p_post[j, u, e] += paid * disc
-                        cf += paid * w_post[j, u, e]
-                cashflow[b, j, tau] += cf
+                ad = amount * disc
+                p_post[j, 0, 0] += q00 * ad
+                p_post[j, 0, 1] += q01 * ad
+                p_post[j, 1, 0] += q10 * ad
+                p_post[j, 1, 1] += q11 * ad
+                cashflow[b, j, tau] += amount * (q00 * w_post[j, 0, 0] + q01 * w_post[j, 0, 1]
+                                                 + q10 * w_post[j, 1, 0] + q11 * w_post[j, 1, 1])
     else:
         old = np.zeros((J, 2))
         new = np.zeros((J, 2))
@@ -632,6 +637,49 @@ def _class_reversion(
             unit_pv[k, j] = total
 
 
+@njit(cache=True)
+def _single_reversion(
+    k: int, b: int, lx: np.ndarray, q: np.ndarray, inv_freq: float, step: int, rows_x: np.ndarray,
+    x0: np.ndarray, rows_y: np.ndarray, y0: np.ndarray, first: np.ndarray, end: np.ndarray, start: np.ndarray,
+    guar: np.ndarray, at_start: np.ndarray, increase: np.ndarray, first_adj: np.ndarray, use_adj: bool,
+    increase_month: int, wv: np.ndarray, weights: np.ndarray, unit_pv: np.ndarray, cashflow: np.ndarray,
+    surv: np.ndarray,
+) -> None:
+    """One key's reversion with no deaths before the start, as :func:`leg_kernel` pays it (tp_y (1 - tp_x)
+    from the start and the guarantee's end on, UDD): the survival at each payment month first, into
+    ``surv`` (a work array of the grid's length), then each tranche's sums over it (``wv``: the increase
+    index times the discount factor, (J, M))."""
+    J = unit_pv.shape[1]
+    rx = rows_x[k]
+    ry = rows_y[k]
+    ix = 1.0 / _l_at(lx, q, rx, x0[k], True)
+    iy = 1.0 / _l_at(lx, q, ry, y0[k], True) * inv_freq
+    f_k = first[k]
+    s = start[k]
+    t0 = max(guar[k], s)
+    if t0 > f_k:
+        f_k += step * ((t0 - f_k + step - 1) // step)
+    stop = f_k
+    for tau in range(f_k, end[k], step):
+        py = _l_at(lx, q, ry, y0[k] + tau / 12.0, True)
+        if py == 0.0:
+            break
+        surv[tau] = py * iy * (1.0 - _l_at(lx, q, rx, x0[k] + tau / 12.0, True) * ix)
+        stop = tau + step
+    tf = _next_increase(s, increase_month)
+    for j in range(J):
+        coef = at_start[k, j] / increase[j, s]
+        w = weights[k, j] * coef
+        adj = first_adj[j, s] if use_adj else 1.0
+        total = 0.0
+        for tau in range(f_k, stop, step):
+            factor = adj if use_adj and tau >= tf else 1.0
+            paid = surv[tau] * factor
+            total += paid * wv[j, tau]
+            cashflow[b, j, tau] += paid * increase[j, tau] * w
+        unit_pv[k, j] = coef * total
+
+
 @njit(cache=True, parallel=True)
 def class_leg_kernel(
     order: np.ndarray,
@@ -676,13 +724,23 @@ def class_leg_kernel(
     B = cashflow.shape[0]
     inv_freq = 1.0 / frequency
     J = unit_pv.shape[1]
+    M = v.shape[0]
+    wv = np.empty((J, M))
+    for j in range(J):
+        for tau in range(M):
+            wv[j, tau] = increase[j, tau] * v[tau]
     for b in prange(B):
         coef = np.empty(J)
         acc = np.empty(J)
+        surv = np.empty(M)
         for c in range((C * b) // B, (C * (b + 1)) // B):
             p0 = bounds[c]
             p1 = bounds[c + 1]
-            if p1 - p0 == 1:  # a class of one: the walk of one key is shorter
+            if p1 - p0 == 1 and reversion and not (use_growth and start[order[p0]] >= 2):
+                _single_reversion(order[p0], b, lx, q, inv_freq, step, rows_x, x0, rows_y, y0, first, end, start,
+                                  guar, at_start, increase, first_adj, use_adj, increase_month, wv, weights,
+                                  unit_pv, cashflow, surv)
+            elif p1 - p0 == 1:  # a class of one: the walk of one key is shorter
                 _one_key(order[p0], b, lx, q, True, reversion, frequency, step, rows_x, x0, rows_y, y0, first,
                          end, start, guar, at_start, increase, first_adj, use_adj, increase_month, growth,
                          use_growth, in_service, left, growth_left, use_exits, service, use_service, v, weights,
