@@ -268,7 +268,7 @@ class Valuer:
 
     def _members(self, rule: BenefitRule, df: pl.DataFrame) -> Members:
         """One rule's records as arrays: sex, date of birth, age now and survival row (l now left empty)."""
-        sex = df["sex"].to_numpy().astype(str)
+        sex = np.asarray(SEXES)[df["sex"].cast(pl.Enum(list(SEXES))).to_physical().to_numpy()]
         dob = _days(df["date_of_birth"].to_numpy())
         if AGE_COLUMN in df.columns:  # computed once a chunk by the caller (see with_ages)
             x0 = df[AGE_COLUMN].to_numpy()
