@@ -115,6 +115,28 @@ def _indexed_from_now(leg: Leg) -> bool:
             and not leg.start.any() and bool(np.all(leg.at_start == 1.0)))
 
 
+def leg_keys(m: Members, legs: list[Leg], i: int) -> tuple[NDArray[np.int64], NDArray[np.int64]]:
+    """The keys of leg ``i`` of a rule's members (each key's first member, each member's key), found once
+    a chunk. The leg with the most key columns is keyed first; another leg's keys are then found among its
+    keys' first members alone, and kept where every member's columns agree with its key's (a leg's columns
+    that follow from the first leg's, as a member's own pension's do from the spouse's pension's), else
+    found afresh."""
+    def find() -> tuple[NDArray[np.int64], NDArray[np.int64]]:
+        widest = max(range(len(legs)), key=lambda j: len(legs[j].key_columns()))
+        if i == widest:
+            return dedupe(*legs[i].key_columns())
+        fine_first, fine_inv = leg_keys(m, legs, widest)
+        cols = legs[i].key_columns()
+        local_first, local_inv = dedupe(*[np.asarray(c)[fine_first] for c in cols])
+        first, inv = fine_first[local_first], local_inv[fine_inv]
+        if all(np.array_equal(np.asarray(c, dtype=float), np.asarray(c, dtype=float)[first][inv], equal_nan=True)
+               for c in cols):
+            return first, inv
+        return dedupe(*cols)
+
+    return m.once(f"leg {i} keys", find)
+
+
 def _sum_optional(arrays: list[NDArray[np.float64] | None]) -> NDArray[np.float64] | None:
     present = [a for a in arrays if a is not None]
     return sum(present[1:], present[0].copy()) if present else None
@@ -303,8 +325,7 @@ class Valuer:
         indexed: NDArray[np.float64] | None = np.zeros((J, self.ctx.months)) if not lumps and all(
             m.once(f"leg {i} indexed", partial(_indexed_from_now, leg)) for i, leg in enumerate(legs)) else None
         for i, leg in enumerate(legs):
-            values, flows, by_tranche = self.value_leg(
-                leg, m.once(f"leg {i} keys", partial(dedupe, *leg.key_columns())), m.once(f"leg {i} kept", dict))
+            values, flows, by_tranche = self.value_leg(leg, leg_keys(m, legs, i), m.once(f"leg {i} kept", dict))
             pensions[leg.benefit] = pensions.get(leg.benefit, np.zeros((N, J))) + values
             cash += flows
             if indexed is not None:
@@ -366,8 +387,9 @@ class Valuer:
             terms = rule.terms(bc, m)
             for lump in rule.lumps(bc, m, terms):
                 total += float(lump.pv.sum())
-            for i, leg in enumerate(rule.legs(bc, m, terms)):
-                first, inv = m.once(f"leg {i} keys", partial(dedupe, *leg.key_columns()))
+            legs = rule.legs(bc, m, terms)
+            for i, leg in enumerate(legs):
+                first, inv = leg_keys(m, legs, i)
                 res, weights = self._leg_on_keys(leg, first, inv, m.once(f"leg {i} kept", dict))
                 total += float((weights * res.unit_pv).sum())
         return total
