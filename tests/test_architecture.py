@@ -32,13 +32,15 @@ ALLOWED: dict[str, set[str]] = {
     "members": BOTTOM | FORMULAS | {"mortality", "basis"},
     "engine": BOTTOM | FORMULAS | {"mortality", "basis", "members"},
     "experience": BOTTOM | FORMULAS | {"mortality", "basis", "members"},
-    "reports": BOTTOM | FORMULAS | {"mortality", "basis", "members", "engine", "experience"},
-    "pipeline": BOTTOM | FORMULAS | {"mortality", "basis", "members", "engine", "experience", "reports"},
-    "batch": BOTTOM | FORMULAS | {"mortality", "basis", "members", "engine", "experience", "reports", "pipeline"},
-    "cli": BOTTOM | FORMULAS | {"mortality", "basis", "members", "engine", "experience", "reports", "pipeline",
-                                "batch", "valuation"},
-    "valuation": BOTTOM | FORMULAS | {"mortality", "basis", "members", "engine", "experience", "reports",
-                                      "pipeline", "batch"},
+    "movements": BOTTOM | FORMULAS | {"mortality", "basis", "members", "experience"},
+    "reports": BOTTOM | FORMULAS | {"mortality", "basis", "members", "engine", "experience", "movements"},
+    "pipeline": BOTTOM | FORMULAS | {"mortality", "basis", "members", "engine", "experience", "movements", "reports"},
+    "batch": BOTTOM | FORMULAS | {"mortality", "basis", "members", "engine", "experience", "movements", "reports",
+                                  "pipeline"},
+    "cli": BOTTOM | FORMULAS | {"mortality", "basis", "members", "engine", "experience", "movements", "reports",
+                                "pipeline", "batch", "valuation"},
+    "valuation": BOTTOM | FORMULAS | {"mortality", "basis", "members", "engine", "experience", "movements",
+                                      "reports", "pipeline", "batch"},
 }
 
 

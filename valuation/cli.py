@@ -356,6 +356,20 @@ def cmd_experience(args: argparse.Namespace) -> int:
     return EXIT_OK
 
 
+def cmd_movements(args: argparse.Namespace) -> int:
+    from valuation import pipeline
+
+    out = Path(args.out) if args.out else _default_out("movements", args.period_end)
+    found = pipeline.movements(
+        args.basis, args.previous, args.current, period_start=args.period_start, period_end=args.period_end,
+        deaths=args.deaths, exits=args.exits, out=out, overwrite=args.overwrite, fmt=_input_format(args),
+        settings={k: str(v) for k, v in vars(args).items() if k not in ("func", "parser")},
+    )
+    _say(args, found.text())
+    _say(args, f"written to {out}/")
+    return EXIT_OK
+
+
 def cmd_table(args: argparse.Namespace) -> int:
     from valuation.engine.write import atomic_file, check_output_file
     from valuation.mortality.inspect import describe_tables, table_chart
@@ -504,6 +518,28 @@ def build_parser() -> argparse.ArgumentParser:
                    help="analyse even when more start-membership records are excluded than the basis allows")
     common(e)
     e.set_defaults(parser=e, func=cmd_experience)
+    mv = sub.add_parser("movements", help="membership movements between two member extracts", formatter_class=fmt,
+                        epilog=textwrap.dedent("""\
+        example:
+          valuation movements assumptions/demo_basis.toml member_data_demo/members_start.csv \\
+              member_data_demo/members.csv --period-start 2022-03-31 --period-end 2025-03-31 \\
+              --deaths member_data_demo/deaths.csv --exits member_data_demo/exits.csv
+        """) + EPILOG_EXIT)
+    mv.add_argument("basis", type=existing_file, help="assumptions basis (TOML): its [mapping] reads both extracts")
+    mv.add_argument("previous", type=existing_file, help="member data at the start of the period")
+    mv.add_argument("current", type=existing_file, help="member data at the end of the period")
+    mv.add_argument("--period-start", "--start", dest="period_start", type=iso_date, required=True,
+                    help="period start: the previous extract's date (ISO date YYYY-MM-DD)")
+    mv.add_argument("--period-end", "--end", dest="period_end", type=iso_date, required=True,
+                    help="period end: the current extract's date (ISO date YYYY-MM-DD)")
+    mv.add_argument("--deaths", type=existing_file, help="deaths file: member_id, date_of_death[, pension_at_death]")
+    mv.add_argument("--exits", type=existing_file, help="other exits: member_id, exit_date, reason")
+    _format_options(mv)
+    mv.add_argument("--out", type=new_path, help="folder to write: new, empty, or a previous one with --overwrite "
+                                  "(default: outputs/movements-<period end>, never an existing folder)")
+    _overwrite(mv, "a previous movements folder in --out")
+    common(mv)
+    mv.set_defaults(parser=mv, func=cmd_movements)
     t = sub.add_parser("table", help="look at a mortality table or improvement scale file before using it",
                        formatter_class=fmt, epilog=textwrap.dedent("""\
         examples:

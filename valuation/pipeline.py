@@ -11,6 +11,7 @@ from __future__ import annotations
 
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
+from datetime import date
 from pathlib import Path
 from typing import Any
 
@@ -20,18 +21,21 @@ from valuation.basis import load_basis
 from valuation.basis.model import Basis
 from valuation.engine.gate import check_exclusions
 from valuation.engine.results import ValuationResult
-from valuation.engine.run import DEFAULT_CHUNK, Progress, value_members
+from valuation.engine.run import DEFAULT_CHUNK, Progress, input_hashes, value_members
 from valuation.engine.stream import value_file_streaming
 from valuation.engine.summary import Records
-from valuation.engine.write import ExtraWriter, atomic_folder, check_output_folder, write_into
+from valuation.engine.write import MANIFEST, ExtraWriter, atomic_folder, check_output_folder, write_into
 from valuation.errors import DataError, ValuationError
 from valuation.experience import ExperienceSettings, analyse_experience
 from valuation.experience.implied import ValuedScheme
 from valuation.experience.result import ExperienceResult
+from valuation.manifest import dump_json
 from valuation.members.data import MemberData, MemberInput, members_from_frame, read_members
 from valuation.members.readers import DEFAULT_FORMAT, InputFormat
 from valuation.members.validate import UNKNOWN_STATUS
+from valuation.movements import MovementsRun, membership_movements
 from valuation.reports import write_html, write_workbook
+from valuation.version import __version__
 
 Say = Callable[[str], None]
 _MEMBER_SUFFIXES = (".csv", ".txt", ".xlsx", ".parquet")
@@ -283,6 +287,38 @@ def experience_only(
     return _check_exposure(analyse_experience(inputs.start_members, inputs.deaths, loaded, inputs.settings,
                                               exits_path=inputs.exits, valued=valued), inputs.start_members,
                            loaded, accept_exclusions, warn)
+
+
+def movements(
+    basis: Basis | str | Path,
+    previous: str | Path,
+    current: str | Path,
+    *,
+    period_start: date,
+    period_end: date,
+    deaths: str | Path | None = None,
+    exits: str | Path | None = None,
+    out: str | Path | None = None,
+    overwrite: bool = False,
+    fmt: InputFormat = DEFAULT_FORMAT,
+    settings: dict[str, str] | None = None,
+) -> MovementsRun:
+    """Membership movements between two member extracts (:mod:`valuation.movements`), and its folder when
+    ``out`` is given: movements.json, movements.csv, movement_members.csv, movements_exceptions.csv and the
+    manifest (input hashes, tool version, ``settings``). The output folder is checked before any work."""
+    loaded = as_basis(basis)
+    inputs: list[Any] = [p for p in (loaded.source_path, previous, current, deaths, exits) if p is not None]
+    if out is not None:
+        check_output_folder(out, overwrite=overwrite, inputs=inputs)
+    found = membership_movements(loaded, previous, current, period_start=period_start, period_end=period_end,
+                                 deaths_path=deaths, exits_path=exits, fmt=fmt)
+    if out is not None:
+        with atomic_folder(out, overwrite=overwrite, inputs=inputs) as tmp:
+            found.write(tmp)
+            dump_json({"tool_version": __version__, "command": "movements", "inputs": input_hashes(inputs),
+                       "settings": settings or {"period_start": period_start.isoformat(),
+                                                "period_end": period_end.isoformat()}}, tmp / MANIFEST)
+    return found
 
 
 def value_scheme(basis: Basis | str | Path, members: MemberInput, *, fmt: InputFormat | None = None, sensitivities: bool = True,
