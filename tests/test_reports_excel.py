@@ -39,10 +39,21 @@ from valuation.reports.excel import SHEETS
 
 @pytest.fixture(scope="module")
 def run_folder(tmp_path_factory: pytest.TempPathFactory) -> Path:
+    from datetime import date
+
+    from valuation.basis import load_basis
+    from valuation.movements import membership_movements
+
     result, experience = real_run()
+    root = Path(__file__).resolve().parents[1]
+    moved = membership_movements(load_basis(root / "assumptions" / "demo_basis.toml"),
+                                 root / "member_data_demo" / "members_start.csv", root / "member_data_demo" / "members.csv",
+                                 period_start=date(2022, 3, 31), period_end=date(2025, 3, 31),
+                                 deaths_path=root / "member_data_demo" / "deaths.csv",
+                                 exits_path=root / "member_data_demo" / "exits.csv").result
 
     def workbook(res, folder: Path) -> None:
-        write_workbook(res, folder / "valuation.xlsx", experience=experience)
+        write_workbook(res, folder / "valuation.xlsx", experience=experience, movements=moved)
 
     return write_run(result, tmp_path_factory.mktemp("xlsx") / "run", extra=[workbook])
 
@@ -72,7 +83,21 @@ def test_all_sheets_present_in_order(book) -> None:
 
 def test_experience_sheet_only_when_analysis_run(tmp_path: Path) -> None:
     path = write_workbook(make_result(), tmp_path / "v.xlsx")
-    assert load_workbook(path).sheetnames == [s for s in SHEETS if s != "Experience"]
+    assert load_workbook(path).sheetnames == [s for s in SHEETS if s not in ("Experience", "Movements")]
+
+
+def test_movements_sheet_balances(book) -> None:
+    """The Movements sheet of the demo run: start + each movement = end on every status row (the
+    reconciliation of membership, common practice), and the total row is the extracts' record counts."""
+    path, _ = book
+    ws = load_workbook(path)["Movements"]
+    rows = [r for r in ws.iter_rows(values_only=True) if r and r[0] in ("pensioner", "dependant", "deferred",
+                                                                        "active", "total")]
+    assert len(rows) == 5
+    for row in rows:
+        numbers = [v for v in row[1:] if isinstance(v, int | float)]
+        assert numbers[0] + sum(numbers[1:-1]) == numbers[-1]
+    assert rows[-1][1] == 3000 and [v for v in rows[-1] if isinstance(v, int)][-1] == 2869
 
 
 # openpyxl stores numbers with 16 significant digits (openpyxl.compat.strings.safe_string, "%.16g"); Excel

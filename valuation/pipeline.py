@@ -33,7 +33,7 @@ from valuation.manifest import dump_json
 from valuation.members.data import MemberData, MemberInput, members_from_frame, read_members
 from valuation.members.readers import DEFAULT_FORMAT, InputFormat
 from valuation.members.validate import UNKNOWN_STATUS
-from valuation.movements import MovementsRun, membership_movements
+from valuation.movements import MovementsResult, MovementsRun, membership_movements
 from valuation.reports import write_html, write_workbook
 from valuation.version import __version__
 
@@ -63,6 +63,8 @@ class Outcome:
     result: ValuationResult
     experience: ExperienceResult | None = None
     folder: Path | None = None
+    #: the membership movements from the start membership to the valued members (with the experience)
+    movements: MovementsRun | None = None
     data: MemberData | None = field(default=None, repr=False)
 
 
@@ -101,25 +103,29 @@ def read(basis: Basis, members: MemberInput, fmt: InputFormat = DEFAULT_FORMAT) 
     return members_from_frame(members, basis)
 
 
-def report_writers(experience: ExperienceResult | None = None) -> list[ExtraWriter]:
+def report_writers(experience: ExperienceResult | None = None,
+                   movements: MovementsResult | None = None) -> list[ExtraWriter]:
     """Writers of the actuary's workbook (``valuation.xlsx``) and the trustees' summary (``summary.html``),
-    with an experience analysis in both when one is given."""
+    with an experience analysis and the membership movements in both when they are given."""
 
     def workbook(result: ValuationResult, folder: Path) -> None:
-        write_workbook(result, folder / "valuation.xlsx", experience=experience)
+        write_workbook(result, folder / "valuation.xlsx", experience=experience, movements=movements)
 
     def html(result: ValuationResult, folder: Path) -> None:
-        write_html(result, folder / "summary.html", experience=experience)
+        write_html(result, folder / "summary.html", experience=experience, movements=movements)
 
     return [workbook, html]
 
 
 def writers_for(outcome: Outcome, *, reports: bool) -> list[ExtraWriter]:
     """Every writer a run folder needs beyond the tables: reports, and the experience files."""
-    writers = report_writers(outcome.experience) if reports else []
+    moved = outcome.movements
+    writers = report_writers(outcome.experience, moved.result if moved else None) if reports else []
     experience = outcome.experience
     if experience is not None:
         writers.append(lambda _res, folder: experience.write(folder))
+    if moved is not None:
+        writers.append(lambda _res, folder: moved.write(folder, inputs_listed=False))
     return writers
 
 
@@ -226,10 +232,15 @@ def run(
                            input_files=experience.files if experience else [])
     outcome = Outcome(result=result, data=data)
     if experience is not None:
+        period = experience.settings
+        start = read_members(experience.start_members, loaded.model_copy(update={"valuation_date": period.period_start}))
         outcome.experience = _check_exposure(analyse_experience(
             experience.start_members, experience.deaths, loaded, experience.settings, exits_path=experience.exits,
-            valued=valued_scheme(loaded, data, result.total_liability, chunk_size)), experience.start_members,
-            loaded, accept_exclusions, warn)
+            valued=valued_scheme(loaded, data, result.total_liability, chunk_size), start_data=start),
+            experience.start_members, loaded, accept_exclusions, warn)
+        outcome.movements = membership_movements(
+            loaded, start, data, period_start=period.period_start, period_end=period.period_end,
+            deaths_path=experience.deaths, exits_path=experience.exits)
     if out is not None:
         if progress:
             progress("writing", 0, 1)

@@ -16,6 +16,7 @@ import polars as pl
 
 if TYPE_CHECKING:
     from valuation.basis.model import Basis
+    from valuation.members.data import MemberData
 from valuation.experience.cells import RateLookup, build_cells
 from valuation.experience.checks import EXCEPTION_SCHEMA, check_events, empty_exceptions
 from valuation.experience.events import read_events_with_headers
@@ -253,6 +254,7 @@ def analyse_experience(
     *,
     exits_path: str | Path | None = None,
     valued: ValuedScheme | None = None,
+    start_data: MemberData | None = None,
 ) -> ExperienceResult:
     """Actual against expected deaths over a period, with the implied mortality level.
 
@@ -275,6 +277,8 @@ def analyse_experience(
         re-valued on the basis with each mortality table entry's percentage replaced by its own
         credibility-weighted implied percentage; when not, the liability effect is skipped and the result
         says so. The experience analysis never reads or values member files itself.
+    start_data
+        The start membership already read (as at ``settings.period_start``), so that it is not read again.
 
     Returns
     -------
@@ -297,7 +301,8 @@ def analyse_experience(
     date_format = mapping.date_format
     column_map = dict(mapping.columns)
     # the start membership is checked as at the period start (ages, dates of birth after that date)
-    data = read_members(members_path, basis.model_copy(update={"valuation_date": settings.period_start}))
+    data = start_data if start_data is not None else read_members(
+        members_path, basis.model_copy(update={"valuation_date": settings.period_start}))
     deaths, deaths_headers = read_events_with_headers(
         deaths_path, "deaths", date_format=date_format, column_map=column_map
     )

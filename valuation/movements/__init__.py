@@ -61,13 +61,15 @@ class MovementsRun:
                            "warning": int((self.exceptions["severity"] == "warning").sum())},
         }
 
-    def write(self, folder: Path) -> None:
+    def write(self, folder: Path, *, inputs_listed: bool = True) -> None:
         """movements.json, movements.csv (the reconciliation by status), movement_members.csv (one row a
-        member) and movements_exceptions.csv into ``folder`` (formula-safe CSV)."""
+        member) and movements_exceptions.csv into ``folder`` (formula-safe CSV). ``inputs_listed`` False:
+        the exceptions file holds the movements' own (unexplained cases, data changes) only, for a run
+        folder whose other exceptions files already list the inputs' problems."""
         (folder / "movements.json").write_text(json.dumps(self.summary(), indent=2) + "\n", encoding="utf-8")
         write_csv(self.result.table, folder / "movements.csv")
         write_csv(self.result.members, folder / "movement_members.csv")
-        write_csv(self.exceptions, folder / "movements_exceptions.csv")
+        write_csv(self.exceptions if inputs_listed else self.result.exceptions, folder / "movements_exceptions.csv")
 
     def text(self) -> str:
         """The reconciliation as the command line prints it."""
@@ -94,8 +96,8 @@ class MovementsRun:
 
 def membership_movements(
     basis: Basis,
-    previous_path: str | Path,
-    current_path: str | Path,
+    previous_path: str | Path | MemberData,
+    current_path: str | Path | MemberData,
     *,
     period_start: date,
     period_end: date,
@@ -104,15 +106,18 @@ def membership_movements(
     fmt: InputFormat = DEFAULT_FORMAT,
 ) -> MovementsRun:
     """Read the two extracts (each checked as at its own date: the previous at ``period_start``, the current
-    at ``period_end``) and the deaths and exits files (checked against the previous extract and the period),
-    and classify every member.
+    at ``period_end``; an extract already read is taken as it is) and the deaths and exits files (checked
+    against the previous extract and the period), and classify every member.
 
     References
     ----------
     Common practice (see :mod:`valuation.movements.classify`).
     """
-    previous = read_members(previous_path, basis.model_copy(update={"valuation_date": period_start}), fmt)
-    current = read_members(current_path, basis.model_copy(update={"valuation_date": period_end}), fmt)
+    previous = (previous_path if isinstance(previous_path, MemberData)
+                else read_members(previous_path, basis.model_copy(update={"valuation_date": period_start}), fmt))
+    current = (current_path if isinstance(current_path, MemberData)
+               else read_members(current_path, basis.model_copy(update={"valuation_date": period_end}), fmt))
+    previous_path, current_path = previous.path, current.path
     mapping = basis.mapping
     column_map = dict(mapping.columns)
     empty_deaths = pl.DataFrame(schema={"row": pl.Int64, "member_id": pl.String, "date_text": pl.String,

@@ -14,6 +14,7 @@ import polars as pl
 from valuation.engine.summary import Assumptions, JsonValue, RunSummary
 from valuation.experience.result import ExperienceResult
 from valuation.experience.summary import ImpliedSummary
+from valuation.movements.classify import MovementsResult
 from valuation.reports import format as fmt
 from valuation.vocabulary import STATUSES
 
@@ -383,3 +384,23 @@ def chart_bands(bands: pl.DataFrame) -> pl.DataFrame:
     """The age bands worth charting: at least :data:`MIN_EXPECTED` expected deaths (others have intervals
     too wide to read; they stay in the tables)."""
     return bands.filter(pl.col("expected_lives") >= MIN_EXPECTED) if bands.height else bands
+
+
+#: How the trustees' summary names each movement (a count follows).
+MOVEMENT_WORDS: dict[str, str] = {
+    "death": "died", "retirement": "retired", "withdrawal": "left service with a deferred pension",
+    "reinstated": "rejoined", "transfer_out": "transferred out", "lump_sum_settlement": "took a lump sum instead",
+    "other_exit": "left for other reasons", "child_pension_ceased": "children's pensions ended",
+    "new_entrant": "joined", "new_dependant": "dependants' pensions started",
+}
+
+
+def movements_words(movements: MovementsResult) -> str:
+    """One plain sentence on the membership movements since the previous extract."""
+    counts = movements.counts()
+    parts = [f"{counts[m]:,} {words}" for m, words in MOVEMENT_WORDS.items() if counts[m]]
+    unexplained = counts["unexplained"]
+    tail = ("no movement is unexplained" if not unexplained
+            else f"{unexplained:,} records changed in ways no movement explains (listed in movements_exceptions.csv)")
+    said = ", ".join(parts) if parts else "no member moved"
+    return (f"Since {movements.period_start.strftime('%d %B %Y').lstrip('0')}: {said}; {tail}.")

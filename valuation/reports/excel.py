@@ -2,6 +2,7 @@
 
 Sheets: Summary, Basis (as given in the basis file and as used), Liabilities, Cash flows (with a chart),
 Sensitivities, Life expectancy, Expected deaths, Experience (when an analysis was run, with a chart),
+Movements (the membership movements over the same period, with it),
 Exceptions, Members (up to :data:`valuation.engine.write.SMALL_SCHEME` members; above it the sheet points
 to members.parquet) and Manifest. The headline total is also the workbook name ``TotalLiability``. Money
 is in the basis's currency (number formats ``[$GBP] #,##0``); headers are plain words; every sheet prints
@@ -22,15 +23,17 @@ from valuation.reports.format import currency_of
 
 if TYPE_CHECKING:
     from valuation.experience.result import ExperienceResult
+    from valuation.movements.classify import MovementsResult
 
 #: Sheet names in workbook order (Experience only when an analysis was run).
 SHEETS: tuple[str, ...] = (
     "Summary", "Basis", "Liabilities", "Cash flows", "Sensitivities", "Life expectancy", "Expected deaths",
-    "Experience", "Exceptions", "Members", "Manifest",
+    "Experience", "Movements", "Exceptions", "Members", "Manifest",
 )
 
 
-def write_workbook(result: ValuationResult, path: Path, experience: ExperienceResult | None = None) -> Path:
+def write_workbook(result: ValuationResult, path: Path, experience: ExperienceResult | None = None,
+                   movements: MovementsResult | None = None) -> Path:
     """Write the valuation workbook to ``path`` and return the path.
 
     Parameters
@@ -41,6 +44,8 @@ def write_workbook(result: ValuationResult, path: Path, experience: ExperienceRe
         Target .xlsx file; its folder is created when missing.
     experience
         An experience analysis to include (optional).
+    movements
+        The membership movements over the experience period (optional).
 
     Returns
     -------
@@ -60,6 +65,8 @@ def write_workbook(result: ValuationResult, path: Path, experience: ExperienceRe
     sheets.deaths_sheet(wb.create_sheet("Expected deaths"), result)
     if experience is not None:
         sheets.experience_sheet(wb.create_sheet("Experience"), experience, currency_of(result.summary))
+    if movements is not None:
+        sheets.movements_sheet(wb.create_sheet("Movements"), movements)
     sheets.exceptions_sheet(wb.create_sheet("Exceptions"), result)
     sheets.members_sheet(wb.create_sheet("Members"), result)
     sheets.manifest_sheet(wb.create_sheet("Manifest"), result)

@@ -20,17 +20,19 @@ from openpyxl.worksheet.worksheet import Worksheet
 from valuation.engine.results import ValuationResult
 from valuation.engine.summary import LUMP_SUMS
 from valuation.engine.write import SMALL_SCHEME
+from valuation.movements.classify import MovementsResult
 from valuation.reports import content
 from valuation.reports import excel_cells as xc
 from valuation.reports import format as fmt
+from valuation.reports.content import movements_words
 from valuation.reports.excel_charts import cashflow_chart
 from valuation.reports.excel_experience import experience_sheet
 from valuation.vocabulary import STATUSES
 
 __all__ = [
     "basis_sheet", "cashflows_sheet", "deaths_sheet", "exceptions_sheet", "experience_sheet",
-    "life_expectancy_sheet", "liabilities_sheet", "manifest_sheet", "members_sheet", "sensitivities_sheet",
-    "summary_sheet",
+    "life_expectancy_sheet", "liabilities_sheet", "manifest_sheet", "members_sheet", "movements_sheet",
+    "sensitivities_sheet", "summary_sheet",
 ]
 
 #: Header row of every list sheet (title in row 1, note in row 2); panes freeze below it.
@@ -353,6 +355,26 @@ def deaths_sheet(ws: Worksheet, result: ValuationResult) -> None:
                                   money)])
     xc.fit_widths(ws, HEAD)
     xc.print_setup(ws, header_row=HEAD)
+
+
+def movements_sheet(ws: Worksheet, movements: MovementsResult) -> None:
+    """The membership reconciliation: each status's count at the start, the change from each movement, and
+    its count at the end (start + movements = end), and the deaths reconciled with the deaths file."""
+    _list_sheet(ws, "Membership movements", f"From {movements.period_start.isoformat()} to "
+                f"{movements.period_end.isoformat()}: members at the start, the change from each movement "
+                "(a minus leaves the status, a plus joins it), and members at the end. " + movements_words(movements))
+    table = movements.table
+    shown = [c for c in table.columns if c in ("status", "start", "end") or (table[c] != 0).any()]
+    labels = {c: c.replace("_", " ") for c in shown}
+    last = xc.write_frame(ws, table.select(shown), top=HEAD, formats={c: xc.COUNT for c in shown if c != "status"},
+                          labels=labels, table="Movements")
+    d = movements.deaths
+    xc.key_values(ws, last + 2, [("Deaths in the deaths file and gone from the extracts", d["matched"], xc.COUNT),
+                                 ("Deaths in the deaths file only (still in the current extract)",
+                                  d["deaths_file_only"], xc.COUNT),
+                                 ("Gone from the extracts with no death or exit record", d["extracts_only"], xc.COUNT)])
+    xc.fit_widths(ws, HEAD)
+    xc.print_setup(ws, landscape=True, header_row=HEAD)
 
 
 def exceptions_sheet(ws: Worksheet, result: ValuationResult) -> None:

@@ -22,6 +22,7 @@ from valuation.reports import format as fmt
 if TYPE_CHECKING:
     from valuation.experience.result import ExperienceResult
     from valuation.experience.summary import TableLine
+    from valuation.movements.classify import MovementsResult
 
 TEMPLATES = Path(__file__).with_name("templates")
 
@@ -91,7 +92,8 @@ def _experience(experience: ExperienceResult | None, code: str | None) -> dict[s
     }
 
 
-def build_context(result: ValuationResult, experience: ExperienceResult | None = None) -> dict[str, Any]:
+def build_context(result: ValuationResult, experience: ExperienceResult | None = None,
+                  movements: MovementsResult | None = None) -> dict[str, Any]:
     """Everything the template shows, as plain values (text is escaped by the template)."""
     s = result.summary
     code = fmt.currency_of(s)
@@ -114,6 +116,7 @@ def build_context(result: ValuationResult, experience: ExperienceResult | None =
         "sensitivities": result.sensitivities.to_dicts(),
         "life": _life_table(result.life_expectancy),
         "experience": _experience(experience, code),
+        "movements": content.movements_words(movements) if movements is not None else None,
         "reasons": reasons.head(content.TOP_REASONS).to_dicts(),
         "more_reasons": max(0, reasons.height - content.TOP_REASONS),
         "data_notice": content.data_notice(s),
@@ -122,15 +125,17 @@ def build_context(result: ValuationResult, experience: ExperienceResult | None =
     }
 
 
-def render_html(result: ValuationResult, experience: ExperienceResult | None = None) -> str:
+def render_html(result: ValuationResult, experience: ExperienceResult | None = None,
+                movements: MovementsResult | None = None) -> str:
     """The summary page as text."""
     env = _environment()
     code = fmt.currency_of(result.summary)
     env.filters["about"] = lambda value: fmt.about_money(value, code)
-    return env.get_template("summary.html.j2").render(**build_context(result, experience))
+    return env.get_template("summary.html.j2").render(**build_context(result, experience, movements))
 
 
-def write_html(result: ValuationResult, path: Path, experience: ExperienceResult | None = None) -> Path:
+def write_html(result: ValuationResult, path: Path, experience: ExperienceResult | None = None,
+               movements: MovementsResult | None = None) -> Path:
     """Write the trustees' HTML summary to ``path`` and return the path.
 
     Parameters
@@ -141,6 +146,8 @@ def write_html(result: ValuationResult, path: Path, experience: ExperienceResult
         Target .html file; its folder is created when missing.
     experience
         An experience analysis to include (optional).
+    movements
+        The membership movements over the experience period, said in one sentence (optional).
 
     Returns
     -------
@@ -149,5 +156,5 @@ def write_html(result: ValuationResult, path: Path, experience: ExperienceResult
     """
     path = Path(path)
     path.parent.mkdir(parents=True, exist_ok=True)
-    path.write_text(render_html(result, experience), encoding="utf-8")
+    path.write_text(render_html(result, experience, movements), encoding="utf-8")
     return path
