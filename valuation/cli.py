@@ -235,6 +235,11 @@ def cmd_run(args: argparse.Namespace) -> int:
     _say(args, _headline(outcome.result))
     if outcome.experience is not None:
         _say(args, _experience_line(outcome.experience))
+    if outcome.movements is not None:
+        from valuation.reports.content import movements_words
+
+        words = movements_words(outcome.movements.result)
+        _say(args, "membership " + words[0].lower() + words[1:])
     _say(args, f"written to {out}/")
     return EXIT_OK
 
