@@ -413,6 +413,13 @@ def _experience_options(sp: Any) -> None:
                          "with 0.90, 1,082 expected deaths)")
 
 
+def _period_options(sp: argparse.ArgumentParser, start_note: str = "", end_note: str = "") -> None:
+    sp.add_argument("--period-start", "--start", dest="period_start", type=iso_date, required=True,
+                    help=f"period start{start_note} (ISO date YYYY-MM-DD)")
+    sp.add_argument("--period-end", "--end", dest="period_end", type=iso_date, required=True,
+                    help=f"period end{end_note} (ISO date YYYY-MM-DD)")
+
+
 def _overwrite(sp: argparse.ArgumentParser, what: str) -> None:
     sp.add_argument("--overwrite", action="store_true", help=f"replace {what}")
 
@@ -509,10 +516,7 @@ def build_parser() -> argparse.ArgumentParser:
     e.add_argument("basis", type=existing_file, help="assumptions basis (TOML)")
     e.add_argument("members", type=existing_file, help="member data at the start of the period")
     e.add_argument("deaths", type=existing_file, help="deaths file: member_id, date_of_death[, pension_at_death]")
-    e.add_argument("--period-start", "--start", dest="period_start", type=iso_date, required=True,
-                   help="period start (ISO date YYYY-MM-DD)")
-    e.add_argument("--period-end", "--end", dest="period_end", type=iso_date, required=True,
-                   help="period end (ISO date YYYY-MM-DD)")
+    _period_options(e)
     e.add_argument("--valuation-members", type=existing_file,
                    help="member data at the valuation date, to re-value at the implied table")
     _experience_options(e)
@@ -533,10 +537,7 @@ def build_parser() -> argparse.ArgumentParser:
     mv.add_argument("basis", type=existing_file, help="assumptions basis (TOML): its [mapping] reads both extracts")
     mv.add_argument("previous", type=existing_file, help="member data at the start of the period")
     mv.add_argument("current", type=existing_file, help="member data at the end of the period")
-    mv.add_argument("--period-start", "--start", dest="period_start", type=iso_date, required=True,
-                    help="period start: the previous extract's date (ISO date YYYY-MM-DD)")
-    mv.add_argument("--period-end", "--end", dest="period_end", type=iso_date, required=True,
-                    help="period end: the current extract's date (ISO date YYYY-MM-DD)")
+    _period_options(mv, ": the previous extract's date", ": the current extract's date")
     mv.add_argument("--deaths", type=existing_file, help="deaths file: member_id, date_of_death[, pension_at_death]")
     mv.add_argument("--exits", type=existing_file, help="other exits: member_id, exit_date, reason")
     _format_options(mv)

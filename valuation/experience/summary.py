@@ -16,12 +16,9 @@ from typing import NotRequired, TypedDict
 SettingValue = str | float | int | bool | list[float] | None
 
 
-class AERow(TypedDict):
-    """One row of the A/E table (``ExperienceResult.table``, experience.csv): a dimension and group, its
-    exposure, actual and expected deaths and A/E with its interval, by lives and by amounts."""
+class AEMeasures(TypedDict):
+    """Exposure, actual and expected deaths and A/E with its interval, by lives and by amounts."""
 
-    dimension: NotRequired[str]
-    group: str
     exposure_years: float
     actual_lives: float
     expected_lives: float
@@ -35,7 +32,15 @@ class AERow(TypedDict):
     ae_amounts_upper: float | None
 
 
-class TableLine(TypedDict):
+class AERow(AEMeasures):
+    """One row of the A/E table (``ExperienceResult.table``, experience.csv): a dimension and group and
+    their measures."""
+
+    dimension: NotRequired[str]
+    group: str
+
+
+class TableLine(AEMeasures):
     """One mortality table entry's own experience (or the overall line): A/E by amounts with interval,
     limited-fluctuation credibility and the credibility-weighted implied percentage [% of the table]."""
 
@@ -44,17 +49,6 @@ class TableLine(TypedDict):
     sex: str
     members: list[str]
     current_percentage: float | None
-    exposure_years: float
-    actual_lives: float
-    expected_lives: float
-    ae_lives: float | None
-    ae_lives_lower: float | None
-    ae_lives_upper: float | None
-    actual_amounts: float
-    expected_amounts: float
-    ae_amounts: float | None
-    ae_amounts_lower: float | None
-    ae_amounts_upper: float | None
     expected_lives_at_risk: float
     credibility: float | None
     implied_percentage: float | None
@@ -164,6 +158,6 @@ class ExperienceSummary(TypedDict):
     exceptions: ExceptionCounts
 
 
-__all__ = ["AERow", "CredibilityStandard", "DeathCounts", "ExceptionCounts", "ExitCounts", "ExperienceRecords",
+__all__ = ["AEMeasures", "AERow", "CredibilityStandard", "DeathCounts", "ExceptionCounts", "ExitCounts", "ExperienceRecords",
            "ExperienceSummary", "ImpliedSummary", "LiabilityEffect", "PercentageChange", "RecordCounts",
            "SettingValue", "TableLine"]
