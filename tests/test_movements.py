@@ -172,3 +172,35 @@ def test_movements_command_writes_its_folder(tmp_path):
                  str(DEMO / "members.csv"), "--period-start", "2022-03-31", "--period-end", "2025-03-31",
                  "--out", str(out), "-q"])
     assert code == 3 and (out / "movements.json").read_bytes() == before
+
+
+def test_a_member_excluded_from_one_extract_is_not_taken_for_a_death_or_a_joiner():
+    """A record the current extract excluded for its data problems is absent from the valid records: it is
+    unexplained with that reason, not a death, an exit or a new entrant, and not an 'extracts only' death."""
+    prev, curr, _, _, _ = _history([("pensioner", 0), ("active", 0)], ["active"])
+    curr = curr.filter(pl.col("member_id") != "M00000")
+    prev = prev.filter(pl.col("member_id") != "N00000")
+    res = classify_movements(prev, curr, period_start=START, period_end=END,
+                             excluded_ids=pl.Series(["M00000", "N00000"]))
+    moves = dict(zip(res.members["member_id"].to_list(), res.members["movement"].to_list(), strict=True))
+    assert moves == {"M00000": "unexplained", "M00001": "continuing", "N00000": "unexplained"}
+    assert res.deaths["extracts_only"] == 0
+    assert set(res.exceptions["reason"].to_list()) == {
+        "the record is valid in one extract and excluded from the other for its data problems (see that file's "
+        "exceptions): its movement cannot be told"}
+
+
+def test_careless_calls_are_refused(tmp_path):
+    """The same file twice is a mistake (exit 3); an extract with more exclusions than the basis allows
+    stops as a valuation does (exit 4, demo_dirty: 20 of 40 records excluded) unless accepted."""
+    from valuation.cli import main
+
+    basis = str(ROOT / "assumptions" / "demo_basis.toml")
+    dates = ["--period-start", "2022-03-31", "--period-end", "2025-03-31", "-q"]
+    assert main(["movements", basis, str(DEMO / "members.csv"), str(DEMO / "members.csv"), *dates,
+                 "--out", str(tmp_path / "a")]) == 3
+    assert main(["movements", basis, str(DEMO / "members_start.csv"), str(DEMO / "members_dirty.csv"), *dates,
+                 "--out", str(tmp_path / "b")]) == 4
+    assert not (tmp_path / "a").exists() and not (tmp_path / "b").exists()
+    assert main(["movements", basis, str(DEMO / "members_start.csv"), str(DEMO / "members_dirty.csv"), *dates,
+                 "--out", str(tmp_path / "c"), "--accept-exclusions"]) == 0

@@ -369,6 +369,7 @@ def cmd_movements(args: argparse.Namespace) -> int:
         args.basis, args.previous, args.current, period_start=args.period_start, period_end=args.period_end,
         deaths=args.deaths, exits=args.exits, out=out, overwrite=args.overwrite, fmt=_input_format(args),
         settings={k: str(v) for k, v in vars(args).items() if k not in ("func", "parser")},
+        accept_exclusions=args.accept_exclusions, warn=_warn,
     )
     _say(args, found.text())
     _say(args, f"written to {out}/")
@@ -544,6 +545,8 @@ def build_parser() -> argparse.ArgumentParser:
     mv.add_argument("--out", type=new_path, help="folder to write: new, empty, or a previous one with --overwrite "
                                   "(default: outputs/movements-<period end>, never an existing folder)")
     _overwrite(mv, "a previous movements folder in --out")
+    mv.add_argument("--accept-exclusions", action="store_true",
+                    help="classify even when an extract has more excluded records than the basis allows")
     common(mv)
     mv.set_defaults(parser=mv, func=cmd_movements)
     t = sub.add_parser("table", help="look at a mortality table or improvement scale file before using it",

@@ -313,16 +313,24 @@ def movements(
     overwrite: bool = False,
     fmt: InputFormat = DEFAULT_FORMAT,
     settings: dict[str, str] | None = None,
+    accept_exclusions: bool = False,
+    warn: Say = _quiet,
 ) -> MovementsRun:
     """Membership movements between two member extracts (:mod:`valuation.movements`), and its folder when
     ``out`` is given: movements.json, movements.csv, movement_members.csv, movements_exceptions.csv and the
-    manifest (input hashes, tool version, ``settings``). The output folder is checked before any work."""
+    manifest (input hashes, tool version, ``settings``). The output folder is checked before any work. Each
+    extract passes the exclusion limit a valuation's member file does (``accept_exclusions`` lets more by)."""
     loaded = as_basis(basis)
+    if Path(previous).resolve() == Path(current).resolve():
+        raise DataError("the previous and the current extract are the same file", file=previous,
+                        fix="give the member extract at the period start, then the one at the period end")
     inputs: list[Any] = [p for p in (loaded.source_path, previous, current, deaths, exits) if p is not None]
     if out is not None:
         check_output_folder(out, overwrite=overwrite, inputs=inputs)
     found = membership_movements(loaded, previous, current, period_start=period_start, period_end=period_end,
                                  deaths_path=deaths, exits_path=exits, fmt=fmt)
+    for data in (found.previous, found.current):
+        gate(loaded, data.path, data.read, data.valued, data.excluded, accept_exclusions, warn)
     if out is not None:
         with atomic_folder(out, overwrite=overwrite, inputs=inputs) as tmp:
             found.write(tmp)

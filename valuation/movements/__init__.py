@@ -139,6 +139,9 @@ def membership_movements(
         previous.records, current.records, deaths=checked.deaths if deaths_path else None,
         exits=checked.exits if exits_path else None, period_start=period_start, period_end=period_end,
         previous_file=str(previous_path), current_file=str(current_path),
+        excluded_ids=pl.concat([
+            frame.filter(pl.col("severity") == "excluded")["member_id"].cast(pl.String)
+            for frame in (previous.exceptions, current.exceptions)]).drop_nulls(),
     )
     events = {k: v for k, v in checked.counts.items() if (k == "deaths" and deaths_path) or (k == "exits" and exits_path)}
     exceptions = pl.concat([

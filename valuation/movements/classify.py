@@ -71,6 +71,8 @@ STATUS_UNEXPLAINED: Final = "status changed between the extracts in a way no mov
 DOB_CHANGED: Final = "date of birth differs between the extracts (data changed)"
 SEX_CHANGED: Final = "sex differs between the extracts (data changed)"
 DEAD_BUT_PRESENT: Final = "the deaths file records a death in the period, but the member is in the current extract"
+EXCLUDED_OTHER: Final = ("the record is valid in one extract and excluded from the other for its data problems (see "
+                          "that file's exceptions): its movement cannot be told")
 EXIT_BUT_PRESENT: Final = "the exits file records an exit in the period, but the member is in the current extract"
 
 
@@ -128,6 +130,7 @@ def classify_movements(
     period_end: date,
     previous_file: str = "previous",
     current_file: str = "current",
+    excluded_ids: pl.Series | None = None,
 ) -> MovementsResult:
     """Classify every member of two extracts (valid records, as :func:`~valuation.members.read_members`
     returns them) by the module's rules; vectorised with polars joins (no per-member Python loop).
@@ -144,6 +147,10 @@ def classify_movements(
         The period between the two extracts.
     previous_file, current_file
         The files' names, for the exceptions.
+    excluded_ids
+        Members whose record either extract excluded for its data problems: a member valid in one extract and
+        excluded from the other is ``unexplained`` with that reason (its movement cannot be told), never
+        counted as a death or a new entrant.
 
     References
     ----------
@@ -156,6 +163,8 @@ def classify_movements(
          else pl.DataFrame(schema={"member_id": pl.String, "_exit": pl.String}))
     both = both.join(d.unique("member_id"), on="member_id", how="left").join(
         x.unique("member_id", keep="first"), on="member_id", how="left")
+    bad = excluded_ids.unique() if excluded_ids is not None else pl.Series("member_id", [], pl.String)
+    both = both.with_columns(pl.col("member_id").is_in(bad.implode()).alias("_excluded"))
     start, end = pl.col("status_start"), pl.col("status_end")
     in_start, in_end = start.is_not_null(), end.is_not_null()
     died = pl.col("_died").fill_null(False)
@@ -168,8 +177,10 @@ def classify_movements(
     explained = pl.lit(None, dtype=pl.String)
     for (a, b), name in STATUS_CHANGES.items():
         explained = pl.when(change == f"{a}>{b}").then(pl.lit(name)).otherwise(explained)
+    one_side_excluded = (in_start ^ in_end) & pl.col("_excluded")
     movement = (
         pl.when(in_start & in_end & (start == end)).then(pl.lit(CONTINUING))
+        .when(one_side_excluded).then(pl.lit("unexplained"))
         .when(in_start & in_end).then(explained.fill_null("unexplained"))
         .when(in_start & died).then(pl.lit("death"))
         .when(in_start & exit_reason.is_not_null()).then(
@@ -196,7 +207,8 @@ def classify_movements(
     deaths_rec = {
         "matched": int(members.filter(pl.col("movement") == "death").height),
         "deaths_file_only": int(members.filter(pl.col("_dead_but_present")).height),
-        "extracts_only": int(members.filter(in_start & ~in_end & (pl.col("movement") == "unexplained")).height),
+        "extracts_only": int(members.filter(in_start & ~in_end & ~pl.col("_excluded")
+                                            & (pl.col("movement") == "unexplained")).height),
     }
     exceptions = _exceptions(members, previous_file, current_file)
     out = members.select("member_id", "status_start", "status_end", "movement", "detail", "data_changed")
@@ -239,9 +251,14 @@ def _exceptions(members: pl.DataFrame, previous_file: str, current_file: str) ->
 
     unexplained = pl.col("movement") == "unexplained"
     in_start, in_end = pl.col("status_start").is_not_null(), pl.col("status_end").is_not_null()
-    add(unexplained & in_start & ~in_end, previous_file, "row_start", "status", pl.col("status_start"),
+    excluded = pl.col("_excluded")
+    add(unexplained & in_start & ~in_end & excluded, previous_file, "row_start", "status", pl.col("status_start"),
+        EXCLUDED_OTHER, "warning")
+    add(unexplained & ~in_start & in_end & excluded, current_file, "row_end", "status", pl.col("status_end"),
+        EXCLUDED_OTHER, "warning")
+    add(unexplained & in_start & ~in_end & ~excluded, previous_file, "row_start", "status", pl.col("status_start"),
         GONE_UNEXPLAINED, "warning")
-    add(unexplained & ~in_start & in_end, current_file, "row_end", "status", pl.col("status_end"),
+    add(unexplained & ~in_start & in_end & ~excluded, current_file, "row_end", "status", pl.col("status_end"),
         APPEARED_UNEXPLAINED, "warning")
     add(unexplained & in_start & in_end, current_file, "row_end", "status",
         pl.concat_str([pl.col("status_start"), pl.lit(" then "), pl.col("status_end")]), STATUS_UNEXPLAINED,
