@@ -376,6 +376,21 @@ def cmd_movements(args: argparse.Namespace) -> int:
     return EXIT_OK
 
 
+def cmd_rollforward(args: argparse.Namespace) -> int:
+    from valuation import pipeline
+    from valuation.basis import load_basis
+    from valuation.reports.format import format_money
+
+    basis = load_basis(args.basis)
+    out = Path(args.out) if args.out else _default_out("rollforward", args.to)
+    run = pipeline.rollforward(basis, args.members, to=args.to, new_basis=args.new_basis, out=out,
+                               overwrite=args.overwrite, fmt=_input_format(args),
+                               accept_exclusions=args.accept_exclusions, warn=_warn)
+    _say(args, run.text(lambda v: format_money(v, basis.currency)))
+    _say(args, f"written to {out}/")
+    return EXIT_OK
+
+
 def cmd_table(args: argparse.Namespace) -> int:
     from valuation.engine.write import atomic_file, check_output_file
     from valuation.mortality.inspect import describe_tables, table_chart
@@ -549,6 +564,26 @@ def build_parser() -> argparse.ArgumentParser:
                     help="classify even when an extract has more excluded records than the basis allows")
     common(mv)
     mv.set_defaults(parser=mv, func=cmd_movements)
+    rf = sub.add_parser("rollforward", help="roll a valuation forward to a later date (approximate)",
+                        formatter_class=fmt, epilog=textwrap.dedent("""\
+        example:
+          valuation rollforward assumptions/demo_basis.toml member_data_demo/members.csv --to 2026-03-31 \\
+              --new-basis assumptions/demo_basis_2026.toml
+        """) + EPILOG_EXIT)
+    rf.add_argument("basis", type=existing_file, help="the basis of the valuation to roll forward (TOML)")
+    rf.add_argument("members", type=existing_file, help="the member data of that valuation")
+    rf.add_argument("--to", type=iso_date, required=True,
+                    help="the new date: whole months after the valuation date (ISO date YYYY-MM-DD)")
+    rf.add_argument("--new-basis", type=existing_file,
+                    help="a basis dated --to whose discount, inflation and salary growth are used")
+    _format_options(rf)
+    rf.add_argument("--out", type=new_path, help="folder to write: new, empty, or a previous one with --overwrite "
+                                  "(default: outputs/rollforward-<date>, never an existing folder)")
+    _overwrite(rf, "a previous roll-forward folder in --out")
+    rf.add_argument("--accept-exclusions", action="store_true",
+                    help="roll forward even when more records are excluded than the basis allows")
+    common(rf)
+    rf.set_defaults(parser=rf, func=cmd_rollforward)
     t = sub.add_parser("table", help="look at a mortality table or improvement scale file before using it",
                        formatter_class=fmt, epilog=textwrap.dedent("""\
         examples:

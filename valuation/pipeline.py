@@ -21,11 +21,13 @@ from valuation.basis import load_basis
 from valuation.basis.model import Basis
 from valuation.engine.gate import check_exclusions
 from valuation.engine.results import ValuationResult
+from valuation.engine.rollforward import CAUTION as ROLL_FORWARD_CAUTION
+from valuation.engine.rollforward import RollForward, roll_forward
 from valuation.engine.run import DEFAULT_CHUNK, Progress, input_hashes, value_members
 from valuation.engine.stream import value_file_streaming
 from valuation.engine.summary import Records
 from valuation.engine.write import MANIFEST, ExtraWriter, atomic_folder, check_output_folder, write_into
-from valuation.errors import DataError, ValuationError
+from valuation.errors import BasisError, DataError, ValuationError
 from valuation.experience import ExperienceSettings, analyse_experience
 from valuation.experience.implied import ValuedScheme
 from valuation.experience.result import ExperienceResult
@@ -338,6 +340,113 @@ def movements(
                        "settings": settings or {"period_start": period_start.isoformat(),
                                                 "period_end": period_end.isoformat()}}, tmp / MANIFEST)
     return found
+
+
+@dataclass(frozen=True)
+class RollForwardRun:
+    """A roll-forward and what it was made from."""
+
+    rolled: RollForward
+    valuation_date: date
+    to: date
+    previous_basis: str
+    new_basis: str | None
+    notes: list[str]
+
+    def summary(self) -> dict[str, object]:
+        """What rollforward.json holds."""
+        r = self.rolled
+        return {"valuation_date": self.valuation_date.isoformat(), "rolled_to": self.to.isoformat(),
+                "months": r.months, "previous_basis": self.previous_basis, "new_basis": self.new_basis,
+                "opening": r.opening, "benefits_expected": r.benefits_expected, "interest": r.interest,
+                "service_cost": r.service_cost, "financial_assumptions": r.financial_assumptions,
+                "liability": r.liability, "approximate": True, "caution": ROLL_FORWARD_CAUTION, "notes": self.notes}
+
+    def text(self, money: Callable[[float], str]) -> str:
+        lines = [f"roll-forward from {self.valuation_date.isoformat()} to {self.to.isoformat()} "
+                 f"({self.rolled.months} months)"]
+        width = max(len(label) for label, _ in self.rolled.lines())
+        lines += [f"  {label:<{width}}  {money(value)}" for label, value in self.rolled.lines()]
+        return "\n".join([*lines, ROLL_FORWARD_CAUTION])
+
+
+def months_between(start: date, end: date) -> int:
+    """Whole calendar months from ``start`` to ``end``, where ``end`` is ``start`` moved that many months (the
+    day kept, or the month's last day, as the payment grid's dates are); else a :class:`DataError`."""
+    import calendar
+
+    months = (end.year - start.year) * 12 + (end.month - start.month)
+    day = min(start.day, calendar.monthrange(end.year, end.month)[1])
+    on_grid = months > 0 and end.day == day
+    if start.day == calendar.monthrange(start.year, start.month)[1]:  # a month end stays a month end
+        on_grid = months > 0 and end.day == calendar.monthrange(end.year, end.month)[1]
+    if not on_grid:
+        raise DataError(f"the roll-forward date {end.isoformat()} is not a whole number of months after the "
+                        f"valuation date {start.isoformat()}",
+                        fix="give a date on the same day of a later month (a month end for a month end)")
+    return months
+
+
+def rollforward(
+    basis: Basis | str | Path,
+    members: MemberInput,
+    *,
+    to: date,
+    new_basis: Basis | str | Path | None = None,
+    out: str | Path | None = None,
+    overwrite: bool = False,
+    fmt: InputFormat = DEFAULT_FORMAT,
+    accept_exclusions: bool = False,
+    warn: Say = _quiet,
+) -> RollForwardRun:
+    """Roll the valuation of ``members`` on ``basis`` forward to the date ``to``
+    (:mod:`valuation.engine.rollforward`), on ``new_basis``'s financial assumptions (discount curve,
+    inflation, salary growth) where given; its valuation date must be ``to``. Anything else the new basis
+    changes is not used, and a warning says so. With ``out``, writes rollforward.json and the manifest.
+    """
+    loaded = as_basis(basis)
+    new = as_basis(new_basis) if new_basis is not None else None
+    months = months_between(loaded.valuation_date, to)
+    if new is not None and new.valuation_date != to:
+        raise BasisError(f"the new basis is dated {new.valuation_date.isoformat()}, not the roll-forward date "
+                         f"{to.isoformat()}", file=new.source_path, fix="set its valuation_date to the new date")
+    inputs: list[Any] = [p for p in (loaded.source_path, new.source_path if new else None,
+                                     members if isinstance(members, (str, Path)) else None) if p is not None]
+    if out is not None:
+        check_output_folder(out, overwrite=overwrite, inputs=inputs)
+    notes: list[str] = []
+    if new is not None:
+        kept = ("discount", "inflation", "salary_growth", "valuation_date", "name", "source_path")
+        old_d = {k: v for k, v in loaded.as_dict().items() if k not in kept}
+        new_d = {k: v for k, v in new.as_dict().items() if k not in kept}
+        differ = sorted(k for k in set(old_d) | set(new_d) if old_d.get(k) != new_d.get(k))
+        if differ:
+            notes.append("warning: the new basis also changes " + ", ".join(differ) + "; a roll-forward keeps the "
+                         "previous valuation's demographic assumptions and benefit rules, so these are not used "
+                         "(run a full valuation to use them)")
+            warn(notes[-1])
+    data = read(loaded, members, fmt)
+    gate(loaded, data.path, data.read, data.valued, data.excluded, accept_exclusions, warn)
+    base = value_members(loaded, data, sensitivities=False)
+    assert base.monthly is not None
+    cash_old = base.monthly.sum(axis=0)
+    cash_new = cash_old
+    if new is not None and (new.inflation != loaded.inflation or new.salary_growth != loaded.salary_growth):
+        projected = loaded.model_copy(update={"inflation": new.inflation, "salary_growth": new.salary_growth})
+        again = value_members(projected, data, sensitivities=False)
+        assert again.monthly is not None
+        cash_new = again.monthly.sum(axis=0)
+    rolled = roll_forward(base.total_liability, cash_old, cash_new, months, loaded.discount_curve(),
+                          (new or loaded).discount_curve(), base.summary.active_measures.current_service_cost)
+    run = RollForwardRun(rolled=rolled, valuation_date=loaded.valuation_date, to=to,
+                         previous_basis=str(loaded.source_path), new_basis=str(new.source_path) if new else None,
+                         notes=notes)
+    if out is not None:
+        with atomic_folder(out, overwrite=overwrite, inputs=inputs) as tmp:
+            dump_json(run.summary(), tmp / "rollforward.json")
+            dump_json({"tool_version": __version__, "command": "rollforward", "inputs": input_hashes(inputs),
+                       "settings": {"to": to.isoformat(), "new_basis": run.new_basis}}, tmp / MANIFEST)
+    return run
 
 
 def value_scheme(basis: Basis | str | Path, members: MemberInput, *, fmt: InputFormat | None = None, sensitivities: bool = True,

@@ -10,6 +10,8 @@ from collections.abc import Mapping
 from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, ClassVar
 
+import numpy as np
+import numpy.typing as npt
 import polars as pl
 
 from valuation.basis.model import Basis
@@ -71,12 +73,15 @@ class ValuationResult:
     exceptions: pl.DataFrame
     basis: Basis | None = None
     extra: dict[str, str | None] = field(default_factory=dict)
+    #: expected nominal payments by status (STATUSES order) and month after the valuation date, (S, M)
+    #: [currency]: the monthly grid behind ``cashflows`` (not written; the roll-forward starts from it)
+    monthly: npt.NDArray[np.float64] | None = None
 
     def __init__(
         self, *, summary: RunSummary | Mapping[str, object], liabilities: pl.DataFrame, cashflows: pl.DataFrame,
         members: pl.DataFrame, sensitivities: pl.DataFrame, life_expectancy: pl.DataFrame,
         expected_deaths: pl.DataFrame, exceptions: pl.DataFrame, basis: Basis | None = None,
-        extra: dict[str, str | None] | None = None,
+        extra: dict[str, str | None] | None = None, monthly: npt.NDArray[np.float64] | None = None,
     ) -> None:
         # The engine hands its summary over as a dictionary (summary.json's shape): it is read into the
         # typed summary here, at the boundary, so nothing past the engine reads it by string keys.
@@ -90,6 +95,7 @@ class ValuationResult:
         self.exceptions = exceptions
         self.basis = basis
         self.extra = dict(extra or {})
+        self.monthly = monthly
 
     @property
     def total_liability(self) -> float:

@@ -417,7 +417,7 @@ class RunAccumulator:
         }
         return ValuationResult(
             summary=summary, liabilities=cells, cashflows=cashflows, members=members, sensitivities=sens,
-            life_expectancy=le, expected_deaths=deaths, exceptions=exceptions, basis=basis,
+            life_expectancy=le, expected_deaths=deaths, exceptions=exceptions, basis=basis, monthly=cash,
         )
 
 
