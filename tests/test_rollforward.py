@@ -104,3 +104,21 @@ def test_a_new_basis_that_changes_more_than_finance_is_said_so(tmp_path):
     said: list[str] = []
     run = rollforward(b0, members(_pensioners()[:3]), to=T1, new_basis=b1, warn=said.append)
     assert said and "tranches" in said[0] and run.notes == said
+
+
+def test_new_salary_growth_and_inflation_are_projected(tmp_path):
+    """A new basis with another salary growth and inflation changes the actives' and the inflation-linked
+    payments, so the financial line moves; with only the discount rate changed, the re-projection is skipped
+    and the line is the re-discounting alone (both checked against a revaluation at the old date)."""
+    import tomllib
+
+    demo = ROOT / "assumptions" / "demo_basis.toml"
+    text = (ROOT / "assumptions" / "demo_basis_2026.toml").read_text(encoding="utf-8")
+    assert tomllib.loads(text)["salary"]["growth"] == 0.035
+    faster = text.replace("growth = 0.035", "growth = 0.045")
+    (tmp_path / "faster.toml").write_text(faster, encoding="utf-8")
+    members_file = ROOT / "member_data_demo" / "members.csv"
+    base = rollforward(demo, members_file, to=dt.date(2026, 3, 31), new_basis=ROOT / "assumptions" / "demo_basis_2026.toml")
+    more = rollforward(demo, members_file, to=dt.date(2026, 3, 31), new_basis=tmp_path / "faster.toml")
+    assert more.rolled.liability > base.rolled.liability  # higher salary growth, higher final-salary benefits
+    assert more.rolled.interest == pytest.approx(base.rolled.interest, rel=1e-12)  # on the old assumptions

@@ -416,7 +416,7 @@ def rollforward(
         check_output_folder(out, overwrite=overwrite, inputs=inputs)
     notes: list[str] = []
     if new is not None:
-        kept = ("discount", "inflation", "salary_growth", "valuation_date", "name", "source_path")
+        kept = ("discount", "inflation", "salary", "valuation_date", "name", "source_path", "sensitivities")
         old_d = {k: v for k, v in loaded.as_dict().items() if k not in kept}
         new_d = {k: v for k, v in new.as_dict().items() if k not in kept}
         differ = sorted(k for k in set(old_d) | set(new_d) if old_d.get(k) != new_d.get(k))
@@ -431,8 +431,8 @@ def rollforward(
     assert base.monthly is not None
     cash_old = base.monthly.sum(axis=0)
     cash_new = cash_old
-    if new is not None and (new.inflation != loaded.inflation or new.salary_growth != loaded.salary_growth):
-        projected = loaded.model_copy(update={"inflation": new.inflation, "salary_growth": new.salary_growth})
+    if new is not None and (new.inflation != loaded.inflation or new.salary != loaded.salary):
+        projected = loaded.model_copy(update={"inflation": new.inflation, "salary": new.salary})
         again = value_members(projected, data, sensitivities=False)
         assert again.monthly is not None
         cash_new = again.monthly.sum(axis=0)
