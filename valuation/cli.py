@@ -391,6 +391,32 @@ def cmd_rollforward(args: argparse.Namespace) -> int:
     return EXIT_OK
 
 
+def cmd_change(args: argparse.Namespace) -> int:
+    from valuation import pipeline
+    from valuation.basis import load_basis
+    from valuation.reports.format import format_money
+
+    current = load_basis(args.current_basis)
+    out = Path(args.out) if args.out else _default_out("change", current.valuation_date)
+    run = pipeline.change(args.previous_basis, args.previous_members, current, args.current_members,
+                          benefits_paid=args.benefits_paid, order=args.order, out=out, overwrite=args.overwrite,
+                          fmt=_input_format(args), accept_exclusions=args.accept_exclusions, warn=_warn)
+    _say(args, run.text(lambda v: format_money(v, current.currency)))
+    for note in run.analysis.notes:
+        _say(args, note)
+    _say(args, f"written to {out}/")
+    return EXIT_OK
+
+
+def _step_order(text: str) -> tuple[str, ...]:
+    from valuation.engine.change import STEPS
+
+    steps = tuple(s.strip() for s in text.split(","))
+    if sorted(steps) != sorted(STEPS):
+        raise argparse.ArgumentTypeError(f"name each of {', '.join(STEPS)} once, separated by commas")
+    return steps
+
+
 def cmd_table(args: argparse.Namespace) -> int:
     from valuation.engine.write import atomic_file, check_output_file
     from valuation.mortality.inspect import describe_tables, table_chart
@@ -584,6 +610,29 @@ def build_parser() -> argparse.ArgumentParser:
                     help="roll forward even when more records are excluded than the basis allows")
     common(rf)
     rf.set_defaults(parser=rf, func=cmd_rollforward)
+    ch = sub.add_parser("change", help="analysis of change of the liability between two valuations",
+                        formatter_class=fmt, epilog=textwrap.dedent("""\
+        example:
+          valuation change assumptions/demo_basis_2022.toml member_data_demo/members_start.csv \\
+              assumptions/demo_basis.toml member_data_demo/members.csv
+        """) + EPILOG_EXIT)
+    ch.add_argument("previous_basis", type=existing_file, help="the previous valuation's basis (TOML)")
+    ch.add_argument("previous_members", type=existing_file, help="the previous valuation's member data")
+    ch.add_argument("current_basis", type=existing_file, help="the current valuation's basis (TOML)")
+    ch.add_argument("current_members", type=existing_file, help="the current valuation's member data")
+    ch.add_argument("--benefits-paid", type=non_negative_float,
+                    help="benefits actually paid in the period [currency] (default: those the previous valuation "
+                         "expected)")
+    ch.add_argument("--order", type=_step_order, default=("demographic", "financial", "other"),
+                    help="order of the assumption steps (default demographic,financial,other)")
+    _format_options(ch)
+    ch.add_argument("--out", type=new_path, help="folder to write: new, empty, or a previous one with --overwrite "
+                                  "(default: outputs/change-<current date>, never an existing folder)")
+    _overwrite(ch, "a previous analysis folder in --out")
+    ch.add_argument("--accept-exclusions", action="store_true",
+                    help="analyse even when more records are excluded than the basis allows")
+    common(ch)
+    ch.set_defaults(parser=ch, func=cmd_change)
     t = sub.add_parser("table", help="look at a mortality table or improvement scale file before using it",
                        formatter_class=fmt, epilog=textwrap.dedent("""\
         examples:

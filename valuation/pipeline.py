@@ -19,6 +19,8 @@ import polars as pl
 
 from valuation.basis import load_basis
 from valuation.basis.model import Basis
+from valuation.csvout import write_csv
+from valuation.engine.change import STEPS, AnalysisOfChange, ChangeLine, Step, fields_of, with_fields
 from valuation.engine.gate import check_exclusions
 from valuation.engine.results import ValuationResult
 from valuation.engine.rollforward import CAUTION as ROLL_FORWARD_CAUTION
@@ -446,6 +448,125 @@ def rollforward(
             dump_json(run.summary(), tmp / "rollforward.json")
             dump_json({"tool_version": __version__, "command": "rollforward", "inputs": input_hashes(inputs),
                        "settings": {"to": to.isoformat(), "new_basis": run.new_basis}}, tmp / MANIFEST)
+    return run
+
+
+@dataclass(frozen=True)
+class ChangeRun:
+    """An analysis of change and the dates it spans."""
+
+    analysis: AnalysisOfChange
+    previous_date: date
+    current_date: date
+
+    def summary(self) -> dict[str, object]:
+        """What change.json holds (keys stable: previous_date, current_date, order, lines, check, notes)."""
+        a = self.analysis
+        return {"previous_date": self.previous_date.isoformat(), "current_date": self.current_date.isoformat(),
+                "order": list(a.order),
+                "lines": [{"key": x.key, "label": x.label, "amount": x.amount, "valuation": x.valuation}
+                          for x in a.lines],
+                "check": a.check(), "notes": list(a.notes)}
+
+    def write(self, folder: Path) -> None:
+        dump_json(self.summary(), folder / "change.json")
+        write_csv(pl.DataFrame([{"key": x.key, "label": x.label, "amount": x.amount, "valuation": x.valuation}
+                                for x in self.analysis.lines]), folder / "change.csv")
+
+    def text(self, money: Callable[[float], str]) -> str:
+        lines = [f"analysis of change {self.previous_date.isoformat()} to {self.current_date.isoformat()}"]
+        width = max(len(x.label) for x in self.analysis.lines)
+        lines += [f"  {x.label:<{width}}  {money(x.amount)}" for x in self.analysis.lines]
+        return "\n".join(lines)
+
+
+def change(
+    previous_basis: Basis | str | Path,
+    previous_members: MemberInput,
+    current_basis: Basis | str | Path,
+    current_members: MemberInput,
+    *,
+    benefits_paid: float | None = None,
+    order: Sequence[Step] = STEPS,
+    out: str | Path | None = None,
+    overwrite: bool = False,
+    fmt: InputFormat = DEFAULT_FORMAT,
+    accept_exclusions: bool = False,
+    warn: Say = _quiet,
+) -> ChangeRun:
+    """The analysis of change from the previous valuation to the current one (:mod:`valuation.engine.change`).
+
+    The opening liability is carried to the current date on the previous basis (the roll-forward: service
+    cost, interest at the opening discount curve, the payments expected in the period), with the benefits
+    actually paid in its place where ``benefits_paid`` [currency] is given (the interest stays that on the
+    expected payments: the difference in timing falls in the experience). Then every step is a full
+    valuation: the current members on the previous basis at the current date (experience), and the basis
+    moved to the current one step by step in ``order``. The closing line is the current valuation; a test of
+    that is made (the steps must reproduce it), so a basis whose files cannot be found from a mixed step is
+    refused rather than mis-valued. With ``out``, writes change.json, change.csv and the manifest.
+    """
+    b0, b1 = as_basis(previous_basis), as_basis(current_basis)
+    if b1.valuation_date <= b0.valuation_date:
+        raise BasisError(f"the current basis is dated {b1.valuation_date.isoformat()}, not after the previous "
+                         f"one ({b0.valuation_date.isoformat()})", file=b1.source_path,
+                         fix="give the previous valuation's basis and members first, then the current ones")
+    if sorted(order) != sorted(STEPS):
+        raise BasisError(f"the order of the steps must name each of {', '.join(STEPS)} once; got {', '.join(order)}",
+                         fix="for example: financial,demographic,other")
+    inputs: list[Any] = [p for p in (b0.source_path, b1.source_path,
+                                     previous_members if isinstance(previous_members, (str, Path)) else None,
+                                     current_members if isinstance(current_members, (str, Path)) else None)
+                         if p is not None]
+    if out is not None:
+        check_output_folder(out, overwrite=overwrite, inputs=inputs)
+    rolled = rollforward(b0, previous_members, to=b1.valuation_date, fmt=fmt, accept_exclusions=accept_exclusions,
+                         warn=warn).rolled
+    notes: list[str] = []
+    paid = rolled.benefits_expected if benefits_paid is None else float(benefits_paid)
+    if benefits_paid is None:
+        notes.append("benefits paid: none given, so the payments the previous valuation expected in the period")
+    expected = rolled.opening + rolled.service_cost + rolled.interest - paid
+    data = read(b1, current_members, fmt)
+    gate(b1, data.path, data.read, data.valued, data.excluded, accept_exclusions, warn)
+    d1 = b1.valuation_date.isoformat()
+
+    def value(basis: Basis) -> float:
+        return value_members(basis, data, sensitivities=False).total_liability
+
+    step_basis = b0.model_copy(update={"valuation_date": b1.valuation_date})
+    level = value(step_basis)
+    lines = [
+        ChangeLine("opening", "opening liability", rolled.opening,
+                   f"previous members, previous basis, {b0.valuation_date.isoformat()}"),
+        ChangeLine("service_cost", "current service cost", rolled.service_cost),
+        ChangeLine("interest", "interest cost (opening discount rate)", rolled.interest),
+        ChangeLine("benefits_paid", "benefits paid", -paid),
+        ChangeLine("expected_closing", "expected closing liability", expected),
+        ChangeLine("experience", "experience (membership and data against expected)", level - expected,
+                   f"current members, previous basis, {d1}"),
+    ]
+    labels = {"demographic": "change in demographic assumptions", "financial": "change in financial assumptions",
+              "other": "other changes of the basis (benefit rules, conventions)"}
+    done: list[str] = []
+    for step in order:
+        step_basis = with_fields(step_basis, b1, fields_of(step))
+        done.append(step)
+        now = value(step_basis)
+        lines.append(ChangeLine(step, labels[step], now - level,
+                                f"current members, previous basis with the current {' and '.join(done)} assumptions, {d1}"))
+        level = now
+    closing = value(b1)
+    if abs(closing - level) > 1e-9 * max(abs(closing), 1.0):
+        raise BasisError("the steps of the analysis do not reproduce the current valuation (a table or curve file "
+                         "of one basis is not found from the other's folder)", file=b1.source_path,
+                         fix="keep both bases, and the files they name, in one folder")
+    lines.append(ChangeLine("closing", "closing liability", closing, f"current members, current basis, {d1}"))
+    run = ChangeRun(AnalysisOfChange(tuple(lines), tuple(order), tuple(notes)), b0.valuation_date, b1.valuation_date)
+    if out is not None:
+        with atomic_folder(out, overwrite=overwrite, inputs=inputs) as tmp:
+            run.write(tmp)
+            dump_json({"tool_version": __version__, "command": "change", "inputs": input_hashes(inputs),
+                       "settings": {"order": list(order), "benefits_paid": benefits_paid}}, tmp / MANIFEST)
     return run
 
 

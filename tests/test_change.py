@@ -1,0 +1,92 @@
+"""The analysis of change (valuation/engine/change.py, pipeline.change) against its defining properties and
+the policy-value recursion: the expected closing liability of a closed group of pensioners on an unchanged
+basis is (V_0 - B)(1 + i) = p V_1 (Dickson, Hardy & Waters, AMLCR, ch. 7; Bowers et al., ch. 8); with both
+bases equal and experience exactly as expected every item is zero; the items add up to closing - opening;
+swapping the order of two assumption steps changes the split but not the total (common practice: a stepwise
+analysis is order-dependent, its total is not); IAS 19 paras 140-141 name the lines."""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+import pytest
+
+from tests.test_rollforward import T0, T1, _basis, _pensioners, members
+from valuation.pipeline import change
+
+ROOT = Path(__file__).resolve().parents[1]
+DEMO_ARGS = (ROOT / "assumptions" / "demo_basis_2022.toml", ROOT / "member_data_demo" / "members_start.csv",
+             ROOT / "assumptions" / "demo_basis.toml", ROOT / "member_data_demo" / "members.csv")
+
+
+def _expected_survivors(b0, start):
+    import numpy as np
+    import polars as pl
+
+    from valuation.engine.project import Valuer
+    from valuation.survival import age_at
+
+    valuer = Valuer(b0)
+    x0 = np.asarray(age_at(np.asarray(start["date_of_birth"].to_numpy(), dtype="datetime64[D]"),
+                           np.datetime64(T0, "D"), "exact"), dtype=float)
+    rows = valuer.bc.rows("pensioner", start["sex"].to_numpy().astype(str), x0)
+    p = valuer.bc.l(rows, x0 + 1.0) / valuer.bc.l(rows, x0)
+    return start.with_columns((pl.col("pension") * 1.02 * pl.Series(p)).alias("pension")).with_columns(
+        pl.col("pension").alias("pension_main"))
+
+
+def test_experience_as_expected_on_an_unchanged_basis_leaves_nothing_to_explain(tmp_path):
+    b0, b1 = _basis(tmp_path, T0, "b0.toml"), _basis(tmp_path, T1, "b1.toml")
+    start = members(_pensioners())
+    run = change(b0, start, b1, _expected_survivors(b0, start))
+    a = run.analysis
+    opening = a.amount("opening")
+    assert a.amount("experience") == pytest.approx(0.0, abs=1e-9 * opening)
+    for step in ("demographic", "financial", "other"):
+        assert a.amount(step) == 0.0
+    # the expected closing liability is the recursion's p V_1: the closing valuation of the survivors
+    assert a.amount("expected_closing") == pytest.approx(a.amount("closing"), rel=1e-10)
+    assert a.amount("service_cost") == 0.0
+
+
+def test_the_demo_items_add_up_and_the_order_moves_only_the_split():
+    first = change(*DEMO_ARGS).analysis
+    swapped = change(*DEMO_ARGS, order=("financial", "demographic", "other")).analysis
+    for a in (first, swapped):
+        assert abs(a.check()) <= 1e-9 * a.amount("closing")
+        assert a.amount("closing") == pytest.approx(362_582_929.78, rel=1e-10)  # the demo valuation (README)
+    assert first.amount("financial") != pytest.approx(swapped.amount("financial"), rel=1e-6)
+    assert (first.amount("financial") + first.amount("demographic")
+            == pytest.approx(swapped.amount("financial") + swapped.amount("demographic"), rel=1e-12))
+    for key in ("opening", "service_cost", "interest", "benefits_paid", "experience", "demographic", "financial"):
+        assert first.amount(key) != 0.0, key
+    # yields rose from 3.2 % to 4.8 % and expected inflation fell: the financial change lowers the liability
+    assert first.amount("financial") < 0
+
+
+def test_benefits_paid_replace_the_expected_payments_and_the_difference_is_experience():
+    expected = change(*DEMO_ARGS).analysis
+    given = change(*DEMO_ARGS, benefits_paid=30_000_000.0).analysis
+    assert given.amount("benefits_paid") == -30_000_000.0
+    moved = expected.amount("benefits_paid") - given.amount("benefits_paid")
+    assert given.amount("experience") - expected.amount("experience") == pytest.approx(moved, rel=1e-9)
+    assert given.amount("closing") == expected.amount("closing")
+    assert given.notes == () and expected.notes
+
+
+def test_change_command_writes_change_json_and_csv(tmp_path):
+    from valuation.cli import main
+
+    out = tmp_path / "ch"
+    assert main(["change", *map(str, DEMO_ARGS), "--out", str(out), "-q"]) == 0
+    saved = json.loads((out / "change.json").read_text(encoding="utf-8"))
+    assert [x["key"] for x in saved["lines"]] == ["opening", "service_cost", "interest", "benefits_paid",
+                                                  "expected_closing", "experience", "demographic", "financial",
+                                                  "other", "closing"]
+    assert abs(saved["check"]) < 1e-3
+    assert (out / "change.csv").read_text(encoding="utf-8").startswith("key,label,amount,valuation")
+    # the bases in the wrong order are refused
+    assert main(["change", str(DEMO_ARGS[2]), str(DEMO_ARGS[3]), str(DEMO_ARGS[0]), str(DEMO_ARGS[1]),
+                 "--out", str(tmp_path / "no"), "-q"]) == 3
+    assert not (tmp_path / "no").exists()
