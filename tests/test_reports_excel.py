@@ -52,8 +52,13 @@ def run_folder(tmp_path_factory: pytest.TempPathFactory) -> Path:
                                  deaths_path=root / "member_data_demo" / "deaths.csv",
                                  exits_path=root / "member_data_demo" / "exits.csv").result
 
+    from valuation.pipeline import change
+
+    analysis = change(root / "assumptions" / "demo_basis_2022.toml", root / "member_data_demo" / "members_start.csv",
+                      root / "assumptions" / "demo_basis.toml", root / "member_data_demo" / "members.csv").analysis
+
     def workbook(res, folder: Path) -> None:
-        write_workbook(res, folder / "valuation.xlsx", experience=experience, movements=moved)
+        write_workbook(res, folder / "valuation.xlsx", experience=experience, movements=moved, analysis=analysis)
 
     return write_run(result, tmp_path_factory.mktemp("xlsx") / "run", extra=[workbook])
 
@@ -83,7 +88,18 @@ def test_all_sheets_present_in_order(book) -> None:
 
 def test_experience_sheet_only_when_analysis_run(tmp_path: Path) -> None:
     path = write_workbook(make_result(), tmp_path / "v.xlsx")
-    assert load_workbook(path).sheetnames == [s for s in SHEETS if s not in ("Experience", "Movements")]
+    assert load_workbook(path).sheetnames == [s for s in SHEETS if s not in ("Experience", "Movements", "Change")]
+
+
+def test_change_sheet_lines_add_up(book) -> None:
+    """The Change sheet: every line of the analysis of change with its amount; opening + the items =
+    closing (the lines of a reconciliation of the obligation, IAS 19 paras 140-141)."""
+    path, _ = book
+    ws = load_workbook(path)["Change"]
+    rows = {r[0]: r[1] for r in ws.iter_rows(values_only=True) if r and isinstance(r[1], float)}
+    items = [v for k, v in rows.items() if k not in ("opening liability", "expected closing liability",
+                                                     "closing liability")]
+    assert rows["opening liability"] + sum(items) == pytest.approx(rows["closing liability"], rel=1e-9)
 
 
 def test_movements_sheet_balances(book) -> None:

@@ -228,7 +228,8 @@ def cmd_run(args: argparse.Namespace) -> int:
         outcome = pipeline.run(
             basis, args.members, out=out, overwrite=args.overwrite, fmt=_input_format(args),
             sensitivities=not args.no_sensitivities, reports=not args.no_reports, chunk_size=args.chunk_size,
-            stream=args.stream, accept_exclusions=args.accept_exclusions, experience=experience, progress=progress,
+            stream=args.stream, accept_exclusions=args.accept_exclusions, experience=experience,
+            previous_basis=args.previous_basis, progress=progress,
             say=lambda text: _say(args, text), warn=_warn)
     finally:
         progress.close()
@@ -240,6 +241,10 @@ def cmd_run(args: argparse.Namespace) -> int:
 
         words = movements_words(outcome.movements.result)
         _say(args, "membership " + words[0].lower() + words[1:])
+    if outcome.change is not None:
+        from valuation.reports.content import change_words
+
+        _say(args, "change since the last valuation: " + change_words(outcome.change.analysis, basis.currency))
     _say(args, f"written to {out}/")
     return EXIT_OK
 
@@ -508,6 +513,9 @@ def build_parser() -> argparse.ArgumentParser:
     g.add_argument("--period-start", type=iso_date, help="period start (ISO date YYYY-MM-DD)")
     g.add_argument("--period-end", type=iso_date, help="period end (ISO date YYYY-MM-DD), usually the valuation date")
     _experience_options(g)
+    g.add_argument("--previous-basis", type=existing_file,
+                   help="the previous valuation's basis, dated --period-start: adds the analysis of change from it "
+                        "(the start membership on it) to this valuation")
     _format_options(r)
     common(r)
     r.set_defaults(parser=r, func=cmd_run)
@@ -668,6 +676,9 @@ def _validate(parser: argparse.ArgumentParser, args: argparse.Namespace) -> None
                   "--period-start and --period-end, or leave them out")
     if args.stream and given:
         sub.error("--stream does not combine with the experience analysis; run `valuation experience` separately")
+    if args.previous_basis is not None and not given:
+        sub.error("--previous-basis needs the experience inputs (--deaths, --start-members, --period-start, "
+                  "--period-end): the start membership is the previous valuation's")
 
 
 def _terminate(signum: int, frame: Any) -> None:

@@ -69,6 +69,8 @@ class Outcome:
     folder: Path | None = None
     #: the membership movements from the start membership to the valued members (with the experience)
     movements: MovementsRun | None = None
+    #: the analysis of change from the previous valuation (with the experience and a previous basis)
+    change: ChangeRun | None = None
     data: MemberData | None = field(default=None, repr=False)
 
 
@@ -107,16 +109,17 @@ def read(basis: Basis, members: MemberInput, fmt: InputFormat = DEFAULT_FORMAT) 
     return members_from_frame(members, basis)
 
 
-def report_writers(experience: ExperienceResult | None = None,
-                   movements: MovementsResult | None = None) -> list[ExtraWriter]:
+def report_writers(experience: ExperienceResult | None = None, movements: MovementsResult | None = None,
+                   analysis: AnalysisOfChange | None = None) -> list[ExtraWriter]:
     """Writers of the actuary's workbook (``valuation.xlsx``) and the trustees' summary (``summary.html``),
     with an experience analysis and the membership movements in both when they are given."""
 
     def workbook(result: ValuationResult, folder: Path) -> None:
-        write_workbook(result, folder / "valuation.xlsx", experience=experience, movements=movements)
+        write_workbook(result, folder / "valuation.xlsx", experience=experience, movements=movements,
+                       analysis=analysis)
 
     def html(result: ValuationResult, folder: Path) -> None:
-        write_html(result, folder / "summary.html", experience=experience, movements=movements)
+        write_html(result, folder / "summary.html", experience=experience, movements=movements, analysis=analysis)
 
     return [workbook, html]
 
@@ -124,7 +127,11 @@ def report_writers(experience: ExperienceResult | None = None,
 def writers_for(outcome: Outcome, *, reports: bool) -> list[ExtraWriter]:
     """Every writer a run folder needs beyond the tables: reports, and the experience files."""
     moved = outcome.movements
-    writers = report_writers(outcome.experience, moved.result if moved else None) if reports else []
+    changed = outcome.change
+    writers = (report_writers(outcome.experience, moved.result if moved else None,
+                              changed.analysis if changed else None) if reports else [])
+    if changed is not None:
+        writers.append(lambda _res, folder: changed.write(folder))
     experience = outcome.experience
     if experience is not None:
         writers.append(lambda _res, folder: experience.write(folder))
@@ -175,6 +182,7 @@ def run(
     stream: bool = False,
     accept_exclusions: bool = False,
     experience: ExperienceInputs | None = None,
+    previous_basis: Basis | str | Path | None = None,
     progress: Progress | None = None,
     say: Say = _quiet,
     warn: Say = _quiet,
@@ -201,7 +209,11 @@ def run(
     accept_exclusions : bool
         Value the remaining records when more are excluded than the basis allows.
     experience : ExperienceInputs, optional
-        Add the experience analysis, with the liability effect of the implied mortality.
+        Add the experience analysis, with the liability effect of the implied mortality, and the membership
+        movements over its period.
+    previous_basis : Basis, str or Path, optional
+        With ``experience``: the previous valuation's basis, dated the period start, for the analysis of
+        change from the previous valuation (the start membership on it) to this one.
     progress : callable, optional
         ``progress(stage, done, total)``.
     say, warn : callable, optional
@@ -213,9 +225,16 @@ def run(
         Any input or output problem (DataError, BasisError, TableError, OutputError), or ExclusionsError.
     """
     loaded = as_basis(basis)
+    previous = as_basis(previous_basis) if previous_basis is not None else None
+    if previous is not None and (experience is None or previous.valuation_date != experience.settings.period_start):
+        raise BasisError("the analysis of change needs the start membership and a previous basis dated the period "
+                         "start", file=previous.source_path,
+                         fix="give --start-members, --deaths and the period, and a previous basis whose "
+                             "valuation_date is --period-start")
     member_file = members if isinstance(members, (str, Path)) else None
     inputs: list[Any] = [p for p in (loaded.source_path, member_file) if p is not None]
     inputs += experience.files if experience else []
+    inputs += [previous.source_path] if previous is not None else []
     if out is not None:
         check_output_folder(out, overwrite=overwrite, inputs=inputs)
     if stream:
@@ -245,6 +264,8 @@ def run(
         outcome.movements = membership_movements(
             loaded, start, data, period_start=period.period_start, period_end=period.period_end,
             deaths_path=experience.deaths, exits_path=experience.exits)
+        if previous is not None:
+            outcome.change = change(previous, start, loaded, data, accept_exclusions=accept_exclusions, warn=warn)
     if out is not None:
         if progress:
             progress("writing", 0, 1)

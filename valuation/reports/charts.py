@@ -231,3 +231,35 @@ def _ae_alt(labels: list[str], ae: np.ndarray, lo: np.ndarray, hi: np.ndarray, p
              for g, a, lo_, h, p in zip(labels, ae, lo, hi, past, strict=True)]
     return (f"Chart of actual deaths as a percentage of expected deaths (lives) for each age band, with its "
             f"interval, against the expected 100% line; the axis runs to {top:.0f}%. " + "; ".join(parts) + ".")
+
+
+def change_waterfall(lines: list[tuple[str, float]], currency: str | None = None) -> str:
+    """Waterfall of the analysis of change [currency]: the opening and closing liability as columns from
+    zero, each item between them as a step up (accent) or down (grid colour) from where the last one ended.
+    ``lines`` are (our own label, amount), opening first and closing last."""
+    code = _code(currency)
+    labels = [label for label, _ in lines]
+    amounts = np.array([float(a) for _, a in lines])
+    starts = np.zeros(len(lines))
+    level = amounts[0]
+    for i in range(1, len(lines) - 1):
+        starts[i] = level
+        level += amounts[i]
+    heights = amounts.copy()
+    colours = [PALETTE["pensioner"]] + [ACCENT if a >= 0 else "#8a9a94" for a in amounts[1:-1]] + [PALETTE["pensioner"]]
+    alt = ("Waterfall chart of the change in the liability: " + "; ".join(
+        f"{label} {'' if i in (0, len(lines) - 1) else ('up ' if a >= 0 else 'down ')}"
+        f"{fmt.about_money(abs(a) if 0 < i < len(lines) - 1 else a, code)}"
+        for i, (label, a) in enumerate(lines)) + ".")
+    with rc_context(_RC):
+        fig = Figure(figsize=(8.0, 2.8))
+        ax = fig.subplots()
+        x = np.arange(len(lines))
+        ax.bar(x, heights, bottom=starts, color=colours, width=0.7)
+        ax.set_xticks(x, labels, rotation=20, ha="right", fontsize=8)
+        ax.yaxis.set_major_formatter(FuncFormatter(_thousands))
+        ax.set_ylabel(f"Liability{_unit(code)}")
+        ax.grid(axis="y", color=GRID, linewidth=0.8)
+        ax.set_axisbelow(True)
+        fig.subplots_adjust(bottom=0.38)
+        return to_svg(fig, "change", alt)

@@ -11,6 +11,7 @@ from typing import Any, Literal
 
 import polars as pl
 
+from valuation.engine.change import AnalysisOfChange
 from valuation.engine.summary import Assumptions, JsonValue, RunSummary
 from valuation.experience.result import ExperienceResult
 from valuation.experience.summary import ImpliedSummary
@@ -404,3 +405,28 @@ def movements_words(movements: MovementsResult) -> str:
             else f"{unexplained:,} records changed in ways no movement explains (listed in movements_exceptions.csv)")
     said = ", ".join(parts) if parts else "no member moved"
     return (f"Since {movements.period_start.strftime('%d %B %Y').lstrip('0')}: {said}; {tail}.")
+
+
+#: Short labels of the analysis of change's lines, for the trustees' chart and table.
+CHANGE_LABELS: dict[str, str] = {
+    "opening": "Last valuation", "service_cost": "Benefits earned", "interest": "Interest",
+    "benefits_paid": "Benefits paid", "experience": "Experience", "demographic": "Demographic assumptions",
+    "financial": "Financial assumptions", "other": "Other basis changes", "closing": "This valuation",
+}
+
+
+def change_rows(analysis: AnalysisOfChange) -> list[tuple[str, float]]:
+    """The analysis's lines in the trustees' words (the expected closing line left out: it is a subtotal)."""
+    return [(CHANGE_LABELS[x.key], x.amount) for x in analysis.lines if x.key in CHANGE_LABELS]
+
+
+def change_words(analysis: AnalysisOfChange, currency: str | None) -> str:
+    """Two plain sentences on what moved the liability most."""
+    items = [x for x in analysis.lines if x.key not in ("opening", "expected_closing", "closing")]
+    biggest = max(items, key=lambda x: abs(x.amount))
+    opening, closing = analysis.amount("opening"), analysis.amount("closing")
+    move = "rose" if closing >= opening else "fell"
+    return (f"The liability {move} from {fmt.about_money(opening, currency)} at the last valuation to "
+            f"{fmt.about_money(closing, currency)} now. The largest single cause was "
+            f"{CHANGE_LABELS[biggest.key].lower()} ({'up' if biggest.amount >= 0 else 'down'} "
+            f"{fmt.about_money(abs(biggest.amount), currency)}).")

@@ -2,7 +2,8 @@
 
 Sheets: Summary, Basis (as given in the basis file and as used), Liabilities, Cash flows (with a chart),
 Sensitivities, Life expectancy, Expected deaths, Experience (when an analysis was run, with a chart),
-Movements (the membership movements over the same period, with it),
+Movements (the membership movements over the same period, with it), Change (the analysis of change
+from a previous valuation, when its basis is given),
 Exceptions, Members (up to :data:`valuation.engine.write.SMALL_SCHEME` members; above it the sheet points
 to members.parquet) and Manifest. The headline total is also the workbook name ``TotalLiability``. Money
 is in the basis's currency (number formats ``[$GBP] #,##0``); headers are plain words; every sheet prints
@@ -22,18 +23,19 @@ from valuation.reports import excel_sheets as sheets
 from valuation.reports.format import currency_of
 
 if TYPE_CHECKING:
+    from valuation.engine.change import AnalysisOfChange
     from valuation.experience.result import ExperienceResult
     from valuation.movements.classify import MovementsResult
 
 #: Sheet names in workbook order (Experience only when an analysis was run).
 SHEETS: tuple[str, ...] = (
     "Summary", "Basis", "Liabilities", "Cash flows", "Sensitivities", "Life expectancy", "Expected deaths",
-    "Experience", "Movements", "Exceptions", "Members", "Manifest",
+    "Experience", "Movements", "Change", "Exceptions", "Members", "Manifest",
 )
 
 
 def write_workbook(result: ValuationResult, path: Path, experience: ExperienceResult | None = None,
-                   movements: MovementsResult | None = None) -> Path:
+                   movements: MovementsResult | None = None, analysis: AnalysisOfChange | None = None) -> Path:
     """Write the valuation workbook to ``path`` and return the path.
 
     Parameters
@@ -46,6 +48,8 @@ def write_workbook(result: ValuationResult, path: Path, experience: ExperienceRe
         An experience analysis to include (optional).
     movements
         The membership movements over the experience period (optional).
+    analysis
+        The analysis of change from the previous valuation (optional).
 
     Returns
     -------
@@ -67,6 +71,8 @@ def write_workbook(result: ValuationResult, path: Path, experience: ExperienceRe
         sheets.experience_sheet(wb.create_sheet("Experience"), experience, currency_of(result.summary))
     if movements is not None:
         sheets.movements_sheet(wb.create_sheet("Movements"), movements)
+    if analysis is not None:
+        sheets.change_sheet(wb.create_sheet("Change"), analysis, currency_of(result.summary))
     sheets.exceptions_sheet(wb.create_sheet("Exceptions"), result)
     sheets.members_sheet(wb.create_sheet("Members"), result)
     sheets.manifest_sheet(wb.create_sheet("Manifest"), result)

@@ -17,6 +17,7 @@ import polars as pl
 from openpyxl.utils import get_column_letter
 from openpyxl.worksheet.worksheet import Worksheet
 
+from valuation.engine.change import AnalysisOfChange
 from valuation.engine.results import ValuationResult
 from valuation.engine.summary import LUMP_SUMS
 from valuation.engine.write import SMALL_SCHEME
@@ -30,7 +31,7 @@ from valuation.reports.excel_experience import experience_sheet
 from valuation.vocabulary import STATUSES
 
 __all__ = [
-    "basis_sheet", "cashflows_sheet", "deaths_sheet", "exceptions_sheet", "experience_sheet",
+    "basis_sheet", "cashflows_sheet", "change_sheet", "deaths_sheet", "exceptions_sheet", "experience_sheet",
     "life_expectancy_sheet", "liabilities_sheet", "manifest_sheet", "members_sheet", "movements_sheet",
     "sensitivities_sheet", "summary_sheet",
 ]
@@ -373,6 +374,19 @@ def movements_sheet(ws: Worksheet, movements: MovementsResult) -> None:
                                  ("Deaths in the deaths file only (still in the current extract)",
                                   d["deaths_file_only"], xc.COUNT),
                                  ("Gone from the extracts with no death or exit record", d["extracts_only"], xc.COUNT)])
+    xc.fit_widths(ws, HEAD)
+    xc.print_setup(ws, landscape=True, header_row=HEAD)
+
+
+def change_sheet(ws: Worksheet, analysis: AnalysisOfChange, currency: str | None) -> None:
+    """The analysis of change: each line, its amount and the valuation behind it; the lines add up."""
+    _list_sheet(ws, "Analysis of change", "From the previous valuation's liability to this one's: each step is "
+                "a full valuation (the basis and data named beside it); the items add up to closing minus opening.")
+    frame = pl.DataFrame({"line": [x.label for x in analysis.lines], "amount": [x.amount for x in analysis.lines],
+                          "valuation": [x.valuation for x in analysis.lines]})
+    xc.write_frame(ws, frame, top=HEAD, formats={"amount": xc.money_format(currency)},
+                   labels={"line": "line", "amount": fmt.money_label("amount", currency), "valuation": "valued"},
+                   table="AnalysisOfChange")
     xc.fit_widths(ws, HEAD)
     xc.print_setup(ws, landscape=True, header_row=HEAD)
 

@@ -20,6 +20,7 @@ from valuation.reports import charts, content
 from valuation.reports import format as fmt
 
 if TYPE_CHECKING:
+    from valuation.engine.change import AnalysisOfChange
     from valuation.experience.result import ExperienceResult
     from valuation.experience.summary import TableLine
     from valuation.movements.classify import MovementsResult
@@ -93,7 +94,7 @@ def _experience(experience: ExperienceResult | None, code: str | None) -> dict[s
 
 
 def build_context(result: ValuationResult, experience: ExperienceResult | None = None,
-                  movements: MovementsResult | None = None) -> dict[str, Any]:
+                  movements: MovementsResult | None = None, analysis: AnalysisOfChange | None = None) -> dict[str, Any]:
     """Everything the template shows, as plain values (text is escaped by the template)."""
     s = result.summary
     code = fmt.currency_of(s)
@@ -117,6 +118,9 @@ def build_context(result: ValuationResult, experience: ExperienceResult | None =
         "life": _life_table(result.life_expectancy),
         "experience": _experience(experience, code),
         "movements": content.movements_words(movements) if movements is not None else None,
+        "change": None if analysis is None else {
+            "rows": content.change_rows(analysis), "words": content.change_words(analysis, code),
+            "chart": Markup(charts.change_waterfall(content.change_rows(analysis), code))},
         "reasons": reasons.head(content.TOP_REASONS).to_dicts(),
         "more_reasons": max(0, reasons.height - content.TOP_REASONS),
         "data_notice": content.data_notice(s),
@@ -126,16 +130,16 @@ def build_context(result: ValuationResult, experience: ExperienceResult | None =
 
 
 def render_html(result: ValuationResult, experience: ExperienceResult | None = None,
-                movements: MovementsResult | None = None) -> str:
+                movements: MovementsResult | None = None, analysis: AnalysisOfChange | None = None) -> str:
     """The summary page as text."""
     env = _environment()
     code = fmt.currency_of(result.summary)
     env.filters["about"] = lambda value: fmt.about_money(value, code)
-    return env.get_template("summary.html.j2").render(**build_context(result, experience, movements))
+    return env.get_template("summary.html.j2").render(**build_context(result, experience, movements, analysis))
 
 
 def write_html(result: ValuationResult, path: Path, experience: ExperienceResult | None = None,
-               movements: MovementsResult | None = None) -> Path:
+               movements: MovementsResult | None = None, analysis: AnalysisOfChange | None = None) -> Path:
     """Write the trustees' HTML summary to ``path`` and return the path.
 
     Parameters
@@ -148,6 +152,8 @@ def write_html(result: ValuationResult, path: Path, experience: ExperienceResult
         An experience analysis to include (optional).
     movements
         The membership movements over the experience period, said in one sentence (optional).
+    analysis
+        The analysis of change from the previous valuation: a chart, a table and two sentences (optional).
 
     Returns
     -------
@@ -156,5 +162,5 @@ def write_html(result: ValuationResult, path: Path, experience: ExperienceResult
     """
     path = Path(path)
     path.parent.mkdir(parents=True, exist_ok=True)
-    path.write_text(render_html(result, experience, movements), encoding="utf-8")
+    path.write_text(render_html(result, experience, movements, analysis), encoding="utf-8")
     return path
