@@ -90,3 +90,13 @@ def test_change_command_writes_change_json_and_csv(tmp_path):
     assert main(["change", str(DEMO_ARGS[2]), str(DEMO_ARGS[3]), str(DEMO_ARGS[0]), str(DEMO_ARGS[1]),
                  "--out", str(tmp_path / "no"), "-q"]) == 3
     assert not (tmp_path / "no").exists()
+
+
+def test_the_disclosure_note_reconciles_the_obligation():
+    """IAS 19 para 140-141: opening DBO + service cost + interest + remeasurements + other - benefits = closing
+    DBO, each remeasurement from its own step."""
+    a = change(*DEMO_ARGS).analysis
+    rows = a.disclosure()
+    assert rows[0][1] == a.amount("opening") and rows[-1][1] == a.amount("closing")
+    assert sum(v for _, v in rows[:-1]) == pytest.approx(rows[-1][1], rel=1e-12)
+    assert dict(rows)["Remeasurement: experience adjustments"] == a.amount("experience")

@@ -481,12 +481,14 @@ class ChangeRun:
     current_date: date
 
     def summary(self) -> dict[str, object]:
-        """What change.json holds (keys stable: previous_date, current_date, order, lines, check, notes)."""
+        """What change.json holds (keys stable: previous_date, current_date, order, lines, disclosure, check,
+        notes)."""
         a = self.analysis
         return {"previous_date": self.previous_date.isoformat(), "current_date": self.current_date.isoformat(),
                 "order": list(a.order),
                 "lines": [{"key": x.key, "label": x.label, "amount": x.amount, "valuation": x.valuation}
                           for x in a.lines],
+                "disclosure": [{"line": label, "amount": amount} for label, amount in a.disclosure()],
                 "check": a.check(), "notes": list(a.notes)}
 
     def write(self, folder: Path) -> None:

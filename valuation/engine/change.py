@@ -71,6 +71,24 @@ class AnalysisOfChange:
     def amount(self, key: str) -> float:
         return next(line.amount for line in self.lines if line.key == key)
 
+    def disclosure(self) -> list[tuple[str, float]]:
+        """The lines as a disclosure note reconciles the defined benefit obligation (IAS 19 paras 140-141):
+        opening, current service cost, interest expense, remeasurements (gains negative, losses positive:
+        from demographic assumptions, from financial assumptions, experience adjustments), other changes of
+        the basis, benefits paid, closing."""
+        return [
+            ("Defined benefit obligation at the start of the period", self.amount("opening")),
+            ("Current service cost", self.amount("service_cost")),
+            ("Interest expense", self.amount("interest")),
+            ("Remeasurement: actuarial (gains)/losses from changes in demographic assumptions",
+             self.amount("demographic")),
+            ("Remeasurement: actuarial (gains)/losses from changes in financial assumptions", self.amount("financial")),
+            ("Remeasurement: experience adjustments", self.amount("experience")),
+            ("Other changes of the basis (benefit rules, conventions)", self.amount("other")),
+            ("Benefits paid", self.amount("benefits_paid")),
+            ("Defined benefit obligation at the end of the period", self.amount("closing")),
+        ]
+
     def check(self) -> float:
         """Closing - (opening + every item): 0 to rounding."""
         return self.lines[-1].amount - sum(line.amount for line in self.lines[:-1] if line.key != "expected_closing")

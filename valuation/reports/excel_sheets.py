@@ -384,9 +384,17 @@ def change_sheet(ws: Worksheet, analysis: AnalysisOfChange, currency: str | None
                 "a full valuation (the basis and data named beside it); the items add up to closing minus opening.")
     frame = pl.DataFrame({"line": [x.label for x in analysis.lines], "amount": [x.amount for x in analysis.lines],
                           "valuation": [x.valuation for x in analysis.lines]})
-    xc.write_frame(ws, frame, top=HEAD, formats={"amount": xc.money_format(currency)},
-                   labels={"line": "line", "amount": fmt.money_label("amount", currency), "valuation": "valued"},
-                   table="AnalysisOfChange")
+    last = xc.write_frame(ws, frame, top=HEAD, formats={"amount": xc.money_format(currency)},
+                          labels={"line": "line", "amount": fmt.money_label("amount", currency), "valuation": "valued"},
+                          table="AnalysisOfChange")
+    note_row = last + 2
+    xc.note(ws, note_row, "The same lines as a disclosure note reconciles the defined benefit obligation (IAS 19 "
+            "paras 140-141; gains negative, losses positive):")
+    disclosure = pl.DataFrame({"line": [label for label, _ in analysis.disclosure()],
+                               "amount": [amount for _, amount in analysis.disclosure()]})
+    xc.write_frame(ws, disclosure, top=note_row + 1, formats={"amount": xc.money_format(currency)},
+                   labels={"line": "reconciliation of the obligation", "amount": fmt.money_label("amount", currency)},
+                   table="ObligationReconciliation")
     xc.fit_widths(ws, HEAD)
     xc.print_setup(ws, landscape=True, header_row=HEAD)
 
