@@ -467,6 +467,14 @@ def _period_options(sp: argparse.ArgumentParser, start_note: str = "", end_note:
                     help=f"period end{end_note} (ISO date YYYY-MM-DD)")
 
 
+def _folder_options(sp: argparse.ArgumentParser, what: str, default: str, accept_help: str) -> None:
+    """--out, --overwrite and --accept-exclusions of a command that writes one folder."""
+    sp.add_argument("--out", type=new_path, help="folder to write: new, empty, or a previous one with --overwrite "
+                                  f"(default: outputs/{default}, never an existing folder)")
+    _overwrite(sp, f"a previous {what} folder in --out")
+    sp.add_argument("--accept-exclusions", action="store_true", help=accept_help)
+
+
 def _overwrite(sp: argparse.ArgumentParser, what: str) -> None:
     sp.add_argument("--overwrite", action="store_true", help=f"replace {what}")
 
@@ -591,11 +599,8 @@ def build_parser() -> argparse.ArgumentParser:
     mv.add_argument("--deaths", type=existing_file, help="deaths file: member_id, date_of_death[, pension_at_death]")
     mv.add_argument("--exits", type=existing_file, help="other exits: member_id, exit_date, reason")
     _format_options(mv)
-    mv.add_argument("--out", type=new_path, help="folder to write: new, empty, or a previous one with --overwrite "
-                                  "(default: outputs/movements-<period end>, never an existing folder)")
-    _overwrite(mv, "a previous movements folder in --out")
-    mv.add_argument("--accept-exclusions", action="store_true",
-                    help="classify even when an extract has more excluded records than the basis allows")
+    _folder_options(mv, "movements", "movements-<period end>",
+                    "classify even when an extract has more excluded records than the basis allows")
     common(mv)
     mv.set_defaults(parser=mv, func=cmd_movements)
     rf = sub.add_parser("rollforward", help="roll a valuation forward to a later date (approximate)",
@@ -611,11 +616,8 @@ def build_parser() -> argparse.ArgumentParser:
     rf.add_argument("--new-basis", type=existing_file,
                     help="a basis dated --to whose discount, inflation and salary growth are used")
     _format_options(rf)
-    rf.add_argument("--out", type=new_path, help="folder to write: new, empty, or a previous one with --overwrite "
-                                  "(default: outputs/rollforward-<date>, never an existing folder)")
-    _overwrite(rf, "a previous roll-forward folder in --out")
-    rf.add_argument("--accept-exclusions", action="store_true",
-                    help="roll forward even when more records are excluded than the basis allows")
+    _folder_options(rf, "roll-forward", "rollforward-<date>",
+                    "roll forward even when more records are excluded than the basis allows")
     common(rf)
     rf.set_defaults(parser=rf, func=cmd_rollforward)
     ch = sub.add_parser("change", help="analysis of change of the liability between two valuations",
@@ -634,11 +636,8 @@ def build_parser() -> argparse.ArgumentParser:
     ch.add_argument("--order", type=_step_order, default=("demographic", "financial", "other"),
                     help="order of the assumption steps (default demographic,financial,other)")
     _format_options(ch)
-    ch.add_argument("--out", type=new_path, help="folder to write: new, empty, or a previous one with --overwrite "
-                                  "(default: outputs/change-<current date>, never an existing folder)")
-    _overwrite(ch, "a previous analysis folder in --out")
-    ch.add_argument("--accept-exclusions", action="store_true",
-                    help="analyse even when more records are excluded than the basis allows")
+    _folder_options(ch, "analysis", "change-<current date>",
+                    "analyse even when more records are excluded than the basis allows")
     common(ch)
     ch.set_defaults(parser=ch, func=cmd_change)
     t = sub.add_parser("table", help="look at a mortality table or improvement scale file before using it",

@@ -357,11 +357,8 @@ def movements(
     for data in (found.previous, found.current):
         gate(loaded, data.path, data.read, data.valued, data.excluded, accept_exclusions, warn)
     if out is not None:
-        with atomic_folder(out, overwrite=overwrite, inputs=inputs) as tmp:
-            found.write(tmp)
-            dump_json({"tool_version": __version__, "command": "movements", "inputs": input_hashes(inputs),
-                       "settings": settings or {"period_start": period_start.isoformat(),
-                                                "period_end": period_end.isoformat()}}, tmp / MANIFEST)
+        _write_folder(out, overwrite, inputs, "movements", settings or {
+            "period_start": period_start.isoformat(), "period_end": period_end.isoformat()}, found.write)
     return found
 
 
@@ -391,6 +388,16 @@ class RollForwardRun:
         width = max(len(label) for label, _ in self.rolled.lines())
         lines += [f"  {label:<{width}}  {money(value)}" for label, value in self.rolled.lines()]
         return "\n".join([*lines, ROLL_FORWARD_CAUTION])
+
+
+def _write_folder(out: str | Path, overwrite: bool, inputs: list[Any], command: str, settings: dict[str, Any],
+                  write: Callable[[Path], None]) -> None:
+    """A command's folder, written whole or not at all: its files and the manifest (input hashes, tool
+    version, the settings)."""
+    with atomic_folder(out, overwrite=overwrite, inputs=inputs) as tmp:
+        write(tmp)
+        dump_json({"tool_version": __version__, "command": command, "inputs": input_hashes(inputs),
+                   "settings": settings}, tmp / MANIFEST)
 
 
 def months_between(start: date, end: date) -> int:
@@ -465,10 +472,8 @@ def rollforward(
                          previous_basis=str(loaded.source_path), new_basis=str(new.source_path) if new else None,
                          notes=notes)
     if out is not None:
-        with atomic_folder(out, overwrite=overwrite, inputs=inputs) as tmp:
-            dump_json(run.summary(), tmp / "rollforward.json")
-            dump_json({"tool_version": __version__, "command": "rollforward", "inputs": input_hashes(inputs),
-                       "settings": {"to": to.isoformat(), "new_basis": run.new_basis}}, tmp / MANIFEST)
+        _write_folder(out, overwrite, inputs, "rollforward", {"to": to.isoformat(), "new_basis": run.new_basis},
+                      lambda folder: dump_json(run.summary(), folder / "rollforward.json"))
     return run
 
 
@@ -586,10 +591,8 @@ def change(
     lines.append(ChangeLine("closing", "closing liability", closing, f"current members, current basis, {d1}"))
     run = ChangeRun(AnalysisOfChange(tuple(lines), tuple(order), tuple(notes)), b0.valuation_date, b1.valuation_date)
     if out is not None:
-        with atomic_folder(out, overwrite=overwrite, inputs=inputs) as tmp:
-            run.write(tmp)
-            dump_json({"tool_version": __version__, "command": "change", "inputs": input_hashes(inputs),
-                       "settings": {"order": list(order), "benefits_paid": benefits_paid}}, tmp / MANIFEST)
+        _write_folder(out, overwrite, inputs, "change", {"order": list(order), "benefits_paid": benefits_paid},
+                      run.write)
     return run
 
 
