@@ -100,3 +100,39 @@ def test_the_disclosure_note_reconciles_the_obligation():
     assert rows[0][1] == a.amount("opening") and rows[-1][1] == a.amount("closing")
     assert sum(v for _, v in rows[:-1]) == pytest.approx(rows[-1][1], rel=1e-12)
     assert dict(rows)["Remeasurement: experience adjustments"] == a.amount("experience")
+
+
+def test_run_with_a_previous_basis_values_the_opening_on_that_basis(tmp_path):
+    """Review finding: the run's analysis of change reads the start membership on the previous basis's own
+    rules (here its retirement age 62), so its opening equals the stand-alone analysis's."""
+    from valuation.pipeline import ExperienceInputs, run
+
+    text = DEMO_ARGS[0].read_text(encoding="utf-8").replace("retirement_age = 65", "retirement_age = 62")
+    assert "retirement_age = 62" in text
+    prev62 = tmp_path / "prev62.toml"
+    prev62.write_text(text, encoding="utf-8")
+    alone = change(prev62, DEMO_ARGS[1], DEMO_ARGS[2], DEMO_ARGS[3]).analysis
+    from datetime import date
+
+    from valuation.experience import ExperienceSettings
+
+    inputs = ExperienceInputs(start_members=DEMO_ARGS[1], deaths=ROOT / "member_data_demo" / "deaths.csv",
+                              settings=ExperienceSettings(period_start=date(2022, 3, 31), period_end=date(2025, 3, 31)),
+                              exits=ROOT / "member_data_demo" / "exits.csv")
+    outcome = run(DEMO_ARGS[2], DEMO_ARGS[3], sensitivities=False, reports=False, experience=inputs,
+                  previous_basis=prev62)
+    assert outcome.change is not None
+    assert outcome.change.analysis.amount("opening") == pytest.approx(alone.amount("opening"), rel=1e-12)
+    assert outcome.change.analysis.amount("experience") == pytest.approx(alone.amount("experience"), rel=1e-9)
+
+
+def test_the_same_members_twice_and_two_currencies_are_refused(tmp_path):
+    from valuation.errors import BasisError, DataError
+
+    with pytest.raises(DataError, match="same file"):
+        change(DEMO_ARGS[0], DEMO_ARGS[1], DEMO_ARGS[2], DEMO_ARGS[1])
+    eur = tmp_path / "eur.toml"
+    eur.write_text(DEMO_ARGS[2].read_text(encoding="utf-8").replace('currency = "GBP"', 'currency = "EUR"'),
+                   encoding="utf-8")
+    with pytest.raises(BasisError, match="GBP and the current one in EUR"):
+        change(DEMO_ARGS[0], DEMO_ARGS[1], eur, DEMO_ARGS[3])

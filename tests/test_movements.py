@@ -204,3 +204,31 @@ def test_careless_calls_are_refused(tmp_path):
     assert not (tmp_path / "a").exists() and not (tmp_path / "b").exists()
     assert main(["movements", basis, str(DEMO / "members_start.csv"), str(DEMO / "members_dirty.csv"), *dates,
                  "--out", str(tmp_path / "c"), "--accept-exclusions"]) == 0
+
+
+def test_an_exit_without_a_reason_is_still_an_exit_and_reasons_are_read_as_words():
+    """Review finding: the exits file's reason is optional; an exit with none is an ``other_exit`` (kept with
+    '(no reason given)'), never a departure with no record; 'Transfer out' reads as transfer_out."""
+    prev, curr, _, _, _ = _history([("deferred", 0), ("deferred", 0), ("deferred", 0)], [])
+    curr = curr.filter(pl.col("member_id") == "M00002")
+    exits = pl.DataFrame({"member_id": ["M00000", "M00001"], "date": [date(2023, 1, 1)] * 2,
+                          "reason": [None, " Transfer out "]}, schema={"member_id": pl.String, "date": pl.Date,
+                                                                        "reason": pl.String})
+    res = classify_movements(prev, curr, exits=exits, period_start=START, period_end=END)
+    moves = dict(zip(res.members["member_id"].to_list(), res.members["movement"].to_list(), strict=True))
+    assert moves == {"M00000": "other_exit", "M00001": "transfer_out", "M00002": "continuing"}
+    assert res.deaths["extracts_only"] == 0 and res.exceptions.height == 0
+    no_column = exits.drop("reason").head(1)
+    res = classify_movements(prev.head(1), curr.head(0), exits=no_column, period_start=START, period_end=END)
+    assert res.members["movement"].to_list() == ["other_exit"]
+
+
+def test_a_childs_pension_ending_on_the_period_end_is_seen_by_the_age_convention():
+    """Review finding: a dependant born 2000-03-31 with an end age of 25 is exactly 25 on 2025-03-31 (exact
+    age, the member checks' count), so the pension has ceased; days / 365.25 said 24.997."""
+    schema = {"member_id": pl.String, "row": pl.Int64, "status": pl.String, "sex": pl.String,
+              "date_of_birth": pl.Date, "pension_end_age": pl.Float64}
+    prev = pl.DataFrame([{"member_id": "X1", "row": 2, "status": "dependant", "sex": "F",
+                          "date_of_birth": date(2000, 3, 31), "pension_end_age": 25.0}], schema=schema)
+    res = classify_movements(prev, prev.head(0), period_start=START, period_end=END)
+    assert res.members["movement"].to_list() == ["child_pension_ceased"]

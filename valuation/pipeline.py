@@ -140,13 +140,15 @@ def writers_for(outcome: Outcome, *, reports: bool) -> list[ExtraWriter]:
     return writers
 
 
-def gate(basis: Basis, path: str | Path, read_n: int, valued: int, excluded: int, accept: bool, say: Say) -> None:
-    """Stop a run that values nothing or leaves out too many records (:func:`check_exclusions`)."""
+def gate(basis: Basis, path: str | Path, read_n: int, valued: int, excluded: int, accept: bool, say: Say,
+         listed_in: str = "exceptions.csv and at the top of the reports") -> None:
+    """Stop a run that values nothing or leaves out too many records (:func:`check_exclusions`); say where
+    the excluded records are listed."""
     check_exclusions(read=read_n, valued=valued, excluded=excluded, path=path,
                      max_share=basis.thresholds.max_excluded_share, accept=accept)
     if excluded:
         say(f"warning: {excluded:,} of {read_n:,} records were excluded and are not in the liability; they are "
-            "listed in exceptions.csv and at the top of the reports")
+            f"listed in {listed_in}")
 
 
 def _reconcile(
@@ -227,8 +229,10 @@ def run(
     loaded = as_basis(basis)
     previous = as_basis(previous_basis) if previous_basis is not None else None
     if previous is not None and (experience is None or previous.valuation_date != experience.settings.period_start):
-        raise BasisError("the analysis of change needs the start membership and a previous basis dated the period "
-                         "start", file=previous.source_path,
+        start_text = experience.settings.period_start.isoformat() if experience else "not given"
+        raise BasisError(f"the analysis of change needs the start membership and a previous basis dated the period "
+                         f"start (the basis is dated {previous.valuation_date.isoformat()}, the period starts "
+                         f"{start_text})", file=previous.source_path,
                          fix="give --start-members, --deaths and the period, and a previous basis whose "
                              "valuation_date is --period-start")
     member_file = members if isinstance(members, (str, Path)) else None
@@ -264,8 +268,9 @@ def run(
         outcome.movements = membership_movements(
             loaded, start, data, period_start=period.period_start, period_end=period.period_end,
             deaths_path=experience.deaths, exits_path=experience.exits)
-        if previous is not None:
-            outcome.change = change(previous, start, loaded, data, accept_exclusions=accept_exclusions, warn=warn)
+        if previous is not None:  # the start membership read again on the previous basis's own rules
+            outcome.change = change(previous, experience.start_members, loaded, data,
+                                    accept_exclusions=accept_exclusions, warn=warn)
     if out is not None:
         if progress:
             progress("writing", 0, 1)
@@ -355,7 +360,8 @@ def movements(
     found = membership_movements(loaded, previous, current, period_start=period_start, period_end=period_end,
                                  deaths_path=deaths, exits_path=exits, fmt=fmt)
     for data in (found.previous, found.current):
-        gate(loaded, data.path, data.read, data.valued, data.excluded, accept_exclusions, warn)
+        gate(loaded, data.path, data.read, data.valued, data.excluded, accept_exclusions, warn,
+             listed_in="movements_exceptions.csv")
     if out is not None:
         _write_folder(out, overwrite, inputs, "movements", settings or {
             "period_start": period_start.isoformat(), "period_end": period_end.isoformat()}, found.write)
@@ -372,6 +378,8 @@ class RollForwardRun:
     previous_basis: str
     new_basis: str | None
     notes: list[str]
+    #: the member data's exceptions (exceptions.csv of the folder)
+    exceptions: pl.DataFrame = field(default_factory=pl.DataFrame)
 
     def summary(self) -> dict[str, object]:
         """What rollforward.json holds."""
@@ -405,6 +413,9 @@ def months_between(start: date, end: date) -> int:
     day kept, or the month's last day, as the payment grid's dates are); else a :class:`DataError`."""
     import calendar
 
+    if end <= start:
+        raise DataError(f"the roll-forward date {end.isoformat()} is not after the valuation date {start.isoformat()}",
+                        fix="give a later date (--to)")
     months = (end.year - start.year) * 12 + (end.month - start.month)
     day = min(start.day, calendar.monthrange(end.year, end.month)[1])
     on_grid = months > 0 and end.day == day
@@ -413,7 +424,7 @@ def months_between(start: date, end: date) -> int:
     if not on_grid:
         raise DataError(f"the roll-forward date {end.isoformat()} is not a whole number of months after the "
                         f"valuation date {start.isoformat()}",
-                        fix="give a date on the same day of a later month (a month end for a month end)")
+                        fix="give a date (--to) on the same day of a later month (a month end for a month end)")
     return months
 
 
@@ -428,6 +439,7 @@ def rollforward(
     fmt: InputFormat = DEFAULT_FORMAT,
     accept_exclusions: bool = False,
     warn: Say = _quiet,
+    listed_in: str = "exceptions.csv",
 ) -> RollForwardRun:
     """Roll the valuation of ``members`` on ``basis`` forward to the date ``to``
     (:mod:`valuation.engine.rollforward`), on ``new_basis``'s financial assumptions (discount curve,
@@ -456,7 +468,7 @@ def rollforward(
                          "(run a full valuation to use them)")
             warn(notes[-1])
     data = read(loaded, members, fmt)
-    gate(loaded, data.path, data.read, data.valued, data.excluded, accept_exclusions, warn)
+    gate(loaded, data.path, data.read, data.valued, data.excluded, accept_exclusions, warn, listed_in=listed_in)
     base = value_members(loaded, data, sensitivities=False)
     assert base.monthly is not None
     cash_old = base.monthly.sum(axis=0)
@@ -470,10 +482,14 @@ def rollforward(
                           (new or loaded).discount_curve(), base.summary.active_measures.current_service_cost)
     run = RollForwardRun(rolled=rolled, valuation_date=loaded.valuation_date, to=to,
                          previous_basis=str(loaded.source_path), new_basis=str(new.source_path) if new else None,
-                         notes=notes)
+                         notes=notes, exceptions=data.exceptions)
+
+    def write(folder: Path) -> None:
+        dump_json(run.summary(), folder / "rollforward.json")
+        write_csv(run.exceptions, folder / "exceptions.csv")
+
     if out is not None:
-        _write_folder(out, overwrite, inputs, "rollforward", {"to": to.isoformat(), "new_basis": run.new_basis},
-                      lambda folder: dump_json(run.summary(), folder / "rollforward.json"))
+        _write_folder(out, overwrite, inputs, "rollforward", {"to": to.isoformat(), "new_basis": run.new_basis}, write)
     return run
 
 
@@ -484,6 +500,8 @@ class ChangeRun:
     analysis: AnalysisOfChange
     previous_date: date
     current_date: date
+    #: both valuations' member-data exceptions (exceptions.csv of the folder)
+    exceptions: pl.DataFrame = field(default_factory=pl.DataFrame)
 
     def summary(self) -> dict[str, object]:
         """What change.json holds (keys stable: previous_date, current_date, order, lines, disclosure, check,
@@ -500,6 +518,8 @@ class ChangeRun:
         dump_json(self.summary(), folder / "change.json")
         write_csv(pl.DataFrame([{"key": x.key, "label": x.label, "amount": x.amount, "valuation": x.valuation}
                                 for x in self.analysis.lines]), folder / "change.csv")
+        if self.exceptions.width:
+            write_csv(self.exceptions, folder / "change_exceptions.csv")
 
     def text(self, money: Callable[[float], str]) -> str:
         lines = [f"analysis of change {self.previous_date.isoformat()} to {self.current_date.isoformat()}"]
@@ -538,6 +558,13 @@ def change(
         raise BasisError(f"the current basis is dated {b1.valuation_date.isoformat()}, not after the previous "
                          f"one ({b0.valuation_date.isoformat()})", file=b1.source_path,
                          fix="give the previous valuation's basis and members first, then the current ones")
+    if isinstance(previous_members, (str, Path)) and isinstance(current_members, (str, Path)) and (
+            Path(previous_members).resolve() == Path(current_members).resolve()):
+        raise DataError("the previous and the current member data are the same file", file=current_members,
+                        fix="give the previous valuation's members, then the current valuation's")
+    if b0.currency and b1.currency and b0.currency != b1.currency:
+        raise BasisError(f"the previous basis counts in {b0.currency} and the current one in {b1.currency}",
+                         file=b1.source_path, fix="value both valuations in one currency")
     if sorted(order) != sorted(STEPS):
         raise BasisError(f"the order of the steps must name each of {', '.join(STEPS)} once; got {', '.join(order)}",
                          fix="for example: financial,demographic,other")
@@ -547,15 +574,17 @@ def change(
                          if p is not None]
     if out is not None:
         check_output_folder(out, overwrite=overwrite, inputs=inputs)
-    rolled = rollforward(b0, previous_members, to=b1.valuation_date, fmt=fmt, accept_exclusions=accept_exclusions,
-                         warn=warn).rolled
+    opening_run = rollforward(b0, previous_members, to=b1.valuation_date, fmt=fmt,
+                              accept_exclusions=accept_exclusions, warn=warn, listed_in="change_exceptions.csv")
+    rolled = opening_run.rolled
     notes: list[str] = []
     paid = rolled.benefits_expected if benefits_paid is None else float(benefits_paid)
     if benefits_paid is None:
         notes.append("benefits paid: none given, so the payments the previous valuation expected in the period")
     expected = rolled.opening + rolled.service_cost + rolled.interest - paid
     data = read(b1, current_members, fmt)
-    gate(b1, data.path, data.read, data.valued, data.excluded, accept_exclusions, warn)
+    gate(b1, data.path, data.read, data.valued, data.excluded, accept_exclusions, warn,
+         listed_in="change_exceptions.csv")
     d1 = b1.valuation_date.isoformat()
 
     def value(basis: Basis) -> float:
@@ -589,7 +618,8 @@ def change(
                          "of one basis is not found from the other's folder)", file=b1.source_path,
                          fix="keep both bases, and the files they name, in one folder")
     lines.append(ChangeLine("closing", "closing liability", closing, f"current members, current basis, {d1}"))
-    run = ChangeRun(AnalysisOfChange(tuple(lines), tuple(order), tuple(notes)), b0.valuation_date, b1.valuation_date)
+    run = ChangeRun(AnalysisOfChange(tuple(lines), tuple(order), tuple(notes)), b0.valuation_date, b1.valuation_date,
+                    exceptions=pl.concat([opening_run.exceptions, data.exceptions], how="vertical_relaxed"))
     if out is not None:
         _write_folder(out, overwrite, inputs, "change", {"order": list(order), "benefits_paid": benefits_paid},
                       run.write)

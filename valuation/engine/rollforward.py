@@ -73,9 +73,9 @@ def roll_forward(
     months
         Months from the previous valuation date to the new date.
     old_curve, new_curve
-        The previous and the new discount curves, each read from the date it is applied at: the old one from
-        the previous valuation date (the interest) and again from the new date (its value there), the new one
-        from the new date.
+        The previous discount curve, read from the previous valuation date and carried forward at its own
+        forward rates (the interest is its unwinding, IAS 19 para 123), and the new one, read from the new
+        date (the change of curve, its roll-down included, is the financial line).
     service_cost
         The previous valuation's current service cost [currency p.a.]; one twelfth of it accrues each month
         and is carried to the new date at the new curve (approximate: every month costs what the first year's
@@ -88,7 +88,9 @@ def roll_forward(
     m = np.arange(len(cash_old))
     later = m >= months
     t_after = (m[later] - months) / 12.0
-    at_new_old = float((cash_old[later] * old_curve.discount_factors(t_after)).sum())
+    # on the opening curve carried forward (its forward rates): v0(m) / v0(n); the interest is its unwinding
+    v_open = old_curve.discount_factors(m / 12.0)
+    at_new_old = float((cash_old[later] * v_open[later]).sum() / v_open[months]) if months < len(m) else 0.0
     at_new = float((cash_new[later] * new_curve.discount_factors(t_after)).sum())
     paid = float(cash_old[~later].sum())
     k = np.arange(months)

@@ -88,6 +88,10 @@ class MovementsRun:
         lines.append(f"deaths: {d['matched']:,} in the deaths file and gone from the extracts; "
                      f"{d['deaths_file_only']:,} in the deaths file only; {d['extracts_only']:,} gone from the "
                      "extracts with no death or exit record")
+        for kind, counts in self.events.items():
+            if counts.get("excluded"):
+                lines.append(f"warning: {counts['excluded']:,} of {counts['read']:,} {kind} rows were excluded (see "
+                             "movements_exceptions.csv)")
         unexplained = self.result.counts()["unexplained"]
         if unexplained:
             lines.append(f"warning: {unexplained:,} unexplained movements, listed in movements_exceptions.csv")
@@ -139,6 +143,7 @@ def membership_movements(
         previous.records, current.records, deaths=checked.deaths if deaths_path else None,
         exits=checked.exits if exits_path else None, period_start=period_start, period_end=period_end,
         previous_file=str(previous_path), current_file=str(current_path),
+        age_convention=basis.age_convention,
         excluded_ids=pl.concat([
             frame.filter(pl.col("severity") == "excluded")["member_id"].cast(pl.String)
             for frame in (previous.exceptions, current.exceptions)]).drop_nulls(),

@@ -34,9 +34,11 @@ from dataclasses import dataclass
 from datetime import date
 from typing import Final, Literal, get_args
 
+import numpy as np
 import polars as pl
 
 from valuation.members.validate import EXCEPTION_SCHEMA
+from valuation.survival import AgeConvention, age_at
 from valuation.vocabulary import STATUSES
 
 Movement = Literal[
@@ -131,6 +133,7 @@ def classify_movements(
     previous_file: str = "previous",
     current_file: str = "current",
     excluded_ids: pl.Series | None = None,
+    age_convention: AgeConvention = "exact",
 ) -> MovementsResult:
     """Classify every member of two extracts (valid records, as :func:`~valuation.members.read_members`
     returns them) by the module's rules; vectorised with polars joins (no per-member Python loop).
@@ -151,6 +154,8 @@ def classify_movements(
         Members whose record either extract excluded for its data problems: a member valid in one extract and
         excluded from the other is ``unexplained`` with that reason (its movement cannot be told), never
         counted as a death or a new entrant.
+    age_convention
+        How the age at the period end is counted for a child's pension's end age (the basis's convention).
 
     References
     ----------
@@ -159,8 +164,13 @@ def classify_movements(
     both = _side(previous, "_start").join(_side(current, "_end"), on="member_id", how="full", coalesce=True)
     d = (deaths.select("member_id", pl.lit(True).alias("_died")) if deaths is not None and deaths.height
          else pl.DataFrame(schema={"member_id": pl.String, "_died": pl.Boolean}))
-    x = (exits.select("member_id", pl.col("reason").cast(pl.String).alias("_exit")) if exits is not None and exits.height
-         else pl.DataFrame(schema={"member_id": pl.String, "_exit": pl.String}))
+    # an exit's reason compared as words: case, spaces and hyphens aside ("Transfer out" is transfer_out)
+    reason = (pl.col("reason").cast(pl.String).str.strip_chars().str.to_lowercase()
+              .str.replace_all(r"[\s\-]+", "_") if exits is not None and "reason" in exits.columns
+              else pl.lit(None, dtype=pl.String))
+    x = (exits.select("member_id", reason.alias("_exit"), pl.lit(True).alias("_exited"))
+         if exits is not None and exits.height
+         else pl.DataFrame(schema={"member_id": pl.String, "_exit": pl.String, "_exited": pl.Boolean}))
     both = both.join(d.unique("member_id"), on="member_id", how="left").join(
         x.unique("member_id", keep="first"), on="member_id", how="left")
     bad = excluded_ids.unique() if excluded_ids is not None else pl.Series("member_id", [], pl.String)
@@ -169,10 +179,14 @@ def classify_movements(
     in_start, in_end = start.is_not_null(), end.is_not_null()
     died = pl.col("_died").fill_null(False)
     exit_reason = pl.col("_exit")
+    exited = pl.col("_exited").fill_null(False)
     end_age_reached = pl.lit(False)
     if "pension_end_age_start" in both.columns:
-        age_at_end = (pl.lit(period_end) - pl.col("date_of_birth_start")).dt.total_days() / 365.25
-        end_age_reached = (start == "dependant") & (pl.col("pension_end_age_start") <= age_at_end).fill_null(False)
+        # the age at the period end by the basis's age convention, as the member checks count it
+        dob = np.asarray(both["date_of_birth_start"].to_numpy(), dtype="datetime64[D]")
+        age = np.asarray(age_at(dob, np.datetime64(period_end, "D"), age_convention), dtype=float)
+        both = both.with_columns(pl.Series("_age_at_end", age))
+        end_age_reached = (start == "dependant") & (pl.col("pension_end_age_start") <= pl.col("_age_at_end")).fill_null(False)
     change = pl.concat_str([start, pl.lit(">"), end])
     explained = pl.lit(None, dtype=pl.String)
     for (a, b), name in STATUS_CHANGES.items():
@@ -183,8 +197,8 @@ def classify_movements(
         .when(one_side_excluded).then(pl.lit("unexplained"))
         .when(in_start & in_end).then(explained.fill_null("unexplained"))
         .when(in_start & died).then(pl.lit("death"))
-        .when(in_start & exit_reason.is_not_null()).then(
-            exit_reason.replace_strict(EXIT_REASONS, default="other_exit", return_dtype=pl.String))
+        .when(in_start & exited).then(
+            exit_reason.replace_strict(EXIT_REASONS, default="other_exit", return_dtype=pl.String).fill_null("other_exit"))
         .when(in_start & end_age_reached).then(pl.lit("child_pension_ceased"))
         .when(in_start).then(pl.lit("unexplained"))
         .when(end == "active").then(pl.lit("new_entrant"))
@@ -195,13 +209,13 @@ def classify_movements(
     sex_changed = in_start & in_end & (pl.col("sex_start") != pl.col("sex_end"))
     members = both.with_columns(
         movement.alias("movement"),
-        pl.when(in_start & ~in_end & ~died & exit_reason.is_not_null()).then(exit_reason)
+        pl.when(in_start & ~in_end & ~died & exited).then(exit_reason.fill_null("(no reason given)"))
         .when(dob_changed).then(pl.lit("date of birth changed"))
         .when(sex_changed).then(pl.lit("sex changed"))
         .otherwise(pl.lit(None, dtype=pl.String)).alias("detail"),
         (dob_changed | sex_changed).alias("data_changed"),
         (died & in_end).alias("_dead_but_present"),
-        (exit_reason.is_not_null() & ~died & in_end).alias("_exit_but_present"),
+        (exited & ~died & in_end).alias("_exit_but_present"),
     ).sort("member_id")
     table = _table(members)
     deaths_rec = {
