@@ -16,7 +16,8 @@ ROOT = Path(__file__).resolve().parents[1]
 
 
 def test_public_api():
-    assert set(valuation.__all__) >= {"value_scheme", "value_members", "load_basis", "read_members", "write_run"}
+    assert set(valuation.__all__) >= {"value_scheme", "value_members", "load_basis", "read_members", "write_run",
+                                      "movements", "change", "rollforward"}
     # the basis first, as on the command line (`valuation run BASIS MEMBERS`)
     assert list(inspect.signature(valuation.value_scheme).parameters)[:2] == ["basis", "members"]
     kw = inspect.signature(valuation.value_members).parameters
