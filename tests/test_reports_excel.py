@@ -99,7 +99,10 @@ def test_change_sheet_lines_add_up(book) -> None:
     rows = [r for r in ws.iter_rows(values_only=True) if r and r[0] is not None]
     cut = next(i for i, r in enumerate(rows) if str(r[0]).startswith("The same lines"))
     steps = {r[0]: r[1] for r in rows[:cut] if isinstance(r[1], float)}
-    disclosure = [r[1] for r in rows[cut:] if isinstance(r[1], float)]
+    end = next((i for i, r in enumerate(rows) if str(r[0]).startswith("The experience line by")), len(rows))
+    disclosure = [r[1] for r in rows[cut:end] if isinstance(r[1], float)]
+    by_movement = [r[1] for r in rows[end:] if isinstance(r[1], float)]
+    assert sum(by_movement) == pytest.approx(steps["experience (membership and data against expected)"], rel=1e-9)
     items = [v for k, v in steps.items() if k not in ("opening liability", "expected closing liability",
                                                       "closing liability")]
     assert steps["opening liability"] + sum(items) == pytest.approx(steps["closing liability"], rel=1e-9)

@@ -404,7 +404,8 @@ def cmd_change(args: argparse.Namespace) -> int:
     current = load_basis(args.current_basis)
     out = Path(args.out) if args.out else _default_out("change", current.valuation_date)
     run = pipeline.change(args.previous_basis, args.previous_members, current, args.current_members,
-                          benefits_paid=args.benefits_paid, order=args.order, out=out, overwrite=args.overwrite,
+                          benefits_paid=args.benefits_paid, deaths=args.deaths, exits=args.exits, order=args.order, out=out,
+                          overwrite=args.overwrite,
                           fmt=_input_format(args), accept_exclusions=args.accept_exclusions, warn=_warn)
     _say(args, run.text(lambda v: format_money(v, current.currency)))
     for note in run.analysis.notes:
@@ -633,6 +634,10 @@ def build_parser() -> argparse.ArgumentParser:
     ch.add_argument("--benefits-paid", type=non_negative_float,
                     help="benefits actually paid in the period [currency] (default: those the previous valuation "
                          "expected)")
+    ch.add_argument("--deaths", type=existing_file,
+                    help="deaths in the period (member_id, date_of_death): tells deaths from other departures in the "
+                         "experience split")
+    ch.add_argument("--exits", type=existing_file, help="other exits in the period: member_id, exit_date, reason")
     ch.add_argument("--order", type=_step_order, default=("demographic", "financial", "other"),
                     help="order of the assumption steps (default demographic,financial,other)")
     _format_options(ch)

@@ -37,7 +37,7 @@ from valuation.manifest import dump_json
 from valuation.members.data import MemberData, MemberInput, members_from_frame, read_members
 from valuation.members.readers import DEFAULT_FORMAT, InputFormat
 from valuation.members.validate import UNKNOWN_STATUS
-from valuation.movements import MovementsResult, MovementsRun, membership_movements
+from valuation.movements import CONTINUING, MOVEMENTS, MovementsResult, MovementsRun, membership_movements
 from valuation.reports import write_html, write_workbook
 from valuation.version import __version__
 
@@ -269,8 +269,8 @@ def run(
             loaded, start, data, period_start=period.period_start, period_end=period.period_end,
             deaths_path=experience.deaths, exits_path=experience.exits)
         if previous is not None:  # the start membership read again on the previous basis's own rules
-            outcome.change = change(previous, experience.start_members, loaded, data,
-                                    accept_exclusions=accept_exclusions, warn=warn)
+            outcome.change = change(previous, experience.start_members, loaded, data, deaths=experience.deaths,
+                                    exits=experience.exits, accept_exclusions=accept_exclusions, warn=warn)
     if out is not None:
         if progress:
             progress("writing", 0, 1)
@@ -512,6 +512,8 @@ class ChangeRun:
                 "lines": [{"key": x.key, "label": x.label, "amount": x.amount, "valuation": x.valuation}
                           for x in a.lines],
                 "disclosure": [{"line": label, "amount": amount} for label, amount in a.disclosure()],
+                "experience_split": [{"key": x.key, "label": x.label, "amount": x.amount}
+                                     for x in a.experience_split],
                 "check": a.check(), "notes": list(a.notes)}
 
     def write(self, folder: Path) -> None:
@@ -524,7 +526,11 @@ class ChangeRun:
     def text(self, money: Callable[[float], str]) -> str:
         lines = [f"analysis of change {self.previous_date.isoformat()} to {self.current_date.isoformat()}"]
         width = max(len(x.label) for x in self.analysis.lines)
-        lines += [f"  {x.label:<{width}}  {money(x.amount)}" for x in self.analysis.lines]
+        for x in self.analysis.lines:
+            lines.append(f"  {x.label:<{width}}  {money(x.amount)}")
+            if x.key == "experience":
+                lines += [f"      {y.label}: {money(y.amount)}" for y in self.analysis.experience_split
+                          if abs(y.amount) >= 0.5]
         return "\n".join(lines)
 
 
@@ -535,6 +541,8 @@ def change(
     current_members: MemberInput,
     *,
     benefits_paid: float | None = None,
+    deaths: str | Path | None = None,
+    exits: str | Path | None = None,
     order: Sequence[Step] = STEPS,
     out: str | Path | None = None,
     overwrite: bool = False,
@@ -574,7 +582,8 @@ def change(
                          if p is not None]
     if out is not None:
         check_output_folder(out, overwrite=overwrite, inputs=inputs)
-    opening_run = rollforward(b0, previous_members, to=b1.valuation_date, fmt=fmt,
+    previous_data = read(b0, previous_members, fmt)
+    opening_run = rollforward(b0, previous_data, to=b1.valuation_date, fmt=fmt,
                               accept_exclusions=accept_exclusions, warn=warn, listed_in="change_exceptions.csv")
     rolled = opening_run.rolled
     notes: list[str] = []
@@ -591,7 +600,14 @@ def change(
         return value_members(basis, data, sensitivities=False).total_liability
 
     step_basis = b0.model_copy(update={"valuation_date": b1.valuation_date})
-    level = value(step_basis)
+    on_previous = value_members(step_basis, data, sensitivities=False)
+    level = on_previous.total_liability
+    moved = membership_movements(b1, previous_data, data, period_start=b0.valuation_date,
+                                 period_end=b1.valuation_date, deaths_path=deaths, exits_path=exits, fmt=fmt)
+    split = _experience_split(b0, previous_data, on_previous, moved.result, b1.valuation_date,
+                              paid - rolled.benefits_expected)
+    if deaths is None:
+        notes.append("no deaths file: members gone from the extracts are unexplained movements, not deaths")
     lines = [
         ChangeLine("opening", "opening liability", rolled.opening,
                    f"previous members, previous basis, {b0.valuation_date.isoformat()}"),
@@ -618,12 +634,52 @@ def change(
                          "of one basis is not found from the other's folder)", file=b1.source_path,
                          fix="keep both bases, and the files they name, in one folder")
     lines.append(ChangeLine("closing", "closing liability", closing, f"current members, current basis, {d1}"))
-    run = ChangeRun(AnalysisOfChange(tuple(lines), tuple(order), tuple(notes)), b0.valuation_date, b1.valuation_date,
+    run = ChangeRun(AnalysisOfChange(tuple(lines), tuple(order), tuple(notes), split), b0.valuation_date,
+                    b1.valuation_date,
                     exceptions=pl.concat([opening_run.exceptions, data.exceptions], how="vertical_relaxed"))
     if out is not None:
         _write_folder(out, overwrite, inputs, "change", {"order": list(order), "benefits_paid": benefits_paid},
                       run.write)
     return run
+
+
+#: The experience split's lines, by movement (see :mod:`valuation.movements.classify`).
+SPLIT_LABELS: dict[str, str] = {
+    CONTINUING: "members in the same status (survival, increases, salaries, data)",
+    "death": "members who died (their expected value released)", "retirement": "members who retired",
+    "withdrawal": "members who left service", "reinstated": "members who rejoined",
+    "transfer_out": "members who transferred out", "lump_sum_settlement": "members who took a lump sum",
+    "other_exit": "members who left for other reasons", "child_pension_ceased": "children's pensions that ended",
+    "new_entrant": "new members", "new_dependant": "new dependants", "unexplained": "unexplained movements",
+}
+
+
+def _experience_split(
+    previous: Basis, previous_data: MemberData, on_previous: ValuationResult, moved: MovementsResult, to: date,
+    paid_over_expected: float,
+) -> tuple[ChangeLine, ...]:
+    """The experience line by what happened to the members: for each movement, the value now (previous basis,
+    current date) of the members it leaves in the current extract, less the expected value now of the
+    previous members it took (their own roll-forward, so the groups' expected values add up to the whole's);
+    and the benefits paid against those expected. Valuations are additive over members, so the lines add
+    up to the experience line (to rounding)."""
+    value_now = on_previous.members.select("member_id", "liability").join(
+        moved.members.select("member_id", "movement"), on="member_id", how="left").group_by("movement").agg(
+        pl.col("liability").sum())
+    now = dict(zip(value_now["movement"].to_list(), value_now["liability"].to_list(), strict=True))
+    lines = []
+    for movement in (CONTINUING, *MOVEMENTS):
+        ids = moved.members.filter((pl.col("movement") == movement) & pl.col("status_start").is_not_null())["member_id"]
+        expected = 0.0
+        if ids.len():
+            r = rollforward(previous, previous_data.subset(ids), to=to, accept_exclusions=True).rolled
+            expected = r.opening + r.service_cost + r.interest - r.benefits_expected
+        amount = float(now.get(movement, 0.0)) - expected
+        if ids.len() or movement in now:
+            lines.append(ChangeLine(f"experience:{movement}", SPLIT_LABELS[movement], amount,
+                                    f"{movement.replace('_', ' ')}: value now less expected value now"))
+    lines.append(ChangeLine("experience:benefits_paid", "benefits paid against expected", paid_over_expected))
+    return tuple(lines)
 
 
 def value_scheme(basis: Basis | str | Path, members: MemberInput, *, fmt: InputFormat | None = None, sensitivities: bool = True,

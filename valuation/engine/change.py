@@ -67,6 +67,9 @@ class AnalysisOfChange:
     lines: tuple[ChangeLine, ...]
     order: tuple[Step, ...]
     notes: tuple[str, ...] = ()
+    #: the experience line split by what happened to the members (each group's value now on the previous
+    #: basis less its expected value, and the benefits paid against expected); they add up to it
+    experience_split: tuple[ChangeLine, ...] = ()
 
     def amount(self, key: str) -> float:
         return next(line.amount for line in self.lines if line.key == key)

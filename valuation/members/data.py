@@ -81,6 +81,16 @@ class MemberData:
         return cls(path=Path(path), records=pl.DataFrame(), exceptions=pl.concat(exceptions), read=read,
                    valued=valued, excluded=read - valued, ignored_columns=ignored_columns, _status_counts=total)
 
+    def subset(self, member_ids: pl.Series) -> MemberData:
+        """The valued records of these members only (their exceptions left with the whole file's), counted
+        as read = valued; for valuing a group of the members on its own."""
+        records = self.records.filter(pl.col("member_id").is_in(member_ids.implode()))
+        counts = records.group_by("status").agg(pl.len().cast(pl.Int64).alias("read")).with_columns(
+            pl.col("read").alias("valued"), pl.lit(0, dtype=pl.Int64).alias("excluded"))
+        return MemberData(path=self.path, records=records, exceptions=self.exceptions.head(0), read=records.height,
+                          valued=records.height, excluded=0, ignored_columns=list(self.ignored_columns),
+                          _status_counts=sum_counts([counts]), digest=self.digest)
+
     def counts_by_status(self) -> pl.DataFrame:
         """Records read, valued and excluded by status, with a ``total`` row last.
 

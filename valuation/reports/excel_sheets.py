@@ -392,9 +392,18 @@ def change_sheet(ws: Worksheet, analysis: AnalysisOfChange, currency: str | None
             "paras 140-141; gains negative, losses positive):")
     disclosure = pl.DataFrame({"line": [label for label, _ in analysis.disclosure()],
                                "amount": [amount for _, amount in analysis.disclosure()]})
-    xc.write_frame(ws, disclosure, top=note_row + 1, formats={"amount": xc.money_format(currency)},
-                   labels={"line": "reconciliation of the obligation", "amount": fmt.money_label("amount", currency)},
-                   table="ObligationReconciliation")
+    last = xc.write_frame(ws, disclosure, top=note_row + 1, formats={"amount": xc.money_format(currency)},
+                          labels={"line": "reconciliation of the obligation",
+                                  "amount": fmt.money_label("amount", currency)},
+                          table="ObligationReconciliation")
+    if analysis.experience_split:
+        xc.note(ws, last + 2, "The experience line by what happened to the members: each group's value now (previous "
+                "basis, current date) less its expected value now; the lines add up to the experience line:")
+        split = pl.DataFrame({"line": [x.label for x in analysis.experience_split],
+                              "amount": [x.amount for x in analysis.experience_split]})
+        xc.write_frame(ws, split, top=last + 3, formats={"amount": xc.money_format(currency)},
+                       labels={"line": "experience by movement", "amount": fmt.money_label("amount", currency)},
+                       table="ExperienceByMovement")
     xc.fit_widths(ws, HEAD)
     xc.print_setup(ws, landscape=True, header_row=HEAD)
 
