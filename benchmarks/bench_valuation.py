@@ -141,7 +141,8 @@ def bench_change(args: argparse.Namespace) -> int:
         wall = time.perf_counter() - start
     print(f"members            {args.members:,} in each extract")
     print(f"generate (child)   {t_gen:8.2f} s (not counted)")
-    print(f"analysis of change {wall:8.2f} s (read both extracts, about six valuations)")
+    print(f"analysis of change {wall:8.2f} s (read both extracts, about six valuations, the movements and the "
+          "experience split)")
     print(f"peak memory        {peak_mb():,.0f} MB")
     print(f"closing liability  {run.analysis.amount('closing'):,.0f}; check {run.analysis.check():.3g}")
     return 0
