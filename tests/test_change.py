@@ -162,3 +162,14 @@ def test_as_expected_the_split_is_empty_too(tmp_path):
     a = change(b0, start, b1, _expected_survivors(b0, start)).analysis
     for line in a.experience_split:
         assert line.amount == pytest.approx(0.0, abs=1e-9 * a.amount("opening")), line.key
+
+
+def test_the_trustees_words_name_the_largest_parts_of_the_experience():
+    from valuation.engine.change import AnalysisOfChange
+    from valuation.reports.content import change_words, experience_words
+
+    demo = ROOT / "member_data_demo"
+    a = change(*DEMO_ARGS, deaths=demo / "deaths.csv", exits=demo / "exits.csv").analysis
+    words = change_words(a, "GBP")
+    assert "members who died (down GBP" in words and "financial assumptions (down GBP" in words
+    assert experience_words(AnalysisOfChange(a.lines, a.order), "GBP") == ""

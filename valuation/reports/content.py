@@ -429,4 +429,26 @@ def change_words(analysis: AnalysisOfChange, currency: str | None) -> str:
     return (f"The liability {move} from {fmt.about_money(opening, currency)} at the last valuation to "
             f"{fmt.about_money(closing, currency)} now. The largest single cause was "
             f"{CHANGE_LABELS[biggest.key].lower()} ({'up' if biggest.amount >= 0 else 'down'} "
-            f"{fmt.about_money(abs(biggest.amount), currency)}).")
+            f"{fmt.about_money(abs(biggest.amount), currency)}).{experience_words(analysis, currency)}")
+
+
+#: The experience split's lines in the trustees' words.
+EXPERIENCE_WORDS: dict[str, str] = {
+    "experience:continuing": "members who stayed in the same status", "experience:death": "members who died",
+    "experience:retirement": "members who retired", "experience:withdrawal": "members who left service",
+    "experience:reinstated": "members who rejoined", "experience:transfer_out": "members who transferred out",
+    "experience:lump_sum_settlement": "members who took a lump sum", "experience:other_exit": "members who left",
+    "experience:child_pension_ceased": "children's pensions that ended", "experience:new_entrant": "new members",
+    "experience:new_dependant": "new dependants", "experience:unexplained": "unexplained changes in the records",
+    "experience:benefits_paid": "benefits paid against expected",
+}
+
+
+def experience_words(analysis: AnalysisOfChange, currency: str | None) -> str:
+    """A sentence on the two largest parts of the experience line (empty when it was not split)."""
+    parts = sorted((x for x in analysis.experience_split if abs(x.amount) >= 0.5), key=lambda x: -abs(x.amount))[:2]
+    if not parts:
+        return ""
+    said = " and ".join(f"{EXPERIENCE_WORDS[x.key]} ({'up' if x.amount >= 0 else 'down'} "
+                        f"{fmt.about_money(abs(x.amount), currency)})" for x in parts)
+    return f" Within the experience, the largest parts were {said}."
