@@ -173,3 +173,13 @@ def test_the_trustees_words_name_the_largest_parts_of_the_experience():
     words = change_words(a, "GBP")
     assert "members who died (down GBP" in words and "financial assumptions (down GBP" in words
     assert experience_words(AnalysisOfChange(a.lines, a.order), "GBP") == ""
+
+
+def test_bases_not_a_whole_number_of_months_apart_are_refused(tmp_path):
+    from valuation.errors import BasisError
+
+    odd = tmp_path / "odd.toml"
+    odd.write_text(DEMO_ARGS[2].read_text(encoding="utf-8").replace("valuation_date = 2025-03-31",
+                                                                     "valuation_date = 2025-03-15"), encoding="utf-8")
+    with pytest.raises(BasisError, match="not a whole number of months after the previous one"):
+        change(DEMO_ARGS[0], DEMO_ARGS[1], odd, DEMO_ARGS[3])

@@ -566,6 +566,12 @@ def change(
         raise BasisError(f"the current basis is dated {b1.valuation_date.isoformat()}, not after the previous "
                          f"one ({b0.valuation_date.isoformat()})", file=b1.source_path,
                          fix="give the previous valuation's basis and members first, then the current ones")
+    try:
+        months_between(b0.valuation_date, b1.valuation_date)
+    except DataError as exc:
+        raise BasisError(f"the current valuation date {b1.valuation_date.isoformat()} is not a whole number of months "
+                         f"after the previous one {b0.valuation_date.isoformat()}", file=b1.source_path,
+                         fix="date the two bases on the same day of the month (month ends for month ends)") from exc
     if isinstance(previous_members, (str, Path)) and isinstance(current_members, (str, Path)) and (
             Path(previous_members).resolve() == Path(current_members).resolve()):
         raise DataError("the previous and the current member data are the same file", file=current_members,
