@@ -284,61 +284,64 @@ def atomic_folder(
     """
     target = Path(os.path.abspath(target))
     check_output_folder(target, overwrite=overwrite, inputs=inputs)
-    made = _make_parents(target)
     held = {signal.SIGINT, signal.SIGTERM}
-    # Hold SIGINT/SIGTERM while the folder is created, so a signal cannot land between its creation and
-    # the cleanup handler below; it is delivered as soon as the handler is in place.
-    previous = signal.pthread_sigmask(signal.SIG_BLOCK, held)
     tmp = target.with_name(f"{target.name}.incomplete-{os.getpid()}")
+    old = target.with_name(f"{target.name}.replaced-{os.getpid()}")
+    made: list[Path] = []
+    done = False
+    # Signals are held while the folder is created and while it is swapped in. Holding them stops their
+    # delivery to this thread only: another thread of the process (a compiled kernel's worker) may still
+    # take one, and Python then raises KeyboardInterrupt here at once. So everything from the first folder
+    # made to the swap sits in one block that undoes it all on any exception.
+    previous = signal.pthread_sigmask(signal.SIG_BLOCK, held)
     try:
-        if tmp.exists():
-            shutil.rmtree(tmp)
-        tmp.mkdir()
-        (tmp / _WRITING).touch()
-    except BaseException:
-        signal.pthread_sigmask(signal.SIG_SETMASK, previous)
-        _remove_made(made)
-        raise
-    try:
-        # a signal held until now is delivered here, inside the block that removes the folder
-        signal.pthread_sigmask(signal.SIG_SETMASK, previous)
+        try:
+            made = _make_parents(target)
+            if tmp.exists():
+                shutil.rmtree(tmp)
+            tmp.mkdir()
+            (tmp / _WRITING).touch()
+        finally:
+            # a signal held until now is delivered here, inside the block that removes the folder
+            signal.pthread_sigmask(signal.SIG_SETMASK, previous)
         yield tmp
         mark_files(tmp)
         (tmp / _WRITING).unlink()
+        # The swap itself runs with signals held: it either happens whole or not at all.
+        previous = signal.pthread_sigmask(signal.SIG_BLOCK, held)
+        try:
+            if target.is_dir() and any(target.iterdir()):
+                if not (overwrite and is_previous_run(target)):  # something arrived while we were working
+                    raise OutputError("the output folder was filled by something else while the tool was "
+                                      "working; it is left as it is", file=target, fix="give a new folder with --out")
+                target.rename(old)
+                tmp.rename(target)
+                done = True
+                shutil.rmtree(old, ignore_errors=True)
+            elif target.is_dir():  # an empty folder of the user's: kept, and filled from the temporary one
+                moved = []
+                try:
+                    for entry in sorted(tmp.iterdir()):
+                        entry.rename(target / entry.name)
+                        moved.append(target / entry.name)
+                except BaseException:
+                    for path in moved:
+                        shutil.rmtree(path) if path.is_dir() else path.unlink()
+                    raise
+                done = True
+                tmp.rmdir()
+            else:
+                tmp.rename(target)
+                done = True
+        finally:
+            signal.pthread_sigmask(signal.SIG_SETMASK, previous)
     except BaseException:
-        shutil.rmtree(tmp, ignore_errors=True)
-        _remove_made(made)
+        if not done:
+            shutil.rmtree(tmp, ignore_errors=True)
+            if old.exists() and not target.exists():
+                old.rename(target)  # put the previous run back
+            _remove_made(made)
         raise
-    # The swap itself runs with signals held: it either happens whole or not at all.
-    previous = signal.pthread_sigmask(signal.SIG_BLOCK, held)
-    old = target.with_name(f"{target.name}.replaced-{os.getpid()}")
-    try:
-        if target.is_dir() and any(target.iterdir()):
-            if not (overwrite and is_previous_run(target)):  # something arrived while we were working
-                raise OutputError("the output folder was filled by something else while the tool was working; "
-                                  "it is left as it is", file=target, fix="give a new folder with --out")
-            target.rename(old)
-        elif target.is_dir():  # an empty folder of the user's: kept, and filled from the temporary one
-            moved = []
-            try:
-                for entry in sorted(tmp.iterdir()):
-                    entry.rename(target / entry.name)
-                    moved.append(target / entry.name)
-            except BaseException:
-                for path in moved:
-                    shutil.rmtree(path) if path.is_dir() else path.unlink()
-                raise
-            tmp.rmdir()
-            return
-        tmp.rename(target)
-        shutil.rmtree(old, ignore_errors=True)
-    except BaseException:
-        shutil.rmtree(tmp, ignore_errors=True)
-        if old.exists() and not target.exists():
-            old.rename(target)  # put the previous run back
-        raise
-    finally:
-        signal.pthread_sigmask(signal.SIG_SETMASK, previous)
 
 
 def write_tables(result: ValuationResult, folder: Path) -> None:
