@@ -442,7 +442,7 @@ def cmd_table(args: argparse.Namespace) -> int:
 
 
 def _experience_options(sp: Any) -> None:
-    sp.add_argument("--exits", type=existing_file, help="other exits: member_id, exit_date, reason")
+    sp.add_argument("--exits", type=existing_file, help=EXITS_HELP)
     sp.add_argument("--exposure", choices=["central", "initial"], default=None,
                     help="central exposed-to-risk with mu (default) or initial exposure with q")
     sp.add_argument("--confidence", type=probability, default=None,
@@ -466,6 +466,11 @@ def _period_options(sp: argparse.ArgumentParser, start_note: str = "", end_note:
                     help=f"period start{start_note} (ISO date YYYY-MM-DD)")
     sp.add_argument("--period-end", "--end", dest="period_end", type=iso_date, required=True,
                     help=f"period end{end_note} (ISO date YYYY-MM-DD)")
+
+
+#: Help of the period's event files, the same in every command that takes them.
+DEATHS_HELP = "deaths file: member_id, date_of_death[, pension_at_death]"
+EXITS_HELP = "other exits: member_id, exit_date, reason"
 
 
 def _folder_options(sp: argparse.ArgumentParser, what: str, default: str, accept_help: str) -> None:
@@ -517,7 +522,7 @@ def build_parser() -> argparse.ArgumentParser:
     r.add_argument("--stream", action="store_true",
                    help="read, validate and value the file in chunks (flat memory for very large schemes)")
     g = r.add_argument_group("experience analysis (optional): deaths since the last valuation, in the reports")
-    g.add_argument("--deaths", type=existing_file, help="deaths file: member_id, date_of_death[, pension_at_death]")
+    g.add_argument("--deaths", type=existing_file, help=DEATHS_HELP)
     g.add_argument("--start-members", type=existing_file, help="member data at the start of the period")
     g.add_argument("--period-start", type=iso_date, help="period start (ISO date YYYY-MM-DD)")
     g.add_argument("--period-end", type=iso_date, help="period end (ISO date YYYY-MM-DD), usually the valuation date")
@@ -574,7 +579,7 @@ def build_parser() -> argparse.ArgumentParser:
         """) + EPILOG_EXIT)
     e.add_argument("basis", type=existing_file, help="assumptions basis (TOML)")
     e.add_argument("members", type=existing_file, help="member data at the start of the period")
-    e.add_argument("deaths", type=existing_file, help="deaths file: member_id, date_of_death[, pension_at_death]")
+    e.add_argument("deaths", type=existing_file, help=DEATHS_HELP)
     _period_options(e)
     e.add_argument("--valuation-members", type=existing_file,
                    help="member data at the valuation date, to re-value at the implied table")
@@ -597,8 +602,8 @@ def build_parser() -> argparse.ArgumentParser:
     mv.add_argument("previous", type=existing_file, help="member data at the start of the period")
     mv.add_argument("current", type=existing_file, help="member data at the end of the period")
     _period_options(mv, ": the previous extract's date", ": the current extract's date")
-    mv.add_argument("--deaths", type=existing_file, help="deaths file: member_id, date_of_death[, pension_at_death]")
-    mv.add_argument("--exits", type=existing_file, help="other exits: member_id, exit_date, reason")
+    mv.add_argument("--deaths", type=existing_file, help=DEATHS_HELP)
+    mv.add_argument("--exits", type=existing_file, help=EXITS_HELP)
     _format_options(mv)
     _folder_options(mv, "movements", "movements-<period end>",
                     "classify even when an extract has more excluded records than the basis allows")
@@ -634,10 +639,9 @@ def build_parser() -> argparse.ArgumentParser:
     ch.add_argument("--benefits-paid", type=non_negative_float,
                     help="benefits actually paid in the period [currency] (default: those the previous valuation "
                          "expected)")
-    ch.add_argument("--deaths", type=existing_file,
-                    help="deaths in the period (member_id, date_of_death): tells deaths from other departures in the "
-                         "experience split")
-    ch.add_argument("--exits", type=existing_file, help="other exits in the period: member_id, exit_date, reason")
+    ch.add_argument("--deaths", type=existing_file, help=DEATHS_HELP + " (tells deaths from other departures in "
+                    "the experience split)")
+    ch.add_argument("--exits", type=existing_file, help=EXITS_HELP)
     ch.add_argument("--order", type=_step_order, default=("demographic", "financial", "other"),
                     help="order of the assumption steps (default demographic,financial,other)")
     _format_options(ch)

@@ -270,7 +270,8 @@ def run(
             deaths_path=experience.deaths, exits_path=experience.exits)
         if previous is not None:  # the start membership read again on the previous basis's own rules
             outcome.change = change(previous, experience.start_members, loaded, data, deaths=experience.deaths,
-                                    exits=experience.exits, accept_exclusions=accept_exclusions, warn=warn)
+                                    exits=experience.exits, accept_exclusions=accept_exclusions, warn=warn,
+                                    current_liability=result.total_liability)
     if out is not None:
         if progress:
             progress("writing", 0, 1)
@@ -549,6 +550,7 @@ def change(
     fmt: InputFormat = DEFAULT_FORMAT,
     accept_exclusions: bool = False,
     warn: Say = _quiet,
+    current_liability: float | None = None,
 ) -> ChangeRun:
     """The analysis of change from the previous valuation to the current one (:mod:`valuation.engine.change`).
 
@@ -557,7 +559,8 @@ def change(
     actually paid in its place where ``benefits_paid`` [currency] is given (the interest stays that on the
     expected payments: the difference in timing falls in the experience). Then every step is a full
     valuation: the current members on the previous basis at the current date (experience), and the basis
-    moved to the current one step by step in ``order``. The closing line is the current valuation; a test of
+    moved to the current one step by step in ``order``. The closing line is the current valuation
+    (``current_liability`` when the caller has valued it already, else valued here); a test of
     that is made (the steps must reproduce it), so a basis whose files cannot be found from a mixed step is
     refused rather than mis-valued. With ``out``, writes change.json, change.csv and the manifest.
     """
@@ -634,7 +637,7 @@ def change(
         lines.append(ChangeLine(step, labels[step], now - level,
                                 f"current members, previous basis with the current {' and '.join(done)} assumptions, {d1}"))
         level = now
-    closing = value(b1)
+    closing = value(b1) if current_liability is None else current_liability  # a run has valued it already
     if abs(closing - level) > 1e-9 * max(abs(closing), 1.0):
         raise BasisError("the steps of the analysis do not reproduce the current valuation (a table or curve file "
                          "of one basis is not found from the other's folder)", file=b1.source_path,
